@@ -1,0 +1,103 @@
+//! Cheap input checks shared by every operation: finiteness, symmetry and the
+//! necessary conditions for a covariance to be positive (semi)definite.
+
+use nalgebra::{SMatrix, SVector};
+
+use crate::error::{FilterError, Operand, idx};
+use crate::scalar::Scalar;
+
+/// Every entry finite.
+#[inline]
+pub(crate) fn finite<T: Scalar, const R: usize, const C: usize>(
+    a: &SMatrix<T, R, C>,
+    what: Operand,
+) -> Result<(), FilterError> {
+    if a.iter().all(|v| v.finite()) {
+        Ok(())
+    } else {
+        Err(FilterError::NonFinite(what))
+    }
+}
+
+/// Symmetric to within a few roundings of its diagonal (common practice:
+/// inputs assembled in floating point may differ by an ulp across the
+/// diagonal).
+#[inline]
+pub(crate) fn symmetric<T: Scalar, const N: usize>(
+    a: &SMatrix<T, N, N>,
+    what: Operand,
+) -> Result<(), FilterError> {
+    let tol = T::EPSILON * T::of(16.0);
+    for j in 0..N {
+        for i in 0..j {
+            let scale = a[(i, i)].abs().max(a[(j, j)].abs());
+            if (a[(i, j)] - a[(j, i)]).abs() > tol * scale {
+                return Err(FilterError::NotSymmetric(what));
+            }
+        }
+    }
+    Ok(())
+}
+
+/// A noise covariance: finite, symmetric, non-negative diagonal and every
+/// 2 x 2 principal minor non-negative (necessary for positive
+/// semidefiniteness; O(n^2)). With `strict`, the diagonal must be positive.
+#[inline]
+pub(crate) fn noise<T: Scalar, const N: usize>(
+    a: &SMatrix<T, N, N>,
+    what: Operand,
+    strict: bool,
+) -> Result<(), FilterError> {
+    finite(a, what)?;
+    symmetric(a, what)?;
+    for i in 0..N {
+        let d = a[(i, i)];
+        if d < T::zero() || (strict && d <= T::zero()) {
+            return Err(FilterError::NotPositiveDefinite {
+                operand: what,
+                index: idx(i),
+            });
+        }
+        for j in 0..i {
+            let c = a[(i, j)];
+            if c * c > a[(i, i)] * a[(j, j)] {
+                return Err(FilterError::NotPositiveDefinite {
+                    operand: what,
+                    index: idx(i),
+                });
+            }
+        }
+    }
+    Ok(())
+}
+
+/// The gate threshold, when given, must be finite and positive.
+#[inline]
+pub(crate) fn gate<T: Scalar>(g: Option<T>) -> Result<(), FilterError> {
+    match g {
+        Some(v) if !(v.finite() && v > T::zero()) => Err(FilterError::NonFinite(Operand::Gate)),
+        _ => Ok(()),
+    }
+}
+
+/// The result of an operation, before it is committed: finite state, finite
+/// covariance with a positive diagonal.
+#[inline]
+pub(crate) fn posterior<T: Scalar, const N: usize>(
+    x: &SVector<T, N>,
+    p: &SMatrix<T, N, N>,
+) -> Result<(), FilterError> {
+    if !x.iter().all(|v| v.finite()) {
+        return Err(FilterError::NonFinite(Operand::State));
+    }
+    for i in 0..N {
+        let d = p[(i, i)];
+        if !(d.finite() && d > T::zero()) {
+            return Err(FilterError::CovarianceLost { index: idx(i) });
+        }
+    }
+    if !p.iter().all(|v| v.finite()) {
+        return Err(FilterError::CovarianceLost { index: 0 });
+    }
+    Ok(())
+}

@@ -1,0 +1,222 @@
+//! A runtime health monitor a firmware loop can poll: windowed mean NIS
+//! against chi-square bounds, covariance asymmetry and smallest variance.
+
+use heapless::HistoryBuf;
+use nalgebra::SMatrix;
+
+use crate::error::Outcome;
+use crate::scalar::Scalar;
+
+/// Where the windowed mean NIS lies against its chi-square interval.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub enum NisBand {
+    /// Fewer samples than the monitor needs to judge.
+    TooFew,
+    /// Below the lower bound: the filter claims too little confidence (R or
+    /// Q too large).
+    Low,
+    /// Inside the two-sided interval.
+    Consistent,
+    /// Above the upper bound: innovations are larger than the filter expects
+    /// (Q or R too small, a model error, or divergence).
+    High,
+}
+
+/// One poll of the health monitor.
+#[derive(Debug, Clone, Copy, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct HealthReport<T> {
+    /// Measurements in the window.
+    pub samples: u16,
+    /// Sum of NIS over the window divided by the total degrees of freedom.
+    pub mean_nis_per_dof: T,
+    /// Lower bound of the two-sided interval for that mean.
+    pub lower: T,
+    /// Upper bound of the two-sided interval for that mean.
+    pub upper: T,
+    /// The NIS verdict.
+    pub nis: NisBand,
+    /// Largest |P_ij - P_ji| relative to sqrt(P_ii P_jj).
+    pub asymmetry: T,
+    /// Smallest diagonal entry of P.
+    pub min_variance: T,
+    /// `true` when NIS is consistent (or too few to judge), P is symmetric
+    /// within tolerance and every variance is positive and finite.
+    pub healthy: bool,
+}
+
+/// Windowed consistency and covariance-sanity monitor, `W` measurements deep.
+///
+/// The chi-square bounds use the Wilson-Hilferty approximation
+/// (Wilson and Hilferty, PNAS 17, 1931), accurate to about 1% for 10 or more
+/// degrees of freedom, so no tables are needed on the target.
+#[derive(Debug, Clone)]
+pub struct HealthMonitor<T: Scalar, const W: usize> {
+    window: HistoryBuf<(T, u8), W>,
+    z: T,
+    min_samples: u16,
+    asymmetry_limit: T,
+}
+
+impl<T: Scalar, const W: usize> HealthMonitor<T, W> {
+    /// A monitor with a two-sided 95% interval (standard normal quantile
+    /// 1.959964), judging once it holds `W / 2` measurements and flagging
+    /// asymmetry above 1e3 machine epsilons.
+    #[must_use]
+    pub fn new() -> Self {
+        Self::with_quantile(T::of(1.959_963_984_540_054))
+    }
+
+    /// A monitor with the two-sided interval of the given standard normal
+    /// quantile (2.575829 for 99%).
+    pub fn with_quantile(z: T) -> Self {
+        Self {
+            window: HistoryBuf::new(),
+            z,
+            min_samples: (W / 2).max(1).min(u16::MAX as usize) as u16,
+            asymmetry_limit: T::EPSILON * T::of(1e3),
+        }
+    }
+
+    /// Records the NIS of an update outcome with `dof` measurement
+    /// components. Gated measurements count too: they are evidence.
+    pub fn record(&mut self, outcome: &Outcome<T>, dof: u8) {
+        self.record_nis(outcome.nis(), dof);
+    }
+
+    /// Records one normalised innovation squared. Non-finite values and
+    /// `dof = 0` are ignored.
+    pub fn record_nis(&mut self, nis: T, dof: u8) {
+        if nis.finite() && dof > 0 {
+            self.window.write((nis, dof));
+        }
+    }
+
+    /// Forgets the window.
+    pub fn clear(&mut self) {
+        self.window.clear();
+    }
+
+    /// Judges the window and the covariance `p`.
+    #[must_use]
+    pub fn assess<const N: usize>(&self, p: &SMatrix<T, N, N>) -> HealthReport<T> {
+        let mut sum = T::zero();
+        let mut dof: u32 = 0;
+        for &(nis, d) in self.window.oldest_ordered() {
+            sum += nis;
+            dof += u32::from(d);
+        }
+        let samples = self.window.len().min(u16::MAX as usize) as u16;
+        let (mean, lower, upper, nis) = if dof == 0 || samples < self.min_samples {
+            (T::zero(), T::zero(), T::zero(), NisBand::TooFew)
+        } else {
+            let k = T::of(f64::from(dof));
+            let mean = sum / k;
+            let (lo, hi) = wilson_hilferty_bounds(k, self.z);
+            let band = if mean < lo {
+                NisBand::Low
+            } else if mean > hi {
+                NisBand::High
+            } else {
+                NisBand::Consistent
+            };
+            (mean, lo, hi, band)
+        };
+        let mut asymmetry = T::zero();
+        let mut min_variance = T::max_value().unwrap_or_else(T::one);
+        let mut finite = true;
+        for j in 0..N {
+            let d = p[(j, j)];
+            finite &= d.finite();
+            if d < min_variance || !d.finite() {
+                min_variance = d;
+            }
+            for i in 0..j {
+                let scale = (p[(i, i)] * p[(j, j)]).abs().sqrt();
+                if scale > T::zero() {
+                    let a = (p[(i, j)] - p[(j, i)]).abs() / scale;
+                    if a > asymmetry || !a.finite() {
+                        asymmetry = a;
+                    }
+                }
+            }
+        }
+        let healthy = finite
+            && min_variance > T::zero()
+            && asymmetry <= self.asymmetry_limit
+            && matches!(nis, NisBand::Consistent | NisBand::TooFew);
+        HealthReport {
+            samples,
+            mean_nis_per_dof: mean,
+            lower,
+            upper,
+            nis,
+            asymmetry,
+            min_variance,
+            healthy,
+        }
+    }
+}
+
+impl<T: Scalar, const W: usize> Default for HealthMonitor<T, W> {
+    fn default() -> Self {
+        Self::new()
+    }
+}
+
+/// Two-sided bounds for chi-square(k) / k at standard normal quantile `z`:
+/// (1 - 2/(9k) -/+ z sqrt(2/(9k)))^3 (Wilson and Hilferty 1931).
+pub fn wilson_hilferty_bounds<T: Scalar>(k: T, z: T) -> (T, T) {
+    let c = T::of(2.0) / (T::of(9.0) * k);
+    let s = c.sqrt();
+    let base = T::one() - c;
+    let lo = base - z * s;
+    let hi = base + z * s;
+    let lo = if lo > T::zero() {
+        lo * lo * lo
+    } else {
+        T::zero()
+    };
+    (lo, hi * hi * hi)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use nalgebra::Matrix3;
+
+    #[test]
+    fn wilson_hilferty_matches_published_interval() {
+        // Bar-Shalom, Li and Kirubarajan (2001): for 50 runs of n = 3 the
+        // two-sided 95% interval of the average NEES is [2.3597, 3.7160],
+        // i.e. chi-square(150)/150 bounds [0.78657, 1.23867].
+        let (lo, hi) = wilson_hilferty_bounds(150.0_f64, 1.959_963_984_540_054);
+        assert!((lo * 3.0 - 2.3597).abs() < 2e-3, "lo {}", lo * 3.0);
+        assert!((hi * 3.0 - 3.7160).abs() < 2e-3, "hi {}", hi * 3.0);
+    }
+
+    #[test]
+    fn flags_high_nis_and_lost_variance() {
+        let mut m = HealthMonitor::<f64, 20>::new();
+        let p = Matrix3::<f64>::identity();
+        assert_eq!(m.assess(&p).nis, NisBand::TooFew);
+        for _ in 0..20 {
+            m.record_nis(9.0, 1);
+        }
+        let r = m.assess(&p);
+        assert_eq!(r.nis, NisBand::High);
+        assert!(!r.healthy);
+        m.clear();
+        for _ in 0..20 {
+            m.record_nis(1.0, 1);
+        }
+        assert!(m.assess(&p).healthy);
+        let mut bad = p;
+        bad[(2, 2)] = -1e-9;
+        assert!(!m.assess(&bad).healthy);
+        let mut skew = p;
+        skew[(0, 1)] = 1e-6;
+        assert!(!m.assess(&skew).healthy);
+    }
+}

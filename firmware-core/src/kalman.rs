@@ -1,0 +1,387 @@
+//! The fixed-size Kalman filter: state, covariance and the transactional
+//! predict and update operations, linear and extended.
+
+use core::marker::PhantomData;
+
+use nalgebra::{SMatrix, SVector};
+
+use crate::check;
+use crate::error::{FilterError, Operand, Outcome, idx};
+use crate::form::{CovarianceForm, Joseph};
+use crate::ldl::Ldl;
+use crate::model::{MeasurementModel, ProcessModel};
+use crate::scalar::Scalar;
+
+/// A Kalman filter over `N` states in scalar `T`, with the covariance
+/// measurement update chosen by the type `F` (Joseph by default).
+///
+/// Every operation checks its inputs, computes into temporaries and commits
+/// only when the result is finite with a positive variance on every
+/// diagonal entry: an `Err` or a gated measurement leaves state and
+/// covariance bit-identical. The covariance is exactly symmetric after every
+/// operation.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Kalman<T: Scalar, const N: usize, F: CovarianceForm = Joseph> {
+    x: SVector<T, N>,
+    p: SMatrix<T, N, N>,
+    form: PhantomData<F>,
+}
+
+/// A computed update, not yet committed.
+enum Weighed<T: Scalar, const N: usize> {
+    Apply {
+        x: SVector<T, N>,
+        p: SMatrix<T, N, N>,
+        nis: T,
+    },
+    Gate {
+        nis: T,
+    },
+}
+
+impl<T: Scalar, const N: usize, F: CovarianceForm> Kalman<T, N, F> {
+    /// A filter from a state and covariance that the caller vouches for
+    /// (finite, symmetric, positive definite). `const`, so a filter can be
+    /// built in a `static`; prefer [`Kalman::try_new`] when the values come
+    /// from outside.
+    pub const fn new_unchecked(x: SVector<T, N>, p: SMatrix<T, N, N>) -> Self {
+        Self {
+            x,
+            p,
+            form: PhantomData,
+        }
+    }
+
+    /// A filter from an initial state and covariance.
+    ///
+    /// # Errors
+    /// [`FilterError::NonFinite`] for NaN or infinity, [`FilterError::NotSymmetric`]
+    /// or [`FilterError::NotPositiveDefinite`] for a covariance that is not a
+    /// covariance (checked by an LDL' factorisation).
+    ///
+    /// # Panics
+    /// Never.
+    pub fn try_new(x: SVector<T, N>, p: SMatrix<T, N, N>) -> Result<Self, FilterError> {
+        check::finite(&x, Operand::State)?;
+        check::finite(&p, Operand::Covariance)?;
+        check::symmetric(&p, Operand::Covariance)?;
+        if let Err(j) = Ldl::factor(&p) {
+            return Err(FilterError::NotPositiveDefinite {
+                operand: Operand::Covariance,
+                index: idx(j),
+            });
+        }
+        let mut p = p;
+        symmetrize(&mut p);
+        Ok(Self::new_unchecked(x, p))
+    }
+
+    /// The state estimate x.
+    pub fn state(&self) -> &SVector<T, N> {
+        &self.x
+    }
+
+    /// The covariance P (exactly symmetric).
+    pub fn covariance(&self) -> &SMatrix<T, N, N> {
+        &self.p
+    }
+
+    /// The name of the covariance form, for reports.
+    pub fn form_name(&self) -> &'static str {
+        F::NAME
+    }
+
+    /// Linear predict: x = F x, P = F P F' + Q.
+    ///
+    /// # Errors
+    /// [`FilterError::NonFinite`] for NaN or infinity in F or Q;
+    /// [`FilterError::NotSymmetric`] or [`FilterError::NotPositiveDefinite`]
+    /// when Q fails the cheap semidefiniteness checks (symmetry, diagonal
+    /// and 2 x 2 minors); [`FilterError::CovarianceLost`] when the result
+    /// would not be a covariance. Nothing changes on error.
+    ///
+    /// # Panics
+    /// Never.
+    pub fn predict(
+        &mut self,
+        f: &SMatrix<T, N, N>,
+        q: &SMatrix<T, N, N>,
+    ) -> Result<(), FilterError> {
+        check::finite(f, Operand::Transition)?;
+        check::noise(q, Operand::ProcessNoise, false)?;
+        let x = f * self.x;
+        let p = propagate(f, &self.p, q);
+        self.commit(x, p)
+    }
+
+    /// Linear predict with a control term: x = F x + B u, P = F P F' + Q.
+    ///
+    /// # Errors
+    /// As [`Kalman::predict`], and [`FilterError::NonFinite`] for a
+    /// non-finite B or u.
+    ///
+    /// # Panics
+    /// Never.
+    pub fn predict_with_control<const U: usize>(
+        &mut self,
+        f: &SMatrix<T, N, N>,
+        b: &SMatrix<T, N, U>,
+        u: &SVector<T, U>,
+        q: &SMatrix<T, N, N>,
+    ) -> Result<(), FilterError> {
+        check::finite(f, Operand::Transition)?;
+        check::finite(b, Operand::Control)?;
+        check::finite(u, Operand::Control)?;
+        check::noise(q, Operand::ProcessNoise, false)?;
+        let x = f * self.x + b * u;
+        let p = propagate(f, &self.p, q);
+        self.commit(x, p)
+    }
+
+    /// Extended predict through a process model: x = f(x, u, dt),
+    /// P = F P F' + Q with F and Q from the model at the prior state.
+    ///
+    /// # Errors
+    /// [`FilterError::InvalidTimeStep`] for dt that is zero, negative or not
+    /// finite; otherwise as [`Kalman::predict`]. Nothing changes on error.
+    ///
+    /// # Panics
+    /// Never, unless the model's own functions panic.
+    pub fn predict_with<P: ProcessModel<T, N>>(
+        &mut self,
+        model: &P,
+        u: &P::Input,
+        dt: T,
+    ) -> Result<(), FilterError> {
+        if !(dt.finite() && dt > T::zero()) {
+            return Err(FilterError::InvalidTimeStep);
+        }
+        let f = model.jacobian(&self.x, u, dt);
+        check::finite(&f, Operand::Transition)?;
+        let q = model.noise(&self.x, u, dt);
+        check::noise(&q, Operand::ProcessNoise, false)?;
+        let mut x = model.transition(&self.x, u, dt);
+        check::finite(&x, Operand::Control)?;
+        model.normalize(&mut x);
+        let p = propagate(&f, &self.p, &q);
+        self.commit(x, p)
+    }
+
+    /// Linear update with measurement z = H x + v, v ~ N(0, R), solving with
+    /// an LDL' factorisation of S = H P H' + R (no inverse, no square root).
+    ///
+    /// With `gate = Some(g)`, a measurement whose normalised innovation
+    /// squared exceeds `g` (a chi-square quantile with M degrees of freedom)
+    /// is not applied and [`Outcome::Gated`] is returned.
+    ///
+    /// # Errors
+    /// [`FilterError::NonFinite`] for NaN or infinity in z, H, R or the gate;
+    /// [`FilterError::NotSymmetric`] or [`FilterError::NotPositiveDefinite`]
+    /// for an R that is not positive definite; [`FilterError::SingularInnovation`]
+    /// when S cannot be factored safely; [`FilterError::CovarianceLost`] when
+    /// the posterior would not be a covariance. Nothing changes on error.
+    ///
+    /// # Panics
+    /// Never.
+    pub fn update<const M: usize>(
+        &mut self,
+        z: &SVector<T, M>,
+        h: &SMatrix<T, M, N>,
+        r: &SMatrix<T, M, M>,
+        gate: Option<T>,
+    ) -> Result<Outcome<T>, FilterError> {
+        check::finite(z, Operand::Measurement)?;
+        check::finite(h, Operand::MeasurementMatrix)?;
+        let nu = z - h * self.x;
+        self.finish(self.weigh(nu, h, r, gate)?, |_| {})
+    }
+
+    /// Extended update through a measurement model: innovation
+    /// `model.residual(z, h(x))`, Jacobian H and noise R from the model.
+    ///
+    /// # Errors
+    /// As [`Kalman::update`]; [`FilterError::NonFinite`] with
+    /// [`Operand::Innovation`] when h(x) or the residual is not finite.
+    ///
+    /// # Panics
+    /// Never, unless the model's own functions panic.
+    pub fn update_with<Mm: MeasurementModel<T, N, M>, const M: usize>(
+        &mut self,
+        model: &Mm,
+        z: &SVector<T, M>,
+        gate: Option<T>,
+    ) -> Result<Outcome<T>, FilterError> {
+        check::finite(z, Operand::Measurement)?;
+        let predicted = model.predict(&self.x);
+        check::finite(&predicted, Operand::Innovation)?;
+        let nu = model.residual(z, &predicted);
+        check::finite(&nu, Operand::Innovation)?;
+        let h = model.jacobian(&self.x);
+        check::finite(&h, Operand::MeasurementMatrix)?;
+        let r = model.noise(&self.x);
+        self.finish(self.weigh(nu, &h, &r, gate)?, |x| model.normalize(x))
+    }
+
+    /// Linear update with uncorrelated measurement noise, processed one
+    /// component at a time (no factorisation at all: each step divides by a
+    /// scalar innovation variance). `r` holds the M variances.
+    ///
+    /// The gate, if any, applies to the sum of the sequential normalised
+    /// innovations squared, which equals the joint NIS for a linear model.
+    ///
+    /// # Errors
+    /// As [`Kalman::update`]; a non-positive variance in `r` is
+    /// [`FilterError::NotPositiveDefinite`]. Nothing changes on error.
+    ///
+    /// # Panics
+    /// Never.
+    pub fn update_sequential<const M: usize>(
+        &mut self,
+        z: &SVector<T, M>,
+        h: &SMatrix<T, M, N>,
+        r: &SVector<T, M>,
+        gate: Option<T>,
+    ) -> Result<Outcome<T>, FilterError> {
+        check::finite(z, Operand::Measurement)?;
+        check::finite(h, Operand::MeasurementMatrix)?;
+        check::finite(r, Operand::MeasurementNoise)?;
+        check::gate(gate)?;
+        for i in 0..M {
+            if r[i] <= T::zero() {
+                return Err(FilterError::NotPositiveDefinite {
+                    operand: Operand::MeasurementNoise,
+                    index: idx(i),
+                });
+            }
+        }
+        let mut x = self.x;
+        let mut p = self.p;
+        let mut nis = T::zero();
+        for i in 0..M {
+            let hi = SVector::<T, N>::from_fn(|c, _| h[(i, c)]);
+            let b = p * hi;
+            let hb = hi.dot(&b);
+            let s = hb + r[i];
+            if !(s.finite() && s > T::zero() && s > T::EPSILON * hb.abs()) {
+                return Err(FilterError::SingularInnovation { pivot: idx(i) });
+            }
+            let nu = z[i] - hi.dot(&x);
+            nis += nu * nu / s;
+            let k = b / s;
+            x += k * nu;
+            p = F::posterior_scalar(&p, &hi, &b, &k, r[i]);
+        }
+        if !nis.finite() {
+            return Err(FilterError::NonFinite(Operand::Innovation));
+        }
+        if let Some(g) = gate
+            && nis > g
+        {
+            return Ok(Outcome::Gated { nis });
+        }
+        self.commit(x, p)?;
+        Ok(Outcome::Applied { nis })
+    }
+
+    /// Shared update arithmetic: checks R, factors S, gates, forms the gain
+    /// and the posterior. Nothing is written to `self`.
+    fn weigh<const M: usize>(
+        &self,
+        nu: SVector<T, M>,
+        h: &SMatrix<T, M, N>,
+        r: &SMatrix<T, M, M>,
+        gate: Option<T>,
+    ) -> Result<Weighed<T, N>, FilterError> {
+        check::finite(r, Operand::MeasurementNoise)?;
+        check::symmetric(r, Operand::MeasurementNoise)?;
+        check::gate(gate)?;
+        if let Err(j) = Ldl::factor(r) {
+            return Err(FilterError::NotPositiveDefinite {
+                operand: Operand::MeasurementNoise,
+                index: idx(j),
+            });
+        }
+        check::finite(&nu, Operand::Innovation)?;
+        // B = P H' (n x m); S = H B + R.
+        let b = self.p * h.transpose();
+        let mut s = h * b;
+        for j in 0..M {
+            for i in 0..M {
+                s[(i, j)] += r[(i, j)];
+            }
+        }
+        let ldl = Ldl::factor(&s).map_err(|j| FilterError::SingularInnovation { pivot: idx(j) })?;
+        let nis = ldl.inverse_quadratic(&nu);
+        if !nis.finite() {
+            return Err(FilterError::NonFinite(Operand::Innovation));
+        }
+        if let Some(g) = gate
+            && nis > g
+        {
+            return Ok(Weighed::Gate { nis });
+        }
+        let k = ldl.right_divide(&b);
+        let x = self.x + k * nu;
+        let p = F::posterior(&self.p, h, &b, &k, r);
+        Ok(Weighed::Apply { x, p, nis })
+    }
+
+    fn finish(
+        &mut self,
+        weighed: Weighed<T, N>,
+        normalize: impl FnOnce(&mut SVector<T, N>),
+    ) -> Result<Outcome<T>, FilterError> {
+        match weighed {
+            Weighed::Gate { nis } => Ok(Outcome::Gated { nis }),
+            Weighed::Apply { mut x, p, nis } => {
+                normalize(&mut x);
+                self.commit(x, p)?;
+                Ok(Outcome::Applied { nis })
+            }
+        }
+    }
+
+    fn commit(&mut self, x: SVector<T, N>, p: SMatrix<T, N, N>) -> Result<(), FilterError> {
+        check::posterior(&x, &p)?;
+        self.x = x;
+        self.p = p;
+        Ok(())
+    }
+}
+
+/// F P F' + Q: the product F P in full, then only the upper triangle of
+/// (F P) F' + Q, mirrored, so the result is exactly symmetric.
+#[inline]
+fn propagate<T: Scalar, const N: usize>(
+    f: &SMatrix<T, N, N>,
+    p: &SMatrix<T, N, N>,
+    q: &SMatrix<T, N, N>,
+) -> SMatrix<T, N, N> {
+    let fp = f * p;
+    let mut out = *q;
+    for j in 0..N {
+        for i in 0..=j {
+            let mut v = T::zero();
+            for e in 0..N {
+                v += fp[(i, e)] * f[(j, e)];
+            }
+            let v = v + q[(i, j)];
+            out[(i, j)] = v;
+            out[(j, i)] = v;
+        }
+    }
+    out
+}
+
+/// Replaces P by (P + P') / 2.
+#[inline]
+fn symmetrize<T: Scalar, const N: usize>(p: &mut SMatrix<T, N, N>) {
+    let half = T::of(0.5);
+    for j in 0..N {
+        for i in 0..j {
+            let v = (p[(i, j)] + p[(j, i)]) * half;
+            p[(i, j)] = v;
+            p[(j, i)] = v;
+        }
+    }
+}

@@ -1,0 +1,48 @@
+//! Hooks for nonlinear (extended) filtering: a process model f(x, u, dt) and a
+//! measurement model h(x), each with its Jacobian and its own residual rule.
+
+use nalgebra::{SMatrix, SVector};
+
+use crate::scalar::Scalar;
+
+/// A nonlinear process model x' = f(x, u, dt) with its Jacobian and its
+/// discrete process noise.
+pub trait ProcessModel<T: Scalar, const N: usize> {
+    /// The control input (odometry, commanded rates, ...).
+    type Input;
+
+    /// The propagated state f(x, u, dt).
+    fn transition(&self, x: &SVector<T, N>, u: &Self::Input, dt: T) -> SVector<T, N>;
+
+    /// The Jacobian of f with respect to x, evaluated at the prior state.
+    fn jacobian(&self, x: &SVector<T, N>, u: &Self::Input, dt: T) -> SMatrix<T, N, N>;
+
+    /// The discrete process noise covariance Q for this step.
+    fn noise(&self, x: &SVector<T, N>, u: &Self::Input, dt: T) -> SMatrix<T, N, N>;
+
+    /// Brings a state back to its canonical range (for example, wraps a
+    /// heading into (-pi, pi]). The default does nothing.
+    fn normalize(&self, _x: &mut SVector<T, N>) {}
+}
+
+/// A nonlinear measurement model z = h(x) + v with its Jacobian, noise and
+/// residual rule.
+pub trait MeasurementModel<T: Scalar, const N: usize, const M: usize> {
+    /// The predicted measurement h(x).
+    fn predict(&self, x: &SVector<T, N>) -> SVector<T, M>;
+
+    /// The Jacobian of h with respect to x.
+    fn jacobian(&self, x: &SVector<T, N>) -> SMatrix<T, M, N>;
+
+    /// The measurement noise covariance R.
+    fn noise(&self, x: &SVector<T, N>) -> SMatrix<T, M, M>;
+
+    /// The innovation z - h(x). Override to wrap angles.
+    fn residual(&self, z: &SVector<T, M>, predicted: &SVector<T, M>) -> SVector<T, M> {
+        z - predicted
+    }
+
+    /// Brings the posterior state back to its canonical range. The default
+    /// does nothing.
+    fn normalize(&self, _x: &mut SVector<T, N>) {}
+}

@@ -1,0 +1,155 @@
+//! The ready planar pose model: x, y (m) and heading (rad) driven by wheel
+//! odometry, with a position fix (2 components) and a heading fix (1).
+
+use nalgebra::{Matrix2, SMatrix, SVector, Vector2, Vector3};
+
+use crate::model::{MeasurementModel, ProcessModel};
+use crate::scalar::{Scalar, wrap_angle};
+
+/// One odometry sample: forward speed (m/s) and yaw rate (rad/s), averaged
+/// over the step.
+#[derive(Debug, Clone, Copy, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct Odometry<T> {
+    /// Forward speed, m/s.
+    pub speed: T,
+    /// Yaw rate, rad/s.
+    pub yaw_rate: T,
+}
+
+/// Unicycle motion over one step with midpoint heading:
+/// x += v dt cos(th + w dt / 2), y += v dt sin(th + w dt / 2), th += w dt.
+///
+/// The odometry readings are noisy: `speed_var` and `yaw_rate_var` are the
+/// variances of one step's averaged readings ((m/s)^2 and (rad/s)^2), mapped
+/// into the state by the input Jacobian L: Q = L diag(speed_var,
+/// yaw_rate_var) L'. `heading_drift_var` (rad^2 per step) adds unmodelled
+/// heading drift, such as wheel slip, directly to the heading.
+#[derive(Debug, Clone, Copy, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct PlanarOdometry<T> {
+    /// Variance of one step's speed reading, (m/s)^2.
+    pub speed_var: T,
+    /// Variance of one step's yaw-rate reading, (rad/s)^2.
+    pub yaw_rate_var: T,
+    /// Extra heading variance per step, rad^2.
+    pub heading_drift_var: T,
+}
+
+impl<T: Scalar> PlanarOdometry<T> {
+    fn midpoint(x: &Vector3<T>, u: &Odometry<T>, dt: T) -> (T, T) {
+        (x[2] + u.yaw_rate * dt * T::of(0.5)).sin_cos_rad()
+    }
+}
+
+impl<T: Scalar> ProcessModel<T, 3> for PlanarOdometry<T> {
+    type Input = Odometry<T>;
+
+    fn transition(&self, x: &Vector3<T>, u: &Odometry<T>, dt: T) -> Vector3<T> {
+        let (s, c) = Self::midpoint(x, u, dt);
+        let d = u.speed * dt;
+        Vector3::new(x[0] + d * c, x[1] + d * s, x[2] + u.yaw_rate * dt)
+    }
+
+    fn jacobian(&self, x: &Vector3<T>, u: &Odometry<T>, dt: T) -> SMatrix<T, 3, 3> {
+        let (s, c) = Self::midpoint(x, u, dt);
+        let d = u.speed * dt;
+        let mut f = SMatrix::<T, 3, 3>::identity();
+        f[(0, 2)] = -d * s;
+        f[(1, 2)] = d * c;
+        f
+    }
+
+    fn noise(&self, x: &Vector3<T>, u: &Odometry<T>, dt: T) -> SMatrix<T, 3, 3> {
+        let (s, c) = Self::midpoint(x, u, dt);
+        let half = T::of(0.5);
+        // Input Jacobian L = d f / d (v, w).
+        let l = SMatrix::<T, 3, 2>::new(
+            dt * c,
+            -u.speed * dt * dt * half * s,
+            dt * s,
+            u.speed * dt * dt * half * c,
+            T::zero(),
+            dt,
+        );
+        let mut q = SMatrix::<T, 3, 3>::zeros();
+        for j in 0..3 {
+            for i in 0..=j {
+                let v = l[(i, 0)] * l[(j, 0)] * self.speed_var
+                    + l[(i, 1)] * l[(j, 1)] * self.yaw_rate_var;
+                q[(i, j)] = v;
+                q[(j, i)] = v;
+            }
+        }
+        q[(2, 2)] += self.heading_drift_var;
+        q
+    }
+
+    fn normalize(&self, x: &mut Vector3<T>) {
+        x[2] = wrap_angle(x[2]);
+    }
+}
+
+/// A position fix (x, y) in metres, with noise covariance `r` (m^2).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct PositionFix<T: Scalar> {
+    /// Noise covariance of the fix, m^2.
+    pub r: Matrix2<T>,
+}
+
+impl<T: Scalar> PositionFix<T> {
+    /// The measurement matrix H, selecting x and y.
+    #[must_use]
+    pub fn h() -> SMatrix<T, 2, 3> {
+        SMatrix::<T, 2, 3>::new(
+            T::one(),
+            T::zero(),
+            T::zero(),
+            T::zero(),
+            T::one(),
+            T::zero(),
+        )
+    }
+}
+
+impl<T: Scalar> MeasurementModel<T, 3, 2> for PositionFix<T> {
+    fn predict(&self, x: &Vector3<T>) -> Vector2<T> {
+        Vector2::new(x[0], x[1])
+    }
+    fn jacobian(&self, _x: &Vector3<T>) -> SMatrix<T, 2, 3> {
+        Self::h()
+    }
+    fn noise(&self, _x: &Vector3<T>) -> Matrix2<T> {
+        self.r
+    }
+    fn normalize(&self, x: &mut Vector3<T>) {
+        x[2] = wrap_angle(x[2]);
+    }
+}
+
+/// A heading fix (compass, magnetometer or a map match) in radians, noise
+/// variance `var` (rad^2). The residual is wrapped to (-pi, pi].
+#[derive(Debug, Clone, Copy, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct HeadingFix<T> {
+    /// Noise variance of the fix, rad^2.
+    pub var: T,
+}
+
+impl<T: Scalar> MeasurementModel<T, 3, 1> for HeadingFix<T> {
+    fn predict(&self, x: &Vector3<T>) -> SVector<T, 1> {
+        SVector::<T, 1>::new(x[2])
+    }
+    fn jacobian(&self, _x: &Vector3<T>) -> SMatrix<T, 1, 3> {
+        SMatrix::<T, 1, 3>::new(T::zero(), T::zero(), T::one())
+    }
+    fn noise(&self, _x: &Vector3<T>) -> SMatrix<T, 1, 1> {
+        SMatrix::<T, 1, 1>::new(self.var)
+    }
+    fn residual(&self, z: &SVector<T, 1>, predicted: &SVector<T, 1>) -> SVector<T, 1> {
+        SVector::<T, 1>::new(wrap_angle(z[0] - predicted[0]))
+    }
+    fn normalize(&self, x: &mut Vector3<T>) {
+        x[2] = wrap_angle(x[2]);
+    }
+}

@@ -1,0 +1,109 @@
+//! The scalar types the core runs in (f32 and f64) and the few functions of
+//! them it needs beyond field arithmetic, with the same bits on host and target.
+
+use nalgebra::RealField;
+
+/// A floating-point scalar the filter can run in.
+///
+/// Implemented for `f32` and `f64`. Trigonometry goes through the `libm` crate
+/// (or micromath for `f32` with the `fast-trig` feature), never through the
+/// platform's maths library, so a host run computes the same bits as the
+/// Cortex-M target.
+pub trait Scalar: RealField + Copy {
+    /// Machine epsilon (unit roundoff times two) of the type.
+    const EPSILON: Self;
+    /// Converts an `f64` literal, rounding to nearest.
+    fn of(value: f64) -> Self;
+    /// Widens to `f64` exactly.
+    fn to_f64(self) -> f64;
+    /// Sine and cosine of an angle in radians.
+    fn sin_cos_rad(self) -> (Self, Self);
+    /// `true` when neither NaN nor infinite.
+    fn finite(self) -> bool;
+}
+
+impl Scalar for f32 {
+    const EPSILON: Self = f32::EPSILON;
+    #[inline]
+    fn of(value: f64) -> Self {
+        value as f32
+    }
+    #[inline]
+    fn to_f64(self) -> f64 {
+        f64::from(self)
+    }
+    #[inline]
+    fn sin_cos_rad(self) -> (Self, Self) {
+        #[cfg(feature = "fast-trig")]
+        {
+            use micromath::F32Ext;
+            (F32Ext::sin(self), F32Ext::cos(self))
+        }
+        #[cfg(not(feature = "fast-trig"))]
+        {
+            (libm::sinf(self), libm::cosf(self))
+        }
+    }
+    #[inline]
+    fn finite(self) -> bool {
+        self.is_finite()
+    }
+}
+
+impl Scalar for f64 {
+    const EPSILON: Self = f64::EPSILON;
+    #[inline]
+    fn of(value: f64) -> Self {
+        value
+    }
+    #[inline]
+    fn to_f64(self) -> f64 {
+        self
+    }
+    #[inline]
+    fn sin_cos_rad(self) -> (Self, Self) {
+        (libm::sin(self), libm::cos(self))
+    }
+    #[inline]
+    fn finite(self) -> bool {
+        self.is_finite()
+    }
+}
+
+/// Wraps an angle to (-pi, pi].
+///
+/// Exact for inputs within a few turns (one subtraction of a multiple of 2 pi
+/// rounded in the scalar type); used for heading residuals and the heading state.
+#[inline]
+pub fn wrap_angle<T: Scalar>(angle: T) -> T {
+    let pi = T::pi();
+    let two_pi = T::two_pi();
+    let mut a = angle;
+    if a > pi || a <= -pi {
+        let turns = (a / two_pi).round();
+        a -= turns * two_pi;
+        if a <= -pi {
+            a += two_pi;
+        } else if a > pi {
+            a -= two_pi;
+        }
+    }
+    a
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn wrap_keeps_the_half_open_interval() {
+        // The interval (-pi, pi] is common practice for heading residuals.
+        let pi = core::f64::consts::PI;
+        assert_eq!(wrap_angle(0.5_f64), 0.5);
+        assert!((wrap_angle(3.0 * pi) - pi).abs() < 1e-12);
+        assert!((wrap_angle(-3.0 * pi) - pi).abs() < 1e-12);
+        assert!((wrap_angle(-pi) - pi).abs() < 1e-15);
+        assert!((wrap_angle(7.0_f64) - (7.0 - 2.0 * pi)).abs() < 1e-12);
+        assert!(wrap_angle(-7.0_f32) > -core::f32::consts::PI);
+    }
+}
