@@ -1,1 +1,3 @@
+//! The `cairn` command-line tool.
+
 fn main() {}
