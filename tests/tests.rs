@@ -1,5 +1,5 @@
 //! Cross-crate tests of the cairn workspace, one module per area.
 
-mod util;
-
+mod core_bad_input;
 mod core_closed_form;
+mod core_invariants;

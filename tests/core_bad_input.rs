@@ -1,0 +1,209 @@
+//! Every kind of bad input is refused with the right error and leaves the
+//! filter bit-identical (the core's transactional guarantee).
+
+use cairn_core::pose::{HeadingFix, Odometry, PlanarOdometry, PositionFix};
+use cairn_core::{FilterError, Kalman, Operand};
+use nalgebra::{Matrix2, Matrix2x3, Matrix3, Vector1, Vector2, Vector3};
+
+type Pose = Kalman<f32, 3>;
+
+fn filter() -> Pose {
+    let p = Matrix3::new(0.04, 0.01, 0.0, 0.01, 0.05, 0.002, 0.0, 0.002, 0.01);
+    Kalman::try_new(Vector3::new(1.0, 2.0, 0.3), p).unwrap()
+}
+
+fn snapshot(kf: &Pose) -> Vec<u32> {
+    kf.state()
+        .iter()
+        .chain(kf.covariance().iter())
+        .map(|v| v.to_bits())
+        .collect()
+}
+
+/// Runs `op` on a fresh filter, checks it fails with `expected` and that no
+/// bit of state or covariance changed.
+fn refused<R: core::fmt::Debug>(
+    expected: FilterError,
+    op: impl FnOnce(&mut Pose) -> Result<R, FilterError>,
+) {
+    let mut kf = filter();
+    let before = snapshot(&kf);
+    let err = op(&mut kf).expect_err("bad input must be refused");
+    assert_eq!(err, expected);
+    assert_eq!(
+        snapshot(&kf),
+        before,
+        "a refused operation changed the filter"
+    );
+    // The message is readable.
+    assert!(!format!("{err}").is_empty());
+}
+
+fn h() -> Matrix2x3<f32> {
+    PositionFix::<f32>::h()
+}
+
+#[test]
+fn non_finite_measurement_matrix_and_noise() {
+    let r = Matrix2::identity() * 0.01;
+    refused(FilterError::NonFinite(Operand::Measurement), |kf| {
+        kf.update(&Vector2::new(f32::NAN, 0.0), &h(), &r, None)
+    });
+    let mut bad_h = h();
+    bad_h[(1, 2)] = f32::INFINITY;
+    refused(FilterError::NonFinite(Operand::MeasurementMatrix), |kf| {
+        kf.update(&Vector2::zeros(), &bad_h, &r, None)
+    });
+    refused(FilterError::NonFinite(Operand::MeasurementNoise), |kf| {
+        kf.update(&Vector2::zeros(), &h(), &(r * f32::NAN), None)
+    });
+    refused(FilterError::NonFinite(Operand::Gate), |kf| {
+        kf.update(&Vector2::zeros(), &h(), &r, Some(f32::NAN))
+    });
+}
+
+#[test]
+fn negative_and_indefinite_noise() {
+    refused(
+        FilterError::NotPositiveDefinite {
+            operand: Operand::MeasurementNoise,
+            index: 0,
+        },
+        |kf| {
+            kf.update(
+                &Vector2::zeros(),
+                &h(),
+                &(Matrix2::identity() * -0.01),
+                None,
+            )
+        },
+    );
+    // Symmetric but indefinite: eigenvalues 0.03 and -0.01.
+    let indefinite = Matrix2::new(0.01, 0.02, 0.02, 0.01);
+    refused(
+        FilterError::NotPositiveDefinite {
+            operand: Operand::MeasurementNoise,
+            index: 1,
+        },
+        |kf| kf.update(&Vector2::zeros(), &h(), &indefinite, None),
+    );
+    refused(FilterError::NotSymmetric(Operand::MeasurementNoise), |kf| {
+        kf.update(
+            &Vector2::zeros(),
+            &h(),
+            &Matrix2::new(0.01, 0.001, 0.0, 0.01),
+            None,
+        )
+    });
+    refused(
+        FilterError::NotPositiveDefinite {
+            operand: Operand::MeasurementNoise,
+            index: 1,
+        },
+        |kf| kf.update_sequential(&Vector2::zeros(), &h(), &Vector2::new(0.01, 0.0), None),
+    );
+    refused(
+        FilterError::NotPositiveDefinite {
+            operand: Operand::ProcessNoise,
+            index: 2,
+        },
+        |kf| {
+            kf.predict(
+                &Matrix3::identity(),
+                &Matrix3::from_diagonal(&Vector3::new(0.1, 0.1, -1e-6)),
+            )
+        },
+    );
+}
+
+#[test]
+fn singular_innovation_covariance() {
+    // Two identical rows with negligible noise: S = H P H' + R is singular
+    // to working precision (common practice: a rank decision at the
+    // rounding level).
+    let twin = Matrix2x3::new(1.0, 0.0, 0.0, 1.0, 0.0, 0.0);
+    let tiny = Matrix2::identity() * 1e-30;
+    refused(FilterError::SingularInnovation { pivot: 1 }, |kf| {
+        kf.update(&Vector2::zeros(), &twin, &tiny, None)
+    });
+}
+
+#[test]
+fn bad_time_steps_and_transitions() {
+    let motion = PlanarOdometry {
+        speed_var: 1e-4,
+        yaw_rate_var: 1e-4,
+        heading_drift_var: 0.0,
+    };
+    let u = Odometry {
+        speed: 1.0,
+        yaw_rate: 0.1,
+    };
+    for dt in [0.0, -0.01, f32::NAN, f32::INFINITY] {
+        refused(FilterError::InvalidTimeStep, |kf| {
+            kf.predict_with(&motion, &u, dt)
+        });
+    }
+    refused(FilterError::NonFinite(Operand::Transition), |kf| {
+        kf.predict_with(
+            &motion,
+            &Odometry {
+                speed: f32::NAN,
+                yaw_rate: 0.0,
+            },
+            0.01,
+        )
+    });
+    let mut f = Matrix3::identity();
+    f[(0, 1)] = f32::NEG_INFINITY;
+    refused(FilterError::NonFinite(Operand::Transition), |kf| {
+        kf.predict(&f, &Matrix3::zeros())
+    });
+    // Overflow in the propagated covariance is caught before commit.
+    refused(FilterError::CovarianceLost { index: 0 }, |kf| {
+        kf.predict(&(Matrix3::identity() * 1e30), &Matrix3::zeros())
+    });
+}
+
+#[test]
+fn bad_initial_covariance() {
+    let asym = Matrix3::new(1.0, 0.5, 0.0, 0.0, 1.0, 0.0, 0.0, 0.0, 1.0_f32);
+    assert_eq!(
+        Kalman::<f32, 3>::try_new(Vector3::zeros(), asym).err(),
+        Some(FilterError::NotSymmetric(Operand::Covariance))
+    );
+    let indefinite = Matrix3::new(1.0, 2.0, 0.0, 2.0, 1.0, 0.0, 0.0, 0.0, 1.0_f32);
+    assert_eq!(
+        Kalman::<f32, 3>::try_new(Vector3::zeros(), indefinite).err(),
+        Some(FilterError::NotPositiveDefinite {
+            operand: Operand::Covariance,
+            index: 1
+        })
+    );
+    assert_eq!(
+        Kalman::<f32, 3>::try_new(Vector3::new(0.0, f32::NAN, 0.0), Matrix3::identity()).err(),
+        Some(FilterError::NonFinite(Operand::State))
+    );
+}
+
+#[test]
+fn heading_residual_wraps_and_state_stays_in_range() {
+    // Heading near +pi, fix near -pi: the true difference is small, so the
+    // update must move the heading a little across the seam, not by 2 pi
+    // (common practice for angular residuals).
+    let mut kf =
+        Kalman::<f64, 3>::try_new(Vector3::new(0.0, 0.0, 3.13), Matrix3::identity() * 0.01)
+            .unwrap();
+    let out = kf
+        .update_with(&HeadingFix { var: 0.01 }, &Vector1::new(-3.13), Some(6.63))
+        .unwrap();
+    assert!(
+        out.is_applied(),
+        "wrapped residual is small, must pass the gate"
+    );
+    let th = kf.state()[2];
+    assert!(
+        th.abs() > 3.13 && th.abs() <= core::f64::consts::PI,
+        "heading {th}"
+    );
+}
