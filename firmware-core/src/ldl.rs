@@ -7,7 +7,7 @@ use crate::scalar::Scalar;
 
 /// An LDL' factorisation of a symmetric positive definite M x M matrix:
 /// unit lower-triangular L (strict lower part stored) and diagonal D.
-#[derive(Debug, Clone, Copy)]
+#[derive(Debug, Clone, Copy, PartialEq)]
 pub struct Ldl<T: Scalar, const M: usize> {
     l: SMatrix<T, M, M>,
     d: SVector<T, M>,
@@ -94,6 +94,29 @@ impl<T: Scalar, const M: usize> Ldl<T, M> {
             acc += v * v / self.d[i];
         }
         acc
+    }
+
+    /// Decorrelates a measurement: with S = L D L', returns L^-1 H and
+    /// L^-1 nu, whose noise covariance is the diagonal D.
+    pub fn decorrelate<const N: usize>(
+        &self,
+        h: &SMatrix<T, M, N>,
+        nu: &SVector<T, M>,
+    ) -> (SMatrix<T, M, N>, SVector<T, M>) {
+        let mut h = *h;
+        let mut nu = *nu;
+        for i in 0..M {
+            for k in 0..i {
+                let l = self.l[(i, k)];
+                let nk = nu[k];
+                nu[i] -= l * nk;
+                for c in 0..N {
+                    let v = h[(k, c)];
+                    h[(i, c)] -= l * v;
+                }
+            }
+        }
+        (h, nu)
     }
 
     /// Right division: returns X with X S = B, i.e. B S^-1, for an N x M `b`

@@ -1,10 +1,10 @@
 //! # cairn-core
 //!
 //! A fixed-size Kalman filter for microcontrollers: linear and extended
-//! predict and update, Joseph-form or conventional covariance update, a
-//! chi-square innovation gate, a polled health monitor and a ready planar
-//! pose model (x, y, heading from wheel odometry with position and heading
-//! fixes).
+//! predict and update, Joseph-form, conventional or U-D factored covariance
+//! update, a constant-gain filter, a chi-square innovation gate, a polled
+//! health monitor and a ready planar pose model (x, y, heading from wheel
+//! odometry with position and heading fixes).
 //!
 //! ## Guarantees
 //! - `no_std`, no allocation: every matrix is a const-generic nalgebra
@@ -59,6 +59,8 @@ mod ldl;
 mod model;
 pub mod pose;
 mod scalar;
+mod steady;
+mod ud;
 
 pub use error::{FilterError, Operand, Outcome};
 pub use form::{Conventional, CovarianceForm, Joseph};
@@ -67,3 +69,5 @@ pub use kalman::Kalman;
 pub use ldl::Ldl;
 pub use model::{MeasurementModel, ProcessModel};
 pub use scalar::{Scalar, wrap_angle};
+pub use steady::SteadyGain;
+pub use ud::UdKalman;

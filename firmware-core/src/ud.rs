@@ -1,0 +1,410 @@
+//! The U-D factored filter: P = U D U' with U unit upper-triangular and D
+//! diagonal, Bierman's measurement update and Thornton's time update.
+
+use nalgebra::{SMatrix, SVector};
+
+use crate::check;
+use crate::error::{FilterError, Operand, Outcome, idx};
+use crate::ldl::Ldl;
+use crate::model::{MeasurementModel, ProcessModel};
+use crate::scalar::Scalar;
+
+/// A Kalman filter that carries its covariance as U-D factors.
+///
+/// The measurement update is Bierman's scalar algorithm (Bierman,
+/// *Factorization Methods for Discrete Sequential Estimation*, 1977): about
+/// 1.5 n^2 multiplies per scalar, no square roots; a correlated R is first
+/// decorrelated by its own LDL' factors. The time update is Thornton's
+/// modified weighted Gram-Schmidt (Thornton and Bierman, Int. J. Control,
+/// 1977). D positive is the definiteness invariant: a covariance built from
+/// the factors is positive definite by construction, and rounding perturbs
+/// the factors, not the symmetry.
+///
+/// Storage is compact: the strict upper triangle of `ud` holds U, its
+/// diagonal holds D. Operations are transactional like [`crate::Kalman`].
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct UdKalman<T: Scalar, const N: usize> {
+    x: SVector<T, N>,
+    ud: SMatrix<T, N, N>,
+}
+
+/// U-D factorisation of a symmetric positive semidefinite matrix (upper
+/// unit-triangular U, diagonal D), packed. Zero pivots are allowed (the
+/// column of U is then zero); negative or non-finite pivots are refused.
+fn factor_ud<T: Scalar, const N: usize>(
+    p: &SMatrix<T, N, N>,
+    strict: bool,
+) -> Result<SMatrix<T, N, N>, usize> {
+    let mut ud = SMatrix::<T, N, N>::zeros();
+    for j in (0..N).rev() {
+        let mut d = p[(j, j)];
+        for k in (j + 1)..N {
+            let u = ud[(j, k)];
+            d -= u * u * ud[(k, k)];
+        }
+        let tiny = T::EPSILON * T::of(N as f64) * p[(j, j)].abs();
+        if !d.finite() || d < T::zero() || (strict && d <= tiny) {
+            return Err(j);
+        }
+        if d <= tiny {
+            d = T::zero();
+        }
+        ud[(j, j)] = d;
+        for i in 0..j {
+            let mut v = p[(i, j)];
+            for k in (j + 1)..N {
+                v -= ud[(i, k)] * ud[(j, k)] * ud[(k, k)];
+            }
+            ud[(i, j)] = if d > T::zero() { v / d } else { T::zero() };
+        }
+    }
+    Ok(ud)
+}
+
+impl<T: Scalar, const N: usize> UdKalman<T, N> {
+    /// A filter from an initial state and covariance, factored as U D U'.
+    ///
+    /// # Errors
+    /// [`FilterError::NonFinite`], [`FilterError::NotSymmetric`] or
+    /// [`FilterError::NotPositiveDefinite`] as for [`crate::Kalman::try_new`].
+    ///
+    /// # Panics
+    /// Never.
+    pub fn try_new(x: SVector<T, N>, p: SMatrix<T, N, N>) -> Result<Self, FilterError> {
+        check::finite(&x, Operand::State)?;
+        check::finite(&p, Operand::Covariance)?;
+        check::symmetric(&p, Operand::Covariance)?;
+        let ud = factor_ud(&p, true).map_err(|j| FilterError::NotPositiveDefinite {
+            operand: Operand::Covariance,
+            index: idx(j),
+        })?;
+        Ok(Self { x, ud })
+    }
+
+    /// The state estimate x.
+    pub fn state(&self) -> &SVector<T, N> {
+        &self.x
+    }
+
+    /// The factors, packed: U in the strict upper triangle, D on the diagonal.
+    pub fn factors(&self) -> &SMatrix<T, N, N> {
+        &self.ud
+    }
+
+    /// The diagonal factor D.
+    #[must_use]
+    pub fn d(&self) -> SVector<T, N> {
+        self.ud.diagonal()
+    }
+
+    /// The covariance U D U', exactly symmetric (upper triangle computed,
+    /// mirrored). O(n^3 / 3); for reports and checks, not the hot path.
+    #[must_use]
+    pub fn covariance(&self) -> SMatrix<T, N, N> {
+        let mut p = SMatrix::<T, N, N>::zeros();
+        for j in 0..N {
+            for i in 0..=j {
+                // sum over k >= j of U_ik D_k U_jk, with U_kk = 1.
+                let mut v = T::zero();
+                for k in j..N {
+                    let uik = if i == k { T::one() } else { self.ud[(i, k)] };
+                    let ujk = if j == k { T::one() } else { self.ud[(j, k)] };
+                    v += uik * self.ud[(k, k)] * ujk;
+                }
+                p[(i, j)] = v;
+                p[(j, i)] = v;
+            }
+        }
+        p
+    }
+
+    /// The name of the form, for reports.
+    pub fn form_name(&self) -> &'static str {
+        "u-d"
+    }
+
+    /// Linear predict: x = F x, P = F P F' + Q by Thornton's modified
+    /// weighted Gram-Schmidt on W = [F U | U_q], weights diag(D, D_q).
+    ///
+    /// # Errors
+    /// As [`crate::Kalman::predict`]; a Q whose U-D factorisation meets a
+    /// negative pivot is [`FilterError::NotPositiveDefinite`]. Nothing
+    /// changes on error.
+    ///
+    /// # Panics
+    /// Never.
+    pub fn predict(
+        &mut self,
+        f: &SMatrix<T, N, N>,
+        q: &SMatrix<T, N, N>,
+    ) -> Result<(), FilterError> {
+        check::finite(f, Operand::Transition)?;
+        check::noise(q, Operand::ProcessNoise, false)?;
+        let x = f * self.x;
+        let ud = self.time_update(f, q)?;
+        self.commit(x, ud)
+    }
+
+    /// Extended predict through a process model, as
+    /// [`crate::Kalman::predict_with`].
+    ///
+    /// # Errors
+    /// [`FilterError::InvalidTimeStep`] for a bad dt; otherwise as
+    /// [`UdKalman::predict`]. Nothing changes on error.
+    ///
+    /// # Panics
+    /// Never, unless the model's own functions panic.
+    pub fn predict_with<P: ProcessModel<T, N>>(
+        &mut self,
+        model: &P,
+        u: &P::Input,
+        dt: T,
+    ) -> Result<(), FilterError> {
+        if !(dt.finite() && dt > T::zero()) {
+            return Err(FilterError::InvalidTimeStep);
+        }
+        let f = model.jacobian(&self.x, u, dt);
+        check::finite(&f, Operand::Transition)?;
+        let q = model.noise(&self.x, u, dt);
+        check::noise(&q, Operand::ProcessNoise, false)?;
+        let mut x = model.transition(&self.x, u, dt);
+        check::finite(&x, Operand::Control)?;
+        model.normalize(&mut x);
+        let ud = self.time_update(&f, &q)?;
+        self.commit(x, ud)
+    }
+
+    fn time_update(
+        &self,
+        f: &SMatrix<T, N, N>,
+        q: &SMatrix<T, N, N>,
+    ) -> Result<SMatrix<T, N, N>, FilterError> {
+        let uq = factor_ud(q, false).map_err(|j| FilterError::NotPositiveDefinite {
+            operand: Operand::ProcessNoise,
+            index: idx(j),
+        })?;
+        // Rows of W: a = F U (n x n) and the n columns of U_q.
+        let mut a = SMatrix::<T, N, N>::zeros();
+        for i in 0..N {
+            for k in 0..N {
+                // (F U)_ik = F_ik + sum_{l<k} F_il U_lk
+                let mut v = f[(i, k)];
+                for l in 0..k {
+                    v += f[(i, l)] * self.ud[(l, k)];
+                }
+                a[(i, k)] = v;
+            }
+        }
+        let mut b = SMatrix::<T, N, N>::zeros();
+        for i in 0..N {
+            for k in 0..N {
+                b[(i, k)] = if i == k {
+                    T::one()
+                } else if i < k {
+                    uq[(i, k)]
+                } else {
+                    T::zero()
+                };
+            }
+        }
+        let mut out = SMatrix::<T, N, N>::zeros();
+        for j in (0..N).rev() {
+            // d_j = sum_k w_jk^2 Dw_k ; keep c_k = Dw_k w_jk.
+            let mut ca = SVector::<T, N>::zeros();
+            let mut cb = SVector::<T, N>::zeros();
+            let mut dj = T::zero();
+            for k in 0..N {
+                ca[k] = self.ud[(k, k)] * a[(j, k)];
+                cb[k] = uq[(k, k)] * b[(j, k)];
+                dj += a[(j, k)] * ca[k] + b[(j, k)] * cb[k];
+            }
+            if !(dj.finite() && dj > T::zero()) {
+                return Err(FilterError::CovarianceLost { index: idx(j) });
+            }
+            out[(j, j)] = dj;
+            for i in 0..j {
+                let mut v = T::zero();
+                for k in 0..N {
+                    v += a[(i, k)] * ca[k] + b[(i, k)] * cb[k];
+                }
+                let uij = v / dj;
+                out[(i, j)] = uij;
+                for k in 0..N {
+                    let (ajk, bjk) = (a[(j, k)], b[(j, k)]);
+                    a[(i, k)] -= uij * ajk;
+                    b[(i, k)] -= uij * bjk;
+                }
+            }
+        }
+        Ok(out)
+    }
+
+    /// Linear update z = H x + v, v ~ N(0, R): R is decorrelated by its LDL'
+    /// factors, then each component is applied by Bierman's scalar update.
+    ///
+    /// # Errors
+    /// As [`crate::Kalman::update`]. Nothing changes on error.
+    ///
+    /// # Panics
+    /// Never.
+    pub fn update<const M: usize>(
+        &mut self,
+        z: &SVector<T, M>,
+        h: &SMatrix<T, M, N>,
+        r: &SMatrix<T, M, M>,
+        gate: Option<T>,
+    ) -> Result<Outcome<T>, FilterError> {
+        check::finite(z, Operand::Measurement)?;
+        check::finite(h, Operand::MeasurementMatrix)?;
+        let nu = z - h * self.x;
+        self.update_innovation(nu, h, r, gate, |_| {})
+    }
+
+    /// Extended update through a measurement model, as
+    /// [`crate::Kalman::update_with`].
+    ///
+    /// # Errors
+    /// As [`crate::Kalman::update_with`]. Nothing changes on error.
+    ///
+    /// # Panics
+    /// Never, unless the model's own functions panic.
+    pub fn update_with<Mm: MeasurementModel<T, N, M>, const M: usize>(
+        &mut self,
+        model: &Mm,
+        z: &SVector<T, M>,
+        gate: Option<T>,
+    ) -> Result<Outcome<T>, FilterError> {
+        check::finite(z, Operand::Measurement)?;
+        let predicted = model.predict(&self.x);
+        check::finite(&predicted, Operand::Innovation)?;
+        let nu = model.residual(z, &predicted);
+        let h = model.jacobian(&self.x);
+        check::finite(&h, Operand::MeasurementMatrix)?;
+        let r = model.noise(&self.x);
+        self.update_innovation(nu, &h, &r, gate, |x| model.normalize(x))
+    }
+
+    /// Update with uncorrelated noise (variances `r`), component by
+    /// component, as [`crate::Kalman::update_sequential`].
+    ///
+    /// # Errors
+    /// As [`crate::Kalman::update_sequential`]. Nothing changes on error.
+    ///
+    /// # Panics
+    /// Never.
+    pub fn update_sequential<const M: usize>(
+        &mut self,
+        z: &SVector<T, M>,
+        h: &SMatrix<T, M, N>,
+        r: &SVector<T, M>,
+        gate: Option<T>,
+    ) -> Result<Outcome<T>, FilterError> {
+        check::finite(z, Operand::Measurement)?;
+        check::finite(h, Operand::MeasurementMatrix)?;
+        let nu = z - h * self.x;
+        let r = SMatrix::<T, M, M>::from_diagonal(r);
+        self.update_innovation(nu, h, &r, gate, |_| {})
+    }
+
+    fn update_innovation<const M: usize>(
+        &mut self,
+        nu: SVector<T, M>,
+        h: &SMatrix<T, M, N>,
+        r: &SMatrix<T, M, M>,
+        gate: Option<T>,
+        normalize: impl FnOnce(&mut SVector<T, N>),
+    ) -> Result<Outcome<T>, FilterError> {
+        check::finite(&nu, Operand::Innovation)?;
+        check::finite(r, Operand::MeasurementNoise)?;
+        check::symmetric(r, Operand::MeasurementNoise)?;
+        check::gate(gate)?;
+        let rl = Ldl::factor(r).map_err(|j| FilterError::NotPositiveDefinite {
+            operand: Operand::MeasurementNoise,
+            index: idx(j),
+        })?;
+        // Decorrelate: with R = L D L', use L^-1 H, L^-1 nu and variances D.
+        let (ht, nut) = rl.decorrelate(h, &nu);
+        let mut x = self.x;
+        let mut ud = self.ud;
+        let mut nis = T::zero();
+        for c in 0..M {
+            let hc = SVector::<T, N>::from_fn(|i, _| ht[(c, i)]);
+            // The sequential innovation against the state updated so far.
+            let nuc = nut[c] - hc.dot(&(x - self.x));
+            let (k, s) = bierman(&mut ud, &hc, rl.diagonal()[c])
+                .map_err(|_| FilterError::SingularInnovation { pivot: idx(c) })?;
+            nis += nuc * nuc / s;
+            x += k * nuc;
+        }
+        if !nis.finite() {
+            return Err(FilterError::NonFinite(Operand::Innovation));
+        }
+        if let Some(g) = gate
+            && nis > g
+        {
+            return Ok(Outcome::Gated { nis });
+        }
+        normalize(&mut x);
+        self.commit(x, ud)?;
+        Ok(Outcome::Applied { nis })
+    }
+
+    fn commit(&mut self, x: SVector<T, N>, ud: SMatrix<T, N, N>) -> Result<(), FilterError> {
+        if !x.iter().all(|v| v.finite()) {
+            return Err(FilterError::NonFinite(Operand::State));
+        }
+        for j in 0..N {
+            let d = ud[(j, j)];
+            if !(d.finite() && d > T::zero()) {
+                return Err(FilterError::CovarianceLost { index: idx(j) });
+            }
+        }
+        if !ud.iter().all(|v| v.finite()) {
+            return Err(FilterError::CovarianceLost { index: 0 });
+        }
+        self.x = x;
+        self.ud = ud;
+        Ok(())
+    }
+}
+
+/// Bierman's scalar measurement update of packed U-D factors in place, for
+/// row `h` and noise variance `r`. Returns the gain and the innovation
+/// variance s = h P h' + r.
+fn bierman<T: Scalar, const N: usize>(
+    ud: &mut SMatrix<T, N, N>,
+    h: &SVector<T, N>,
+    r: T,
+) -> Result<(SVector<T, N>, T), ()> {
+    // f = U' h, v = D f.
+    let mut f = SVector::<T, N>::zeros();
+    for j in 0..N {
+        let mut s = h[j];
+        for i in 0..j {
+            s += ud[(i, j)] * h[i];
+        }
+        f[j] = s;
+    }
+    let mut v = SVector::<T, N>::zeros();
+    for j in 0..N {
+        v[j] = ud[(j, j)] * f[j];
+    }
+    let mut b = SVector::<T, N>::zeros();
+    let mut alpha = r;
+    for j in 0..N {
+        let a0 = alpha;
+        alpha += f[j] * v[j];
+        if !(alpha.finite() && alpha > T::zero()) {
+            return Err(());
+        }
+        ud[(j, j)] = ud[(j, j)] * a0 / alpha;
+        b[j] = v[j];
+        let lambda = -f[j] / a0;
+        for i in 0..j {
+            let t = ud[(i, j)];
+            ud[(i, j)] = t + b[i] * lambda;
+            b[i] += t * v[j];
+        }
+    }
+    Ok((b / alpha, alpha))
+}

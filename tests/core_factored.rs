@@ -1,0 +1,185 @@
+//! The U-D factored filter and the constant-gain filter against published
+//! behaviour and closed forms.
+
+use cairn_core::{Conventional, CovarianceForm, FilterError, Joseph, Kalman, SteadyGain, UdKalman};
+use nalgebra::{Matrix1, Matrix2, Matrix2x3, Matrix3, SMatrix, SVector, Vector1, Vector2, Vector3};
+use proptest::prelude::*;
+
+/// The exact posterior of the ill-conditioned example as d -> 0 (Dyer and
+/// McReynolds 1969, as reproduced by Grewal and Andrews; matrices from
+/// memory, limit values computed).
+fn dyer_limit() -> Matrix3<f64> {
+    Matrix3::new(
+        0.625, -0.375, -0.25, -0.375, 0.625, -0.25, -0.25, -0.25, 0.5,
+    )
+}
+
+fn dyer_h(d: f32) -> Matrix2x3<f32> {
+    Matrix2x3::new(1.0, 1.0, 1.0, 1.0, 1.0, 1.0 + d)
+}
+
+fn rel(p: &Matrix3<f64>) -> f64 {
+    (p - dyer_limit()).norm() / dyer_limit().norm()
+}
+
+fn covariance_form<F: CovarianceForm>(d: f32) -> Result<Matrix3<f64>, FilterError> {
+    let mut kf = Kalman::<f32, 3, F>::try_new(Vector3::zeros(), Matrix3::identity())?;
+    let _ = kf.update(
+        &Vector2::zeros(),
+        &dyer_h(d),
+        &(Matrix2::identity() * (d * d)),
+        None,
+    )?;
+    Ok(kf.covariance().map(f64::from))
+}
+
+#[test]
+fn ud_survives_the_ill_conditioned_example_where_covariance_forms_break() {
+    // Grewal and Andrews (implementation-methods chapter), after Dyer and
+    // McReynolds (1969): with d near sqrt(eps_f32) ~ 1e-4 the conventional
+    // and Joseph single-precision updates lose the answer, while Bierman's
+    // U-D update stays accurate until d nears eps (REFERENCES: f32 at
+    // d = 1e-5 has a relative error of about 5e-4, computed).
+    let d = 1e-4_f32;
+    let mut ud = UdKalman::<f32, 3>::try_new(Vector3::zeros(), Matrix3::identity()).unwrap();
+    let _ = ud
+        .update(
+            &Vector2::zeros(),
+            &dyer_h(d),
+            &(Matrix2::identity() * (d * d)),
+            None,
+        )
+        .unwrap();
+    let p_ud = ud.covariance().map(f64::from);
+    assert!(rel(&p_ud) < 5e-3, "U-D relative error {}", rel(&p_ud));
+    assert!(ud.d().iter().all(|&v| v > 0.0));
+    for (name, p) in [
+        ("conventional", covariance_form::<Conventional>(d)),
+        ("joseph", covariance_form::<Joseph>(d)),
+    ] {
+        match p {
+            Err(_) => {}
+            Ok(p) => {
+                let broken = rel(&p) > 0.1 || p.symmetric_eigenvalues().min() <= 0.0;
+                assert!(
+                    broken,
+                    "{name} unexpectedly accurate: relative error {}",
+                    rel(&p)
+                );
+            }
+        }
+    }
+    // At d = 1e-1 every form is accurate to the O(d) term of the limit.
+    for p in [
+        covariance_form::<Conventional>(0.1).unwrap(),
+        covariance_form::<Joseph>(0.1).unwrap(),
+    ] {
+        assert!(rel(&p) < 0.1);
+    }
+}
+
+const N: usize = 4;
+
+fn spd(a: Vec<f64>, floor: f64) -> SMatrix<f64, N, N> {
+    let a = SMatrix::<f64, N, N>::from_iterator(a);
+    a * a.transpose() + SMatrix::<f64, N, N>::identity() * floor
+}
+
+proptest! {
+    #![proptest_config(ProptestConfig::with_cases(48))]
+
+    #[test]
+    fn ud_matches_joseph_in_f64(
+        f in prop::collection::vec(-1.0f64..1.0, N * N),
+        q in prop::collection::vec(-1.0f64..1.0, N * N),
+        p in prop::collection::vec(-1.0f64..1.0, N * N),
+        h in prop::collection::vec(-1.0f64..1.0, 2 * N),
+        z in prop::collection::vec(-2.0f64..2.0, 2),
+    ) {
+        // Same posterior in exact arithmetic (Bierman 1977; Thornton and
+        // Bierman 1977): agreement to rounding in f64.
+        let f = SMatrix::<f64, N, N>::identity() + SMatrix::from_iterator(f) * 0.2;
+        let q = spd(q, 0.01) * 0.1;
+        let p0 = spd(p, 0.1);
+        let h = SMatrix::<f64, 2, N>::from_iterator(h);
+        let r = Matrix2::new(0.3, 0.1, 0.1, 0.2);
+        let z = Vector2::from_iterator(z);
+        let mut j = Kalman::<f64, N, Joseph>::try_new(SVector::zeros(), p0).unwrap();
+        let mut u = UdKalman::<f64, N>::try_new(SVector::zeros(), p0).unwrap();
+        for _ in 0..4 {
+            j.predict(&f, &q).unwrap();
+            u.predict(&f, &q).unwrap();
+            let a = j.update(&z, &h, &r, None).unwrap();
+            let b = u.update(&z, &h, &r, None).unwrap();
+            prop_assert!((a.nis() - b.nis()).abs() < 1e-9 * a.nis().max(1.0));
+        }
+        let pj = j.covariance();
+        let pu = u.covariance();
+        prop_assert!((pj - pu).norm() / pj.norm() < 1e-9);
+        prop_assert!((j.state() - u.state()).norm() < 1e-9 * j.state().norm().max(1.0));
+    }
+}
+
+#[test]
+fn ud_refusals_change_nothing() {
+    let mut u =
+        UdKalman::<f32, 3>::try_new(Vector3::new(1.0, 2.0, 3.0), Matrix3::identity()).unwrap();
+    let before = u;
+    let h = Matrix2x3::new(1.0, 0.0, 0.0, 0.0, 1.0, 0.0);
+    assert!(
+        u.update(&Vector2::new(f32::NAN, 0.0), &h, &Matrix2::identity(), None)
+            .is_err()
+    );
+    assert!(
+        u.update(&Vector2::zeros(), &h, &(Matrix2::identity() * -1.0), None)
+            .is_err()
+    );
+    assert!(
+        u.predict(&Matrix3::identity(), &(Matrix3::identity() * -1.0))
+            .is_err()
+    );
+    let out = u
+        .update(
+            &Vector2::new(1e6, 0.0),
+            &h,
+            &Matrix2::identity(),
+            Some(9.21),
+        )
+        .unwrap();
+    assert!(!out.is_applied());
+    assert_eq!(u, before);
+}
+
+#[test]
+fn steady_gain_filter_uses_the_closed_form_gain() {
+    // Random walk in white noise, q = 0.01, r = 1: steady prior P = 0.1051249,
+    // K = 0.0951249 (closed form, REFERENCES "computed"). The constant-gain
+    // filter's posterior estimate after one update is x + K (z - x).
+    let (q, r) = (0.01_f64, 1.0_f64);
+    let p = (q + (q * q + 4.0 * q * r).sqrt()) / 2.0;
+    let k = p / (p + r);
+    assert!((k - 0.095_124_9).abs() < 1e-7);
+    let mut sg = SteadyGain::<f64, 1, 1>::try_new(
+        Vector1::new(2.0),
+        Matrix1::identity(),
+        Matrix1::identity(),
+        Matrix1::new(k),
+        &Matrix1::new(p + r),
+    )
+    .unwrap();
+    sg.predict().unwrap();
+    let out = sg.update(&Vector1::new(3.0), Some(6.63)).unwrap();
+    assert!(out.is_applied());
+    assert!((sg.state()[0] - (2.0 + k)).abs() < 1e-15);
+    assert!((out.nis() - 1.0 / (p + r)).abs() < 1e-15);
+    assert!(
+        SteadyGain::<f64, 1, 1>::try_new(
+            Vector1::zeros(),
+            Matrix1::identity(),
+            Matrix1::identity(),
+            Matrix1::new(k),
+            &Matrix1::new(0.0)
+        )
+        .is_err()
+    );
+}
