@@ -1,0 +1,169 @@
+//! The pose-filter run shared by the target and the host: an invented warehouse
+//! tug ("Wren") with 200 Hz wheel odometry, 5 Hz beacon fixes and a 10 Hz compass.
+//!
+//! Every input is made from a 32-bit linear congruential generator by exact
+//! integer-to-float conversions and IEEE-754 arithmetic, so the host and the
+//! Cortex-M4F feed the filter the same f32 bits. This file depends only on
+//! `cairn_core` and `nalgebra`: the host test includes it by path.
+
+use cairn_core::pose::{HeadingFix, Odometry, PlanarOdometry, PositionFix};
+use cairn_core::{Joseph, Kalman, Outcome, Scalar, wrap_angle};
+use nalgebra::{Matrix2, Matrix3, Vector1, Vector2, Vector3};
+
+/// Steps of the bit-exactness run (20 s of odometry at 200 Hz).
+pub const STEPS: u32 = 4000;
+
+/// Odometry period, s.
+pub const DT: f32 = 0.005;
+
+/// A 32-bit linear congruential generator with the multiplier and increment
+/// published in Press et al., *Numerical Recipes* (2nd ed., 1992), ch. 7.1.
+pub struct Lcg(pub u32);
+
+impl Lcg {
+    /// The next raw 32-bit value.
+    pub fn next_u32(&mut self) -> u32 {
+        self.0 = self.0.wrapping_mul(1_664_525).wrapping_add(1_013_904_223);
+        self.0
+    }
+
+    /// A value in [-1, 1): the top 24 bits as a signed integer times 2^-23,
+    /// exact in f32 on every IEEE-754 machine.
+    pub fn signed_unit(&mut self) -> f32 {
+        let top = (self.next_u32() >> 8) as i32 - (1 << 23);
+        top as f32 * (1.0 / 8_388_608.0)
+    }
+}
+
+/// The filter's models for the tug.
+pub struct Models {
+    /// Odometry process model.
+    pub motion: PlanarOdometry<f32>,
+    /// Beacon position fix.
+    pub beacon: PositionFix<f32>,
+    /// Compass heading fix.
+    pub compass: HeadingFix<f32>,
+}
+
+/// The tug's models: odometry noise 0.02 m/s and 0.01 rad/s per sample,
+/// beacon 0.05 m, compass 0.02 rad (standard deviations; invented figures).
+pub fn models() -> Models {
+    Models {
+        motion: PlanarOdometry {
+            speed_var: 4e-4,
+            yaw_rate_var: 1e-4,
+            heading_drift_var: 1e-8,
+        },
+        beacon: PositionFix {
+            r: Matrix2::from_diagonal_element(2.5e-3),
+        },
+        compass: HeadingFix { var: 4e-4 },
+    }
+}
+
+/// The filter at the start of the run.
+pub fn initial_filter() -> Kalman<f32, 3, Joseph> {
+    Kalman::new_unchecked(
+        Vector3::zeros(),
+        Matrix3::from_diagonal(&Vector3::new(0.01, 0.01, 1e-3)),
+    )
+}
+
+/// What one run produced: the final covariance and state as bit patterns,
+/// a hash over the covariance bits after every step, and the outcome counts.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct Summary {
+    /// Final covariance P, column-major, `f32::to_bits`.
+    pub p: [u32; 9],
+    /// Final state x, `f32::to_bits`.
+    pub x: [u32; 3],
+    /// FNV-1a (Fowler, Noll and Vo; common practice) over the bits of P
+    /// after every step, in column-major order.
+    pub trace: u32,
+    /// Fixes applied.
+    pub applied: u32,
+    /// Fixes rejected by the gate.
+    pub gated: u32,
+    /// Operations refused with an error (expected: none).
+    pub refused: u32,
+}
+
+fn fnv1a(mut h: u32, word: u32) -> u32 {
+    for byte in word.to_le_bytes() {
+        h ^= u32::from(byte);
+        h = h.wrapping_mul(0x0100_0193);
+    }
+    h
+}
+
+/// Runs the tug for `steps` odometry steps and summarises the filter.
+pub fn run(steps: u32) -> Summary {
+    let m = models();
+    let mut filter = initial_filter();
+    let mut noise = Lcg(0x00c0_ffee);
+    let mut truth = Vector3::<f32>::zeros();
+    let mut summary = Summary {
+        p: [0; 9],
+        x: [0; 3],
+        trace: 0x811c_9dc5,
+        applied: 0,
+        gated: 0,
+        refused: 0,
+    };
+    let tally = |r: Result<Outcome<f32>, cairn_core::FilterError>, s: &mut Summary| match r {
+        Ok(o) if o.is_applied() => s.applied += 1,
+        Ok(_) => s.gated += 1,
+        Err(_) => s.refused += 1,
+    };
+    for k in 0..steps {
+        // Speed steps through 0.4, 0.6, 0.8 m/s every 2.5 s; the yaw rate
+        // is a triangle wave of +-0.3 rad/s with a 10 s period.
+        let speed = 0.4 + 0.2 * ((k / 500) % 3) as f32;
+        let phase = (k % 2000) as f32 * (1.0 / 500.0);
+        let yaw_rate = 0.3
+            * if phase < 2.0 {
+                phase - 1.0
+            } else {
+                3.0 - phase
+            };
+        let (s, c) = (truth[2] + yaw_rate * DT * 0.5).sin_cos_rad();
+        truth = Vector3::new(
+            truth[0] + speed * DT * c,
+            truth[1] + speed * DT * s,
+            wrap_angle(truth[2] + yaw_rate * DT),
+        );
+        let odo = Odometry {
+            speed: speed + 0.02 * noise.signed_unit(),
+            yaw_rate: yaw_rate + 0.01 * noise.signed_unit(),
+        };
+        if filter.predict_with(&m.motion, &odo, DT).is_err() {
+            summary.refused += 1;
+        }
+        if k % 40 == 39 {
+            let z = Vector2::new(
+                truth[0] + 0.05 * noise.signed_unit(),
+                truth[1] + 0.05 * noise.signed_unit(),
+            );
+            // 13.82: chi-square 0.999 quantile, 2 dof (common practice).
+            tally(filter.update_with(&m.beacon, &z, Some(13.82)), &mut summary);
+        }
+        if k % 20 == 19 {
+            let z = Vector1::new(wrap_angle(truth[2] + 0.02 * noise.signed_unit()));
+            // 10.83: chi-square 0.999 quantile, 1 dof (common practice).
+            tally(
+                filter.update_with(&m.compass, &z, Some(10.83)),
+                &mut summary,
+            );
+        }
+        for v in filter.covariance().iter() {
+            summary.trace = fnv1a(summary.trace, v.to_bits());
+        }
+    }
+    for (dst, v) in summary.p.iter_mut().zip(filter.covariance().iter()) {
+        *dst = v.to_bits();
+    }
+    for (dst, v) in summary.x.iter_mut().zip(filter.state().iter()) {
+        *dst = v.to_bits();
+    }
+    summary
+}
