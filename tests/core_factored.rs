@@ -183,3 +183,33 @@ fn steady_gain_filter_uses_the_closed_form_gain() {
         .is_err()
     );
 }
+
+/// Runs a short linear scenario through the form-agnostic trait.
+fn through_trait<E: cairn_core::Estimator<f64, 3>>() -> Matrix3<f64> {
+    let mut e = E::try_new(Vector3::zeros(), Matrix3::identity()).unwrap();
+    let f = Matrix3::new(1.0, 0.1, 0.0, 0.0, 1.0, 0.1, 0.0, 0.0, 1.0);
+    let h = Matrix2x3::new(1.0, 0.0, 0.0, 0.0, 0.0, 1.0);
+    for _ in 0..50 {
+        e.predict(&f, &(Matrix3::identity() * 1e-3)).unwrap();
+        let _ = e
+            .update(
+                &Vector2::new(0.1, -0.1),
+                &h,
+                &Matrix2::new(0.1, 0.02, 0.02, 0.2),
+                None,
+            )
+            .unwrap();
+    }
+    e.covariance_matrix()
+}
+
+#[test]
+fn every_form_behind_the_estimator_trait_gives_the_same_posterior() {
+    // Joseph, conventional and U-D are the same posterior in exact arithmetic
+    // (Bierman 1977): in f64 they agree to rounding on a benign model.
+    let j = through_trait::<Kalman<f64, 3, Joseph>>();
+    let c = through_trait::<Kalman<f64, 3, Conventional>>();
+    let u = through_trait::<UdKalman<f64, 3>>();
+    assert!((j - c).norm() / j.norm() < 1e-12);
+    assert!((j - u).norm() / j.norm() < 1e-12);
+}

@@ -52,6 +52,7 @@
 
 mod check;
 mod error;
+mod estimator;
 mod form;
 mod health;
 mod kalman;
@@ -63,6 +64,7 @@ mod steady;
 mod ud;
 
 pub use error::{FilterError, Operand, Outcome};
+pub use estimator::Estimator;
 pub use form::{Conventional, CovarianceForm, Joseph};
 pub use health::{HealthMonitor, HealthReport, NisBand, wilson_hilferty_bounds};
 pub use kalman::Kalman;
