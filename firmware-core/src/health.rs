@@ -6,6 +6,7 @@ use nalgebra::SMatrix;
 
 use crate::error::Outcome;
 use crate::scalar::Scalar;
+use crate::ud::UdKalman;
 
 /// Where the windowed mean NIS lies against its chi-square interval.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -39,7 +40,7 @@ pub struct HealthReport<T> {
     pub nis: NisBand,
     /// Largest |P_ij - P_ji| relative to sqrt(P_ii P_jj).
     pub asymmetry: T,
-    /// Smallest diagonal entry of P.
+    /// Smallest diagonal entry of P (for a factored filter, the smallest D).
     pub min_variance: T,
     /// `true` when NIS is consistent (or too few to judge), P is symmetric
     /// within tolerance and every variance is positive and finite.
@@ -101,6 +102,27 @@ impl<T: Scalar, const W: usize> HealthMonitor<T, W> {
     /// Judges the window and the covariance `p`.
     #[must_use]
     pub fn assess<const N: usize>(&self, p: &SMatrix<T, N, N>) -> HealthReport<T> {
+        let (asymmetry, min_variance, finite) = covariance_sanity(p);
+        self.judge(asymmetry, min_variance, finite)
+    }
+
+    /// Judges the window and a U-D factored filter. Definiteness is read
+    /// from D (every entry positive and finite), so `min_variance` reports
+    /// the smallest D; the factors carry no asymmetry.
+    #[must_use]
+    pub fn assess_factored<const N: usize>(&self, filter: &UdKalman<T, N>) -> HealthReport<T> {
+        let d = filter.d();
+        let finite = filter.factors().iter().all(|v| v.finite());
+        let min_d = d
+            .iter()
+            .copied()
+            .fold(T::max_value().unwrap_or_else(T::one), |a, b| {
+                if b < a || !b.finite() { b } else { a }
+            });
+        self.judge(T::zero(), min_d, finite)
+    }
+
+    fn judge(&self, asymmetry: T, min_variance: T, finite: bool) -> HealthReport<T> {
         let mut sum = T::zero();
         let mut dof: u32 = 0;
         for &(nis, d) in self.window.oldest_ordered() {
@@ -123,25 +145,6 @@ impl<T: Scalar, const W: usize> HealthMonitor<T, W> {
             };
             (mean, lo, hi, band)
         };
-        let mut asymmetry = T::zero();
-        let mut min_variance = T::max_value().unwrap_or_else(T::one);
-        let mut finite = true;
-        for j in 0..N {
-            let d = p[(j, j)];
-            finite &= d.finite();
-            if d < min_variance || !d.finite() {
-                min_variance = d;
-            }
-            for i in 0..j {
-                let scale = (p[(i, i)] * p[(j, j)]).abs().sqrt();
-                if scale > T::zero() {
-                    let a = (p[(i, j)] - p[(j, i)]).abs() / scale;
-                    if a > asymmetry || !a.finite() {
-                        asymmetry = a;
-                    }
-                }
-            }
-        }
         let healthy = finite
             && min_variance > T::zero()
             && asymmetry <= self.asymmetry_limit
@@ -163,6 +166,31 @@ impl<T: Scalar, const W: usize> Default for HealthMonitor<T, W> {
     fn default() -> Self {
         Self::new()
     }
+}
+
+/// Largest relative asymmetry, smallest diagonal entry, and whether every
+/// diagonal entry is finite.
+fn covariance_sanity<T: Scalar, const N: usize>(p: &SMatrix<T, N, N>) -> (T, T, bool) {
+    let mut asymmetry = T::zero();
+    let mut min_variance = T::max_value().unwrap_or_else(T::one);
+    let mut finite = true;
+    for j in 0..N {
+        let d = p[(j, j)];
+        finite &= d.finite();
+        if d < min_variance || !d.finite() {
+            min_variance = d;
+        }
+        for i in 0..j {
+            let scale = (p[(i, i)] * p[(j, j)]).abs().sqrt();
+            if scale > T::zero() {
+                let a = (p[(i, j)] - p[(j, i)]).abs() / scale;
+                if a > asymmetry || !a.finite() {
+                    asymmetry = a;
+                }
+            }
+        }
+    }
+    (asymmetry, min_variance, finite)
 }
 
 /// Two-sided bounds for chi-square(k) / k at standard normal quantile `z`:
@@ -212,6 +240,8 @@ mod tests {
             m.record_nis(1.0, 1);
         }
         assert!(m.assess(&p).healthy);
+        let ud = UdKalman::<f64, 3>::try_new(nalgebra::Vector3::zeros(), p).unwrap();
+        assert!(m.assess_factored(&ud).healthy);
         let mut bad = p;
         bad[(2, 2)] = -1e-9;
         assert!(!m.assess(&bad).healthy);
