@@ -7,9 +7,9 @@ use crate::scalar::Scalar;
 
 /// How the posterior covariance is formed from the prior and the gain.
 ///
-/// Implementations receive B = P H' (n x m), the gain K = B S^-1 and R, and
-/// return the full symmetric posterior. They must not form I - KH as an
-/// n x n matrix.
+/// Implementations receive B = P H' (n x m), the gain K = B S^-1, R and the
+/// innovation covariance S = H P H' + R, and return the full symmetric
+/// posterior. They must not form I - KH as an n x n matrix.
 pub trait CovarianceForm {
     /// A short name for reports.
     const NAME: &'static str;
@@ -21,25 +21,30 @@ pub trait CovarianceForm {
         b: &SMatrix<T, N, M>,
         k: &SMatrix<T, N, M>,
         r: &SMatrix<T, M, M>,
+        s: &SMatrix<T, M, M>,
     ) -> SMatrix<T, N, N>;
 
     /// Posterior covariance for one scalar measurement with row `h`,
-    /// `b = P h'`, gain `k` and noise variance `r`.
+    /// `b = P h'`, gain `k`, noise variance `r` and innovation variance `s`.
     fn posterior_scalar<T: Scalar, const N: usize>(
         p: &SMatrix<T, N, N>,
         h: &SVector<T, N>,
         b: &SVector<T, N>,
         k: &SVector<T, N>,
         r: T,
+        s: T,
     ) -> SMatrix<T, N, N>;
 }
 
 /// Joseph's stabilised form, P+ = (I - KH) P (I - KH)' + K R K'
 /// (Bucy and Joseph, 1968).
 ///
-/// Evaluated as W = P - K (H P); A = W H'; P+ = W - A K' + (K R) K', with
-/// only the upper triangle of the last sum computed and mirrored: about
-/// 2.5 n^2 m + n m^2 multiply-adds. First-order errors in K do not reach P+.
+/// Expanded, the form is P - K B' - B K' + K S K' for any gain K, which this
+/// implementation evaluates as P - K B' + D K' with D = K S - B: D is the
+/// residual of the gain solve, so the part of a gain error that enters the
+/// conventional form to first order is cancelled here. Only the upper
+/// triangle is computed and mirrored: about n^2 m + n m^2 multiply-adds
+/// beyond the shared work, never the O(n^3) product with I - KH.
 #[derive(Debug, Clone, Copy, Default, PartialEq, Eq)]
 pub struct Joseph;
 
@@ -55,43 +60,30 @@ impl CovarianceForm for Joseph {
     #[inline]
     fn posterior<T: Scalar, const N: usize, const M: usize>(
         p: &SMatrix<T, N, N>,
-        h: &SMatrix<T, M, N>,
+        _h: &SMatrix<T, M, N>,
         b: &SMatrix<T, N, M>,
         k: &SMatrix<T, N, M>,
-        r: &SMatrix<T, M, M>,
+        _r: &SMatrix<T, M, M>,
+        s: &SMatrix<T, M, M>,
     ) -> SMatrix<T, N, N> {
-        // W = P - K B' (B' = H P since P is symmetric).
-        let mut w = *p;
-        for j in 0..N {
-            for i in 0..N {
-                let mut v = w[(i, j)];
-                for c in 0..M {
-                    v -= k[(i, c)] * b[(j, c)];
-                }
-                w[(i, j)] = v;
-            }
-        }
-        // D = K R - W H'  (n x m).
+        // D = K S - B (n x m).
         let mut d = SMatrix::<T, N, M>::zeros();
         for c in 0..M {
             for i in 0..N {
-                let mut v = T::zero();
+                let mut v = -b[(i, c)];
                 for e in 0..M {
-                    v += k[(i, e)] * r[(e, c)];
-                }
-                for e in 0..N {
-                    v -= w[(i, e)] * h[(c, e)];
+                    v += k[(i, e)] * s[(e, c)];
                 }
                 d[(i, c)] = v;
             }
         }
-        // P+ = W + D K', upper triangle, mirrored.
-        let mut out = w;
+        // P+ = P - K B' + D K', upper triangle, mirrored.
+        let mut out = *p;
         for j in 0..N {
             for i in 0..=j {
-                let mut v = w[(i, j)];
+                let mut v = p[(i, j)];
                 for c in 0..M {
-                    v += d[(i, c)] * k[(j, c)];
+                    v += d[(i, c)] * k[(j, c)] - k[(i, c)] * b[(j, c)];
                 }
                 out[(i, j)] = v;
                 out[(j, i)] = v;
@@ -103,29 +95,17 @@ impl CovarianceForm for Joseph {
     #[inline]
     fn posterior_scalar<T: Scalar, const N: usize>(
         p: &SMatrix<T, N, N>,
-        h: &SVector<T, N>,
+        _h: &SVector<T, N>,
         b: &SVector<T, N>,
         k: &SVector<T, N>,
-        r: T,
+        _r: T,
+        s: T,
     ) -> SMatrix<T, N, N> {
-        let mut w = *p;
-        for j in 0..N {
-            for i in 0..N {
-                w[(i, j)] -= k[i] * b[j];
-            }
-        }
-        let mut d = SVector::<T, N>::zeros();
-        for i in 0..N {
-            let mut v = r * k[i];
-            for e in 0..N {
-                v -= w[(i, e)] * h[e];
-            }
-            d[i] = v;
-        }
-        let mut out = w;
+        let mut out = *p;
         for j in 0..N {
             for i in 0..=j {
-                let v = w[(i, j)] + d[i] * k[j];
+                let d = k[i] * s - b[i];
+                let v = p[(i, j)] + d * k[j] - k[i] * b[j];
                 out[(i, j)] = v;
                 out[(j, i)] = v;
             }
@@ -144,6 +124,7 @@ impl CovarianceForm for Conventional {
         b: &SMatrix<T, N, M>,
         k: &SMatrix<T, N, M>,
         _r: &SMatrix<T, M, M>,
+        _s: &SMatrix<T, M, M>,
     ) -> SMatrix<T, N, N> {
         let mut out = *p;
         for j in 0..N {
@@ -166,6 +147,7 @@ impl CovarianceForm for Conventional {
         b: &SVector<T, N>,
         k: &SVector<T, N>,
         _r: T,
+        _s: T,
     ) -> SMatrix<T, N, N> {
         let mut out = *p;
         for j in 0..N {

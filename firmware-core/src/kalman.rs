@@ -269,7 +269,7 @@ impl<T: Scalar, const N: usize, F: CovarianceForm> Kalman<T, N, F> {
             nis += nu * nu / s;
             let k = b / s;
             x += k * nu;
-            p = F::posterior_scalar(&p, &hi, &b, &k, r[i]);
+            p = F::posterior_scalar(&p, &hi, &b, &k, r[i], s);
         }
         if !nis.finite() {
             return Err(FilterError::NonFinite(Operand::Innovation));
@@ -322,7 +322,7 @@ impl<T: Scalar, const N: usize, F: CovarianceForm> Kalman<T, N, F> {
         }
         let k = ldl.right_divide(&b);
         let x = self.x + k * nu;
-        let p = F::posterior(&self.p, h, &b, &k, r);
+        let p = F::posterior(&self.p, h, &b, &k, r, &s);
         Ok(Weighed::Apply { x, p, nis })
     }
 
