@@ -6,6 +6,8 @@
 //! are for callers that already know the shapes and panic on a mismatch,
 //! like nalgebra's dynamic matrices.
 
+#![allow(clippy::needless_range_loop)] // index loops read like the formulas
+
 use core::ops::{Add, Index, IndexMut, Mul, Sub};
 
 use nalgebra::{DMatrix, DVector};
