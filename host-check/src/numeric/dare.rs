@@ -260,3 +260,162 @@ pub fn spectral_radius(m: &DMatrix<f64>) -> Result<f64, NumericError> {
         .map(|z| z.norm())
         .fold(0.0, f64::max))
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn random_walk(q: f64, r: f64) -> Steady {
+        solve(&dmat![1.0], &dmat![1.0], &dmat![q], &dmat![r]).unwrap()
+    }
+
+    #[test]
+    fn random_walk_in_white_noise() {
+        // Closed form (REFERENCES.md, computed): P = (q + sqrt(q^2 + 4qr))/2,
+        // K = q/P, posterior = P - q; and the tabulated values.
+        for &(q, r, p_tab, k_tab, tol) in &[
+            (1.0, 1.0, 1.618_034_0, 0.618_034_0, 1e-7),
+            (0.01, 1.0, 0.105_124_9, 0.095_124_9, 1e-7),
+            (1e-4, 0.25, 5.050_25e-3, 0.019_801, 1e-6),
+        ] {
+            let s = random_walk(q, r);
+            let p = (q + (q * q + 4.0 * q * r as f64).sqrt()) / 2.0;
+            assert!(
+                ((s.prior[(0, 0)] - p) / p).abs() < 1e-14,
+                "{q} {r}: {:?}",
+                s
+            );
+            assert!(((s.gain[(0, 0)] - q / p) / (q / p)).abs() < 1e-14);
+            assert!(((s.posterior[(0, 0)] - (p - q)) / (p - q)).abs() < 1e-13);
+            assert!((s.prior[(0, 0)] - p_tab).abs() < tol * p_tab.max(1.0));
+            assert!((s.gain[(0, 0)] - k_tab).abs() < tol * 10.0);
+            assert!(s.residual < 1e-25, "{}", s.residual);
+        }
+    }
+
+    fn kalata(lambda: f64) -> (f64, f64) {
+        // Kalata (1984), tracking index (REFERENCES.md; expressions from memory).
+        let r = (lambda * lambda + 8.0 * lambda).sqrt();
+        let alpha = -(lambda * lambda + 8.0 * lambda - (lambda + 4.0) * r) / 8.0;
+        let beta = (lambda * lambda + 4.0 * lambda - lambda * r) / 4.0;
+        (alpha, beta)
+    }
+
+    #[test]
+    fn alpha_beta_gains_match_kalata() {
+        // Discrete white-noise-acceleration model: F = [[1,T],[0,1]],
+        // Gamma = [T^2/2, T]', Q = sigma_w^2 Gamma Gamma', H = [1, 0],
+        // R = sigma_v^2; lambda = sigma_w T^2 / sigma_v; K = [alpha, beta/T]
+        // (Kalata 1984, values computed in REFERENCES.md).
+        let table = [
+            (0.1, 0.36, 0.08),
+            (0.5, 0.628_37, 0.304_81),
+            (1.0, 0.75, 0.5),
+            (2.0, 0.854_10, 0.763_93),
+            (10.0, 0.978_71, 1.458_98),
+        ];
+        for &(t, sigma_v) in &[(1.0, 1.0), (0.05, 0.3)] {
+            for &(lambda, a_tab, b_tab) in &table {
+                let sigma_w = lambda * sigma_v / (t * t);
+                let gamma = dmat![t * t / 2.0; t];
+                let q = &gamma * gamma.transpose() * (sigma_w * sigma_w);
+                let f = dmat![1.0, t; 0.0, 1.0];
+                let s = solve(&f, &dmat![1.0, 0.0], &q, &dmat![sigma_v * sigma_v]).unwrap();
+                let (alpha, beta) = (s.gain[(0, 0)], s.gain[(1, 0)] * t);
+                let (a_cf, b_cf) = kalata(lambda);
+                assert!(
+                    (alpha - a_cf).abs() < 1e-12,
+                    "lambda {lambda}: {alpha} vs {a_cf}"
+                );
+                assert!(
+                    (beta - b_cf).abs() < 1e-12,
+                    "lambda {lambda}: {beta} vs {b_cf}"
+                );
+                assert!((alpha - a_tab).abs() < 6e-6 && (beta - b_tab).abs() < 6e-6);
+                // beta^2 / (1 - alpha) = lambda^2 (Kalata 1984).
+                assert!((beta * beta / (1.0 - alpha) / (lambda * lambda) - 1.0).abs() < 1e-10);
+            }
+        }
+    }
+
+    #[test]
+    fn continuous_wna_alpha_beta() {
+        // Continuous white-noise-acceleration model discretised with q = T = 1
+        // (Qd = [[1/3, 1/2], [1/2, 1]], Bar-Shalom et al. 2001), sigma_v = 1:
+        // alpha 0.75674, beta 0.49322, beta^2/(1-alpha) = T^2 Qd22 / R = 1
+        // (REFERENCES.md, computed).
+        let q = dmat![1.0 / 3.0, 0.5; 0.5, 1.0];
+        let s = solve(
+            &dmat![1.0, 1.0; 0.0, 1.0],
+            &dmat![1.0, 0.0],
+            &q,
+            &dmat![1.0],
+        )
+        .unwrap();
+        let (alpha, beta) = (s.gain[(0, 0)], s.gain[(1, 0)]);
+        assert!((alpha - 0.756_74).abs() < 6e-6, "{alpha}");
+        assert!((beta - 0.493_22).abs() < 6e-6, "{beta}");
+        assert!((beta * beta / (1.0 - alpha) - 1.0).abs() < 1e-12);
+        // Posterior = (I - K H) prior (definition; common practice).
+        let h = dmat![1.0, 0.0];
+        let post = (DMatrix::identity(2, 2) - &s.gain * &h) * &s.prior;
+        assert!((post - &s.posterior).abs().max() < 1e-14);
+    }
+
+    #[test]
+    fn slow_filter_converges_quickly() {
+        // q/r = 1e-12: K ~ 1e-6, plain Riccati iteration would need ~1e7
+        // steps; doubling needs a few dozen. Closed form as above.
+        let s = random_walk(1e-12, 1.0);
+        let p = (1e-12 + (1e-24f64 + 4e-12).sqrt()) / 2.0;
+        assert!(((s.prior[(0, 0)] - p) / p).abs() < 1e-13);
+        assert!(s.iterations < 40, "{}", s.iterations);
+    }
+
+    #[test]
+    fn undetectable_and_unstabilisable_are_reported() {
+        // Unstable mode (2.0) not seen by H: no bounded steady state
+        // (Anderson & Moore 1979; from memory).
+        let e = solve(
+            &dmat![2.0, 0.0; 0.0, 0.5],
+            &dmat![0.0, 1.0],
+            &DMatrix::identity(2, 2),
+            &dmat![1.0],
+        );
+        assert_eq!(e, Err(NumericError::NotDetectable));
+        // A random walk without process noise: P -> 0 and the gain -> 0, the
+        // closed loop keeps its eigenvalue 1 (not stabilisable).
+        let e = solve(&dmat![1.0], &dmat![1.0], &dmat![0.0], &dmat![1.0]);
+        assert!(
+            matches!(e, Err(NumericError::NotStabilisable { .. })),
+            "{e:?}"
+        );
+        // A stable unobserved mode is fine (detectable).
+        let s = solve(
+            &dmat![0.5, 0.0; 0.0, 1.0],
+            &dmat![0.0, 1.0],
+            &DMatrix::identity(2, 2),
+            &dmat![1.0],
+        )
+        .unwrap();
+        // Unobserved stable mode: P11 = 1 / (1 - 0.25) (Lyapunov, closed form).
+        assert!((s.prior[(0, 0)] - 4.0 / 3.0).abs() < 1e-14);
+    }
+
+    #[test]
+    fn bad_input_is_an_error() {
+        let one = dmat![1.0];
+        assert!(matches!(
+            solve(&one, &one, &one, &dmat![0.0]),
+            Err(NumericError::NotPositiveDefinite { .. })
+        ));
+        assert!(matches!(
+            solve(&one, &dmat![1.0, 0.0], &one, &one),
+            Err(NumericError::DimensionMismatch { .. })
+        ));
+        assert!(matches!(
+            solve(&one, &one, &dmat![f64::INFINITY], &one),
+            Err(NumericError::NonFinite { .. })
+        ));
+    }
+}

@@ -407,3 +407,124 @@ impl core::iter::Sum for Dd {
         iter.fold(Dd::ZERO, |a, b| a + b)
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// u^2 = 2^-106, the unit roundoff of double-double (Hida, Li & Bailey 2001).
+    const U2: f64 = 1.232_595_164_407_831e-32;
+
+    #[test]
+    fn tiny_addend_survives() {
+        // (1 + 2^-80) - 1 = 2^-80 exactly: 2^-80 is far below f64's epsilon
+        // but well inside a 106-bit significand (Hida, Li & Bailey 2001;
+        // exact binary arithmetic, hand-derived).
+        let t = 2f64.powi(-80);
+        let d = (Dd::ONE + t) - 1.0;
+        assert_eq!(d.to_f64(), t);
+        assert_eq!(d.lo(), 0.0);
+        // The same in f64 is lost (control check).
+        assert_eq!((1.0 + t) - 1.0, 0.0);
+    }
+
+    #[test]
+    fn exact_square_of_binary_value() {
+        // (1 + 2^-30)^2 = 1 + 2^-29 + 2^-60 exactly (hand-derived), which
+        // needs 61 bits: hi = 1 + 2^-29, lo = 2^-60.
+        let a = Dd::from_f64(1.0 + 2f64.powi(-30));
+        let s = a * a;
+        assert_eq!(s.hi(), 1.0 + 2f64.powi(-29));
+        assert_eq!(s.lo(), 2f64.powi(-60));
+        // Same through Dd * f64 and the exact product.
+        assert_eq!(a * (1.0 + 2f64.powi(-30)), s);
+        assert_eq!(
+            Dd::prod_exact(1.0 + 2f64.powi(-30), 1.0 + 2f64.powi(-30)),
+            s
+        );
+    }
+
+    #[test]
+    fn one_third_matches_exact_rational() {
+        // Hand-derived: the f64 nearest 1/3 is h = (2^54 - 1)/3 * 2^-54,
+        // so 1/3 - h = 2^-54/3 = h * 2^-54 / (1 - 2^-54), whose nearest f64
+        // is h * 2^-54. A correctly rounded double-double 1/3 is (h, h*2^-54).
+        let third = Dd::ONE / 3.0;
+        let h = 1.0 / 3.0;
+        assert_eq!(third.hi(), h);
+        let expected_lo = h * 2f64.powi(-54);
+        assert!((third.lo() - expected_lo).abs() <= 2.0 * U2 * h, "{third}");
+        // 3 * (1/3) - 1 within the DWDivDW2 + DWTimesFP bounds
+        // (Joldes, Muller & Popescu 2017: 15u^2 + 1.5u^2, rounded up).
+        let r = third * 3.0 - 1.0;
+        assert!(r.to_f64().abs() <= 17.0 * U2, "{r}");
+    }
+
+    #[test]
+    fn sqrt_two_squared_is_two() {
+        // sqrt(2)^2 - 2 is a few u^2 (Hida, Li & Bailey 2001, sqrt by one
+        // Newton step; JMP 2017 product bound).
+        let s = Dd::from_f64(2.0).sqrt();
+        let e = s * s - 2.0;
+        assert!(e.to_f64().abs() <= 2.0 * 8.0 * U2, "{e}");
+        // And the leading part is the f64 square root.
+        assert_eq!(s.hi(), 2f64.sqrt());
+        // sqrt(2) = 1.41421356237309504880168872420969807856967... (common
+        // knowledge to 42 digits); hi + lo must agree to ~32 digits.
+        let lo_expected = 1.414_213_562_373_095_048_801_688_724_209_698_f64 - s.hi();
+        // lo_expected in f64 is 0 (not representable); compare via the
+        // decimal tail instead: sqrt(2) - hi = -9.667293313452913e-17
+        // (computed with 50-digit arithmetic).
+        assert_eq!(lo_expected, 0.0);
+        assert!(
+            (s.lo() + 9.667_293_313_452_913e-17).abs() < 1e-31,
+            "{}",
+            s.lo()
+        );
+    }
+
+    #[test]
+    fn sum_error_within_published_bound() {
+        // Cancellation-heavy sums against exact hand-derived results:
+        // (2^53 + 1) - 2^53 = 1, (1e16 + 1e-16) - 1e16 = 1e-16 (both exact).
+        let a = Dd::sum_exact(2f64.powi(53), 1.0);
+        assert_eq!(a.hi(), 2f64.powi(53));
+        assert_eq!(a.lo(), 1.0);
+        assert_eq!((a - 2f64.powi(53)).to_f64(), 1.0);
+        let b = Dd::sum_exact(1e16, 1e-16) - Dd::from_f64(1e16);
+        assert_eq!(b.to_f64(), 1e-16);
+        // Accurate sum bound 3u^2 + 13u^3 and product bound 1.5u^2 + 4u^3
+        // (JMP 2017): x - x(1 - 2^-50) = x 2^-50 with x = 1 + 2^-70 is
+        // exactly 2^-50 + 2^-120 (hand-derived); the rounding of the product
+        // (<= 1.5u^2 of ~1) dominates the error.
+        let x = Dd::from_parts(1.0, 2f64.powi(-70));
+        let y = -(x * (1.0 - 2f64.powi(-50)));
+        let s = x + y;
+        let expect = Dd::from_parts(2f64.powi(-50), 2f64.powi(-120));
+        let err = (s - expect).abs().to_f64();
+        assert!(err <= 2.0 * U2, "{s} err {err}");
+        // The f64 computation keeps only 2^-50 (control check).
+        assert_eq!(1.0 - (1.0 - 2f64.powi(-50)), 2f64.powi(-50));
+    }
+
+    #[test]
+    fn non_finite_propagates_without_panic() {
+        let z = Dd::ONE / Dd::ZERO;
+        assert!(!z.is_finite());
+        let n = Dd::from_f64(-1.0).sqrt();
+        assert!(!n.is_finite());
+        let big = Dd::from_f64(f64::MAX) * 2.0;
+        assert!(!big.is_finite());
+        assert_eq!(Dd::ZERO.sqrt(), Dd::ZERO);
+    }
+
+    #[test]
+    fn ordering_and_abs() {
+        let a = Dd::from_parts(1.0, 1e-20);
+        let b = Dd::from_parts(1.0, -1e-20);
+        assert!(a > b);
+        assert_eq!(a.max(b), a);
+        assert_eq!(a.min(b), b);
+        assert_eq!((-a).abs(), a);
+    }
+}

@@ -16,6 +16,15 @@
 //! | [`noise`]     | datasheet noise figures to white-noise intensities, with the steps  |
 //! | [`units`]     | the unit grammar of the spec file                                   |
 
+/// Test helper: `dmat![a, b; c, d]` builds a `DMatrix<f64>` row by row.
+#[cfg(test)]
+macro_rules! dmat {
+    ($($($x:expr),+);+ $(;)?) => {{
+        let rows: Vec<Vec<f64>> = vec![$(vec![$(f64::from($x)),+]),+];
+        nalgebra::DMatrix::from_fn(rows.len(), rows[0].len(), |i, j| rows[i][j])
+    }};
+}
+
 pub mod dare;
 pub mod dd;
 pub mod ddmat;

@@ -228,3 +228,123 @@ fn pade_solve(u: &DMatrix<f64>, v: &DMatrix<f64>) -> Result<DMatrix<f64>, Numeri
     check_finite("matrix exponential", &r)?;
     Ok(r)
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn max_rel(a: &DMatrix<f64>, b: &DMatrix<f64>) -> f64 {
+        let scale = b
+            .iter()
+            .fold(0.0f64, |m, v| m.max(v.abs()))
+            .max(f64::MIN_POSITIVE);
+        (a - b).iter().fold(0.0f64, |m, v| m.max(v.abs())) / scale
+    }
+
+    #[test]
+    fn random_walk_qd_is_w_t() {
+        // Van Loan (1978) on F = 0, G = 1: Qd = W T; W = 3, T = 0.25 -> 0.75
+        // (REFERENCES.md, computed).
+        let (phi, qd) = discretize(&dmat![0.0], &dmat![1.0], &dmat![3.0], 0.25).unwrap();
+        assert_eq!(phi[(0, 0)], 1.0);
+        assert!((qd[(0, 0)] - 0.75).abs() < 1e-15, "{qd}");
+    }
+
+    #[test]
+    fn white_noise_acceleration_matches_bar_shalom() {
+        // Continuous white-noise-acceleration model, intensity q:
+        // Qd = q [[T^3/3, T^2/2], [T^2/2, T]] (Bar-Shalom, Li & Kirubarajan
+        // 2001; from memory). q = 2, T = 0.1 -> [[6.6667e-4, 0.01], [0.01, 0.2]].
+        let a = dmat![0.0, 1.0; 0.0, 0.0];
+        let g = dmat![0.0; 1.0];
+        let (phi, qd) = discretize(&a, &g, &dmat![2.0], 0.1).unwrap();
+        let t: f64 = 0.1;
+        let expect = dmat![2.0 * t.powi(3) / 3.0, t * t; t * t, 2.0 * t];
+        assert!(max_rel(&qd, &expect) < 1e-13, "{qd}");
+        assert!((qd[(0, 0)] - 6.6667e-4).abs() < 1e-8);
+        assert!((qd[(0, 1)] - 0.01).abs() < 1e-15 && (qd[(1, 1)] - 0.2).abs() < 1e-15);
+        assert!(max_rel(&phi, &dmat![1.0, 0.1; 0.0, 1.0]) < 1e-15, "{phi}");
+        // Exactly symmetric.
+        assert_eq!(qd[(0, 1)], qd[(1, 0)]);
+    }
+
+    #[test]
+    fn gauss_markov_closed_form() {
+        // First-order Gauss-Markov dx = -x/tau dt + dw, intensity W:
+        // Qd = (W tau / 2)(1 - e^(-2T/tau)), Phi = e^(-T/tau) (REFERENCES.md).
+        for &(w, tau, t) in &[(0.5, 2.0, 0.01), (4.0, 0.1, 1.0), (1e-6, 100.0, 0.005)] {
+            let (phi, qd) = discretize(&dmat![-1.0 / tau], &dmat![1.0], &dmat![w], t).unwrap();
+            let q_exact = w * tau / 2.0 * (-(-2.0 * t / tau as f64).exp_m1());
+            assert!(
+                ((qd[(0, 0)] - q_exact) / q_exact).abs() < 1e-12,
+                "{qd} vs {q_exact}"
+            );
+            assert!((phi[(0, 0)] - (-t / tau).exp()).abs() < 1e-15);
+        }
+    }
+
+    #[test]
+    fn expm_rotation_generator() {
+        // e^([[0, -th], [th, 0]]) = [[cos th, -sin th], [sin th, cos th]]
+        // (closed form, common practice). th = 0.3 uses a low-degree Pade
+        // approximant; th = 10 and 100 need scaling and squaring.
+        for &th in &[0.01f64, 0.3, 1.5, 10.0, 100.0] {
+            let e = expm(&dmat![0.0, -th; th, 0.0]).unwrap();
+            let (s, c) = (th as f64).sin_cos();
+            let expect = dmat![c, -s; s, c];
+            assert!(max_rel(&e, &expect) < 1e-13 * th.max(1.0), "th {th}: {e}");
+        }
+    }
+
+    #[test]
+    fn expm_nilpotent_and_diagonal() {
+        // N = [[0,t,0],[0,0,t],[0,0,0]]: e^N = I + N + N^2/2 exactly
+        // (the series terminates; closed form).
+        for &t in &[0.1, 3.0, 50.0] {
+            let n = dmat![0.0, t, 0.0; 0.0, 0.0, t; 0.0, 0.0, 0.0];
+            let e = expm(&n).unwrap();
+            let expect = dmat![1.0, t, t * t / 2.0; 0.0, 1.0, t; 0.0, 0.0, 1.0];
+            assert!(max_rel(&e, &expect) < 1e-14, "t {t}: {e}");
+        }
+        // Diagonal: e^diag(d) = diag(e^d).
+        let e = expm(&dmat![-7.5, 0.0; 0.0, 2.25]).unwrap();
+        assert!((e[(0, 0)] / (-7.5f64).exp() - 1.0).abs() < 1e-13);
+        assert!((e[(1, 1)] / 2.25f64.exp() - 1.0).abs() < 1e-13);
+        assert_eq!(e[(0, 1)], 0.0);
+    }
+
+    #[test]
+    fn bad_input_is_an_error() {
+        assert!(matches!(
+            expm(&DMatrix::zeros(2, 3)),
+            Err(NumericError::DimensionMismatch { .. })
+        ));
+        assert!(matches!(
+            expm(&dmat![f64::NAN]),
+            Err(NumericError::NonFinite { .. })
+        ));
+        assert!(matches!(
+            expm(&dmat![1e300]),
+            Err(NumericError::NonFinite { .. })
+        ));
+        let a = dmat![0.0];
+        let g = dmat![1.0];
+        let q = dmat![1.0];
+        assert!(matches!(
+            discretize(&a, &g, &q, 0.0),
+            Err(NumericError::NotPositive { .. })
+        ));
+        assert!(matches!(
+            discretize(&a, &g, &q, f64::NAN),
+            Err(NumericError::NotPositive { .. })
+        ));
+        assert!(matches!(
+            discretize(&a, &dmat![1.0, 0.0], &q, 0.1),
+            Err(NumericError::DimensionMismatch { .. })
+        ));
+        assert!(matches!(
+            discretize(&dmat![0.0, 1.0], &g, &q, 0.1),
+            Err(NumericError::DimensionMismatch { .. })
+        ));
+    }
+}
