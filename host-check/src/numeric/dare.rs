@@ -279,7 +279,7 @@ mod tests {
             (1e-4, 0.25, 5.050_25e-3, 0.019_801, 1e-6),
         ] {
             let s = random_walk(q, r);
-            let p = (q + (q * q + 4.0 * q * r as f64).sqrt()) / 2.0;
+            let p = (q + (q * q + 4.0 * q * r).sqrt()) / 2.0;
             assert!(
                 ((s.prior[(0, 0)] - p) / p).abs() < 1e-14,
                 "{q} {r}: {:?}",

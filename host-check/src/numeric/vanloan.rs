@@ -274,7 +274,7 @@ mod tests {
         // Qd = (W tau / 2)(1 - e^(-2T/tau)), Phi = e^(-T/tau) (REFERENCES.md).
         for &(w, tau, t) in &[(0.5, 2.0, 0.01), (4.0, 0.1, 1.0), (1e-6, 100.0, 0.005)] {
             let (phi, qd) = discretize(&dmat![-1.0 / tau], &dmat![1.0], &dmat![w], t).unwrap();
-            let q_exact = w * tau / 2.0 * (-(-2.0 * t / tau as f64).exp_m1());
+            let q_exact = w * tau / 2.0 * (-(-2.0 * t / tau).exp_m1());
             assert!(
                 ((qd[(0, 0)] - q_exact) / q_exact).abs() < 1e-12,
                 "{qd} vs {q_exact}"
@@ -290,7 +290,7 @@ mod tests {
         // approximant; th = 10 and 100 need scaling and squaring.
         for &th in &[0.01f64, 0.3, 1.5, 10.0, 100.0] {
             let e = expm(&dmat![0.0, -th; th, 0.0]).unwrap();
-            let (s, c) = (th as f64).sin_cos();
+            let (s, c) = th.sin_cos();
             let expect = dmat![c, -s; s, c];
             assert!(max_rel(&e, &expect) < 1e-13 * th.max(1.0), "th {th}: {e}");
         }
