@@ -513,6 +513,7 @@ mod tests {
     }
 
     #[test]
+    #[allow(clippy::excessive_precision)] // the computed digits, as printed
     fn ill_conditioned_update_keeps_the_answer() {
         // Exact posterior (REFERENCES.md): [[0.625,-0.375,-0.25],
         // [-0.375,0.625,-0.25],[-0.25,-0.25,0.5]] + O(d). Beyond that, the
