@@ -1,0 +1,293 @@
+//! The command line: clap derive, one enum of subcommands (add a variant
+//! and a match arm to add one), and the code that runs each.
+
+use std::fmt;
+use std::path::{Path, PathBuf};
+
+use clap::{Args, Parser, Subcommand, ValueEnum};
+
+use crate::report::{self, Report};
+use crate::run::{self, RunOptions};
+use crate::spec::{self, Mode, Plan};
+
+/// Exit code when the variant to flash passes.
+pub const EXIT_PASS: u8 = 0;
+/// Exit code when the variant to flash fails.
+pub const EXIT_FAIL: u8 = 1;
+/// Exit code for bad input (spec, files, command line).
+pub const EXIT_BAD_INPUT: u8 = 2;
+
+const EXIT_CODES: &str = "Exit codes:
+  0  the variant to flash (default f32 joseph) passes
+  1  it fails (a numerical pass is not a safety case; see the report)
+  2  bad input: a malformed or inconsistent spec, an unreadable file, a bad option";
+
+/// Checks a Kalman filter's single-precision numerics before it is flashed:
+/// runs cairn-core's own code in f32 and f64, in every covariance form,
+/// against an extended-precision reference on your model's schedule, and
+/// turns datasheet noise figures into Q and R. With no subcommand, runs the
+/// built-in demo.
+#[derive(Debug, Parser)]
+#[command(name = "cairn", version, after_help = EXIT_CODES, args_conflicts_with_subcommands = true)]
+pub struct Cli {
+    /// What to do (the demo check when omitted).
+    #[command(subcommand)]
+    pub command: Option<Command>,
+    /// Report options for the demo check run without a subcommand.
+    #[command(flatten)]
+    pub output: Output,
+}
+
+/// The subcommands.
+#[derive(Debug, Subcommand)]
+pub enum Command {
+    /// Check the filter a spec file describes (see docs/spec-format.md).
+    #[command(after_help = EXIT_CODES)]
+    Check(CheckArgs),
+    /// Check the built-in demo: an invented survey rover, one hour of wheel
+    /// odometry at 200 Hz with beacon position fixes and sun-compass
+    /// heading fixes.
+    #[command(after_help = EXIT_CODES)]
+    Demo(DemoArgs),
+    /// Convert one datasheet noise figure into the filter's numbers and
+    /// show each step (no check is run).
+    #[command(after_help = "Exit codes:\n  0  converted\n  2  bad figure or unit")]
+    Noise(NoiseArgs),
+}
+
+/// Where the reports go.
+#[derive(Debug, Clone, Args, Default)]
+pub struct Output {
+    /// Write the full report (every figure) as JSON to this file.
+    #[arg(long, value_name = "PATH")]
+    pub json: Option<PathBuf>,
+    /// Write the drift plot (relative error against time, log scale) as SVG.
+    #[arg(long, value_name = "PATH")]
+    pub plot: Option<PathBuf>,
+    /// Print only the verdict line, not the whole report.
+    #[arg(long, short)]
+    pub quiet: bool,
+    /// Never show a progress bar (it is hidden anyway when stderr is not a terminal).
+    #[arg(long)]
+    pub no_progress: bool,
+}
+
+/// `cairn check`.
+#[derive(Debug, Args)]
+pub struct CheckArgs {
+    /// The spec file (TOML).
+    pub spec: PathBuf,
+    /// Run only this many seconds of the horizon (a quick look).
+    #[arg(long, value_name = "S")]
+    pub seconds: Option<f64>,
+    /// For nonlinear models: covariance-only or end-to-end (overrides the spec).
+    #[arg(long, value_enum)]
+    pub mode: Option<ModeArg>,
+    /// Report options.
+    #[command(flatten)]
+    pub output: Output,
+}
+
+/// `cairn demo`.
+#[derive(Debug, Args)]
+pub struct DemoArgs {
+    /// Print the demo's spec file and exit (a starting point for your own).
+    #[arg(long)]
+    pub print_spec: bool,
+    /// Run only this many seconds of the hour.
+    #[arg(long, value_name = "S")]
+    pub seconds: Option<f64>,
+    /// Covariance-only or end-to-end (overrides the spec).
+    #[arg(long, value_enum)]
+    pub mode: Option<ModeArg>,
+    /// Report options.
+    #[command(flatten)]
+    pub output: Output,
+}
+
+/// The mode on the command line.
+#[derive(Debug, Clone, Copy, ValueEnum)]
+pub enum ModeArg {
+    /// Same Jacobians for every variant, along the reference trajectory.
+    Covariance,
+    /// Every variant runs its own nonlinear filter.
+    EndToEnd,
+}
+
+/// `cairn noise`.
+#[derive(Debug, Args)]
+pub struct NoiseArgs {
+    /// The figure as the spec writes it, e.g. `density = 0.004` or `random_walk = 0.2`.
+    #[arg(value_name = "KIND=VALUE")]
+    pub figure: String,
+    /// Its unit, e.g. "deg/s/sqrt(Hz)", "deg/sqrt(h)", "(m/s^2)^2/Hz", "m".
+    #[arg(long)]
+    pub unit: String,
+    /// "one" or "two" for densities and PSDs.
+    #[arg(long)]
+    pub sided: Option<String>,
+    /// Frequency variable of a PSD: "Hz" or "rad/s".
+    #[arg(long)]
+    pub per: Option<String>,
+    /// Sample rate a per-sample std or variance was measured at, Hz.
+    #[arg(long, value_name = "HZ")]
+    pub at_hz: Option<f64>,
+    /// Also give the variance of one sample at this rate, Hz.
+    #[arg(long, value_name = "HZ")]
+    pub rate: Option<f64>,
+}
+
+/// A failure with its exit code.
+#[derive(Debug)]
+pub struct Failure {
+    /// Exit code.
+    pub code: u8,
+    /// What went wrong.
+    pub error: Box<dyn std::error::Error + Send + Sync>,
+}
+
+impl fmt::Display for Failure {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        self.error.fmt(f)
+    }
+}
+
+fn bad(e: impl Into<Box<dyn std::error::Error + Send + Sync>>) -> Failure {
+    Failure {
+        code: EXIT_BAD_INPUT,
+        error: e.into(),
+    }
+}
+
+/// A plain message as an error.
+#[derive(Debug)]
+struct Message(String);
+impl fmt::Display for Message {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        f.write_str(&self.0)
+    }
+}
+impl std::error::Error for Message {}
+
+/// Runs the parsed command line; returns the exit code.
+///
+/// # Errors
+/// A [`Failure`] carrying exit code 2 for bad input.
+pub fn execute(cli: Cli) -> Result<u8, Failure> {
+    match cli.command {
+        None => demo(&DemoArgs {
+            print_spec: false,
+            seconds: None,
+            mode: None,
+            output: cli.output,
+        }),
+        Some(Command::Demo(a)) => demo(&a),
+        Some(Command::Check(a)) => {
+            let plan = spec::load(&a.spec).map_err(bad)?;
+            check(plan, a.seconds, a.mode, &a.output)
+        }
+        Some(Command::Noise(a)) => noise(&a),
+    }
+}
+
+fn demo(a: &DemoArgs) -> Result<u8, Failure> {
+    if a.print_spec {
+        print!("{}", crate::demo::SPEC);
+        return Ok(EXIT_PASS);
+    }
+    let plan = crate::demo::plan().map_err(bad)?;
+    check(plan, a.seconds, a.mode, &a.output)
+}
+
+fn check(
+    mut plan: Plan,
+    seconds: Option<f64>,
+    mode: Option<ModeArg>,
+    out: &Output,
+) -> Result<u8, Failure> {
+    if let Some(s) = seconds {
+        if !(s.is_finite() && s > 0.0) {
+            return Err(bad(Message(format!("--seconds must be positive, got {s}"))));
+        }
+        plan.steps = plan.steps.min(((s * plan.step_hz).round() as u64).max(1));
+    }
+    let opts = RunOptions {
+        progress: !out.no_progress,
+        mode: mode.map(|m| match m {
+            ModeArg::Covariance => Mode::Covariance,
+            ModeArg::EndToEnd => Mode::EndToEnd,
+        }),
+    };
+    let result = run::run(&plan, opts).map_err(bad)?;
+    if out.quiet {
+        println!(
+            "{}: flash {} {}; cheapest passing: {}",
+            plan.title,
+            result.flash,
+            if result.flash_passes { "PASS" } else { "FAIL" },
+            result.cheapest_passing.as_deref().unwrap_or("none")
+        );
+    } else {
+        print!("{}", report::render(&plan, &result));
+    }
+    if let Some(path) = &out.json {
+        let json = Report::new(&plan, &result)
+            .to_json()
+            .map_err(|e| bad(Message(format!("cannot write the JSON report: {e}"))))?;
+        write(path, &json)?;
+    }
+    if let Some(path) = &out.plot {
+        let svg = report::plot(&plan.title, &result, plan.thresholds.max_relative_error);
+        write(path, &svg)?;
+    }
+    Ok(if result.flash_passes {
+        EXIT_PASS
+    } else {
+        EXIT_FAIL
+    })
+}
+
+fn write(path: &Path, text: &str) -> Result<(), Failure> {
+    std::fs::write(path, text)
+        .map_err(|e| bad(Message(format!("cannot write {}: {e}", path.display()))))
+}
+
+fn noise(a: &NoiseArgs) -> Result<u8, Failure> {
+    let Some((kind, value)) = a.figure.split_once('=') else {
+        return Err(bad(Message(format!(
+            "`{}`: write the figure as KIND=VALUE, e.g. density=0.004",
+            a.figure
+        ))));
+    };
+    let quote = |s: &str| format!("\"{}\"", s.replace('\\', "\\\\").replace('"', "\\\""));
+    let mut doc = format!(
+        "{} = {}\nunit = {}\n",
+        kind.trim(),
+        value.trim(),
+        quote(&a.unit)
+    );
+    if let Some(s) = &a.sided {
+        doc.push_str(&format!("sided = {}\n", quote(s)));
+    }
+    if let Some(s) = &a.per {
+        doc.push_str(&format!("per = {}\n", quote(s)));
+    }
+    if let Some(r) = a.at_hz {
+        doc.push_str(&format!("at_hz = {r:?}\n"));
+    }
+    if let Some(r) = a.rate
+        && !(r.is_finite() && r > 0.0)
+    {
+        return Err(bad(Message(format!("--rate must be positive, got {r}"))));
+    }
+    let rec = spec::convert_standalone(&doc, a.rate).map_err(bad)?;
+    println!("{}", rec.given);
+    for s in &rec.steps {
+        println!(
+            "  {:<44} {:<28} = {:e} {}",
+            s.what, s.formula, s.value, s.unit
+        );
+    }
+    println!("=> {} = {:e}", rec.result_is, rec.result);
+    Ok(EXIT_PASS)
+}

@@ -1,0 +1,95 @@
+//! What a check prints and writes: the terminal report, the JSON report with
+//! every figure, and the SVG plot of drift against time.
+
+mod svg;
+mod text;
+
+use serde::Serialize;
+
+use crate::run::RunResult;
+use crate::spec::{ConversionRecord, Flash, Plan, StateInfo, Thresholds};
+
+pub use svg::plot;
+pub use text::render;
+
+/// The sentence every verdict carries.
+pub const NOT_A_SAFETY_CASE: &str = "A numerical pass is not a safety case: it says the arithmetic \
+tracks an extended-precision reference on this schedule, nothing about your robot. A machine that \
+moves can hurt people; its safety rests on a hazard analysis, the applicable functional-safety \
+standards (for example IEC 61508, ISO 13849, ISO 10218, ISO 3691-4) and licensed engineering practice.";
+
+/// The whole report, as written to JSON.
+#[derive(Debug, Clone, Serialize)]
+pub struct Report<'a> {
+    /// Format version of this JSON.
+    pub format: u32,
+    /// Spec title.
+    pub title: &'a str,
+    /// Spec file.
+    pub spec: &'a str,
+    /// States.
+    pub states: &'a [StateInfo],
+    /// Step rate, Hz.
+    pub step_hz: f64,
+    /// Thresholds used.
+    pub thresholds: Thresholds,
+    /// The variant to flash.
+    pub flash: &'a Flash,
+    /// Noise conversions.
+    pub conversions: &'a [ConversionRecord],
+    /// The run.
+    pub run: &'a RunResult,
+    /// Decimated relative error per variant (largest in each bucket).
+    pub series: Vec<Series<'a>>,
+    /// The disclaimer.
+    pub note: &'static str,
+}
+
+/// One variant's decimated series.
+#[derive(Debug, Clone, Serialize)]
+pub struct Series<'a> {
+    /// Variant name.
+    pub variant: &'a str,
+    /// Relative error per bucket (null where the variant had stopped).
+    pub relative_error: Vec<Option<f64>>,
+}
+
+impl<'a> Report<'a> {
+    /// Assembles the report of a run.
+    pub fn new(plan: &'a Plan, run: &'a RunResult) -> Self {
+        let series = run
+            .variants
+            .iter()
+            .map(|v| Series {
+                variant: &v.name,
+                relative_error: v
+                    .figures
+                    .series
+                    .iter()
+                    .map(|x| x.is_finite().then_some(*x))
+                    .collect(),
+            })
+            .collect();
+        Self {
+            format: 1,
+            title: &plan.title,
+            spec: &plan.file,
+            states: &plan.states,
+            step_hz: plan.step_hz,
+            thresholds: plan.thresholds,
+            flash: &plan.flash,
+            conversions: &plan.conversions,
+            run,
+            series,
+            note: NOT_A_SAFETY_CASE,
+        }
+    }
+
+    /// The JSON text.
+    ///
+    /// # Errors
+    /// Serialisation errors (none expected: non-finite numbers become null).
+    pub fn to_json(&self) -> Result<String, serde_json::Error> {
+        serde_json::to_string_pretty(self)
+    }
+}

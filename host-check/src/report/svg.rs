@@ -1,0 +1,147 @@
+//! A hand-written SVG plot: the relative covariance error of each variant
+//! against time, on a log scale, one line per variant.
+
+use std::fmt::Write;
+
+use crate::run::RunResult;
+
+const WIDTH: f64 = 900.0;
+const HEIGHT: f64 = 480.0;
+const LEFT: f64 = 80.0;
+const RIGHT: f64 = 190.0;
+const TOP: f64 = 40.0;
+const BOTTOM: f64 = 60.0;
+const COLOURS: [&str; 8] = [
+    "#c0392b", "#8e44ad", "#d68910", "#1f618d", "#117a65", "#2e4053", "#7d6608", "#a04000",
+];
+
+fn esc(s: &str) -> String {
+    s.replace('&', "&amp;")
+        .replace('<', "&lt;")
+        .replace('>', "&gt;")
+}
+
+/// The SVG text of the drift plot.
+pub fn plot(title: &str, run: &RunResult, threshold: f64) -> String {
+    // Decades covered: from the smallest positive value to the largest.
+    let mut lo = f64::INFINITY;
+    let mut hi = threshold;
+    for v in &run.variants {
+        for &e in &v.figures.series {
+            if e.is_finite() && e > 0.0 {
+                lo = lo.min(e);
+                hi = hi.max(e);
+            }
+        }
+    }
+    if !lo.is_finite() {
+        lo = threshold * 1e-6;
+    }
+    let dlo = lo.log10().floor().max(-20.0);
+    let dhi = hi.log10().ceil().max(dlo + 1.0);
+    let t_end = run
+        .series_time
+        .last()
+        .copied()
+        .unwrap_or(1.0)
+        .max(f64::MIN_POSITIVE);
+    let pw = WIDTH - LEFT - RIGHT;
+    let ph = HEIGHT - TOP - BOTTOM;
+    let x_of = |t: f64| LEFT + pw * (t / t_end);
+    let y_of = |e: f64| TOP + ph * (dhi - e.log10().clamp(dlo, dhi)) / (dhi - dlo);
+
+    let mut s = String::new();
+    let _ = writeln!(
+        s,
+        r#"<svg xmlns="http://www.w3.org/2000/svg" width="{WIDTH}" height="{HEIGHT}" viewBox="0 0 {WIDTH} {HEIGHT}" font-family="sans-serif" font-size="12">"#
+    );
+    let _ = writeln!(s, r##"<rect width="100%" height="100%" fill="#fbfaf7"/>"##);
+    let _ = writeln!(
+        s,
+        r#"<text x="{LEFT}" y="24" font-size="15">Relative covariance error against the reference: {}</text>"#,
+        esc(title)
+    );
+    // Grid and decade labels.
+    let mut d = dlo;
+    while d <= dhi + 0.5 {
+        let y = y_of(10f64.powf(d));
+        let _ = writeln!(
+            s,
+            r##"<line x1="{LEFT}" y1="{y:.1}" x2="{:.1}" y2="{y:.1}" stroke="#ddd"/><text x="{:.1}" y="{:.1}" text-anchor="end">1e{d}</text>"##,
+            LEFT + pw,
+            LEFT - 6.0,
+            y + 4.0
+        );
+        d += 1.0;
+    }
+    for i in 0..=5 {
+        let t = t_end * f64::from(i) / 5.0;
+        let x = x_of(t);
+        let _ = writeln!(
+            s,
+            r##"<line x1="{x:.1}" y1="{TOP}" x2="{x:.1}" y2="{:.1}" stroke="#eee"/><text x="{x:.1}" y="{:.1}" text-anchor="middle">{}</text>"##,
+            TOP + ph,
+            TOP + ph + 18.0,
+            if t_end >= 600.0 {
+                format!("{:.0}", t / 60.0)
+            } else {
+                format!("{t:.3}")
+            }
+        );
+    }
+    let _ = writeln!(
+        s,
+        r#"<text x="{:.1}" y="{:.1}" text-anchor="middle">time [{}]</text>"#,
+        LEFT + pw / 2.0,
+        HEIGHT - 16.0,
+        if t_end >= 600.0 { "min" } else { "s" }
+    );
+    // Threshold.
+    let yt = y_of(threshold);
+    let _ = writeln!(
+        s,
+        r##"<line x1="{LEFT}" y1="{yt:.1}" x2="{:.1}" y2="{yt:.1}" stroke="#555" stroke-dasharray="6 4"/><text x="{:.1}" y="{:.1}">limit</text>"##,
+        LEFT + pw,
+        LEFT + pw + 6.0,
+        yt + 4.0
+    );
+    // Lines.
+    for (i, v) in run.variants.iter().enumerate() {
+        let colour = COLOURS[i % COLOURS.len()];
+        let mut pts = String::new();
+        for (e, t) in v.figures.series.iter().zip(&run.series_time) {
+            if e.is_finite() && *e > 0.0 {
+                let _ = write!(pts, "{:.1},{:.1} ", x_of(*t), y_of(*e));
+            }
+        }
+        let dash = if v.precision == crate::spec::Precision::F64 {
+            r#" stroke-dasharray="2 3""#
+        } else {
+            ""
+        };
+        if !pts.is_empty() {
+            let _ = writeln!(
+                s,
+                r#"<polyline fill="none" stroke="{colour}" stroke-width="1.6"{dash} points="{}"/>"#,
+                pts.trim_end()
+            );
+        }
+        let ly = TOP + 16.0 + 20.0 * i as f64;
+        let lx = WIDTH - RIGHT + 50.0;
+        let mark = if v.verdict.passes { "pass" } else { "FAIL" };
+        let _ = writeln!(
+            s,
+            r#"<line x1="{lx}" y1="{ly}" x2="{:.1}" y2="{ly}" stroke="{colour}" stroke-width="2"{dash}/><text x="{:.1}" y="{:.1}">{} ({mark})</text>"#,
+            lx + 18.0,
+            lx + 22.0,
+            ly + 4.0,
+            esc(&v.name)
+        );
+    }
+    let _ = writeln!(
+        s,
+        r##"<rect x="{LEFT}" y="{TOP}" width="{pw}" height="{ph}" fill="none" stroke="#333"/>"##
+    );
+    s.push_str("</svg>\n");
+    s
+}

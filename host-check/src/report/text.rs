@@ -1,0 +1,278 @@
+//! The terminal report: the spec in one paragraph, the noise conversions,
+//! the variants side by side, the verdicts and the cheapest form that passes.
+
+use std::fmt::Write;
+
+use super::NOT_A_SAFETY_CASE;
+use crate::run::{RunResult, VariantResult};
+use crate::spec::{ChannelKind, Mode, ModelPlan, Plan};
+
+fn sci(v: f64) -> String {
+    if v.is_nan() {
+        "n/a".into()
+    } else if v.is_infinite() {
+        if v > 0.0 { "inf".into() } else { "-inf".into() }
+    } else if v == 0.0 {
+        "0".into()
+    } else {
+        format!("{v:.2e}")
+    }
+}
+
+fn duration(s: f64) -> String {
+    if s >= 3600.0 {
+        format!("{:.2} h", s / 3600.0)
+    } else if s >= 60.0 {
+        format!("{:.1} min", s / 60.0)
+    } else {
+        format!("{s:.3} s")
+    }
+}
+
+/// The report as text (plain ASCII, fits 100 columns for six variants).
+pub fn render(plan: &Plan, run: &RunResult) -> String {
+    let mut o = String::new();
+    let _ = writeln!(o, "cairn check: {}", plan.title);
+    let states: Vec<String> = plan
+        .states
+        .iter()
+        .map(|s| format!("{} [{}]", s.name, s.unit))
+        .collect();
+    let kind = match &plan.model {
+        ModelPlan::Linear {
+            discretised: true, ..
+        } => "continuous (Van Loan discretised)",
+        ModelPlan::Linear { .. } => "discrete",
+        ModelPlan::Pose { .. } => "planar pose (cairn-core)",
+    };
+    let _ = writeln!(o, "  spec     {}", plan.file);
+    let _ = writeln!(o, "  model    {kind}; states {}", states.join(", "));
+    let mode = match run.mode {
+        Mode::Covariance if plan.is_linear() => "linear",
+        Mode::Covariance => "covariance-only (shared Jacobians along the reference trajectory)",
+        Mode::EndToEnd => "end-to-end (each variant runs its own nonlinear filter)",
+    };
+    let _ = writeln!(
+        o,
+        "  schedule {} steps at {} Hz ({}); mode {mode}",
+        run.steps,
+        plan.step_hz,
+        duration(run.steps as f64 * run.dt)
+    );
+    for c in &plan.channels {
+        let what = match &c.kind {
+            ChannelKind::Linear(_) => format!("{} components", c.m),
+            ChannelKind::Position => "position fix".into(),
+            ChannelKind::Heading => "heading fix".into(),
+        };
+        let _ = writeln!(
+            o,
+            "  channel  {}: {what} at {} Hz{}{}",
+            c.name,
+            c.rate_hz,
+            if c.dropouts.is_empty() {
+                String::new()
+            } else {
+                format!(", {} dropout window(s)", c.dropouts.len())
+            },
+            c.gate.map_or(String::new(), |g| format!(", gate {g}"))
+        );
+    }
+
+    if !plan.conversions.is_empty() {
+        let _ = writeln!(o, "\nNoise figures to filter numbers");
+        for c in &plan.conversions {
+            let _ = writeln!(o, "  {}: {}", c.field, c.given);
+            for s in &c.steps {
+                let _ = writeln!(
+                    o,
+                    "      {:<44} {:<28} = {} {}",
+                    s.what,
+                    s.formula,
+                    sci(s.value),
+                    s.unit
+                );
+            }
+            let _ = writeln!(o, "      => {} = {}", c.result_is, sci(c.result));
+        }
+    }
+
+    let _ = writeln!(o, "\nReference (double-double, about 32 digits)");
+    let diag: Vec<String> = run
+        .reference
+        .final_covariance
+        .iter()
+        .enumerate()
+        .map(|(i, r)| sci(r[i]))
+        .collect();
+    let _ = writeln!(o, "  final P diagonal   {}", diag.join("  "));
+    let _ = writeln!(
+        o,
+        "  updates {}; largest cond(S) {}; smallest eigenvalue of P {}",
+        run.reference.updates,
+        sci(run.reference.max_innovation_condition),
+        sci(run.reference.min_eigenvalue)
+    );
+    if let Some(s) = &run.steady {
+        let diag: Vec<String> = s
+            .posterior
+            .iter()
+            .enumerate()
+            .map(|(i, r)| sci(r[i]))
+            .collect();
+        let gain: Vec<String> = s
+            .gain
+            .iter()
+            .map(|r| r.iter().map(|v| sci(*v)).collect::<Vec<_>>().join(" "))
+            .collect();
+        let _ = writeln!(
+            o,
+            "  Riccati steady state (every {} step(s)): posterior diagonal {}; gain [{}]; residual {}",
+            s.steps_per_update,
+            diag.join("  "),
+            gain.join("; "),
+            sci(s.residual)
+        );
+        if let Some(d) = s.reference_distance {
+            let _ = writeln!(
+                o,
+                "  reference's last posterior is {} (relative) from it",
+                sci(d)
+            );
+        }
+    } else if let Some(n) = &run.steady_note {
+        let _ = writeln!(o, "  {n}");
+    }
+    if let Some(e) = &run.external {
+        let _ = writeln!(
+            o,
+            "  external reference: {} rows, largest difference from ours {} (tolerance {}): {}",
+            e.rows,
+            sci(e.max_difference),
+            sci(e.tolerance),
+            if e.agrees { "agrees" } else { "DISAGREES" }
+        );
+    }
+
+    // The table.
+    let vs = &run.variants;
+    let w = 18;
+    let _ = writeln!(o, "\nVariants (cairn-core's own code), cheapest first");
+    let mut line = format!("  {:<32}", "");
+    for v in vs {
+        let _ = write!(line, "{:>w$}", v.name);
+    }
+    let _ = writeln!(o, "{line}");
+    let th = &plan.thresholds;
+    type Cell = fn(&VariantResult) -> String;
+    let rows: Vec<(String, Cell)> = vec![
+        (
+            format!("max rel. error of P (<= {})", sci(th.max_relative_error)),
+            |v| sci(v.figures.max_relative_error),
+        ),
+        ("  at t [s]".into(), |_| String::new()),
+        (
+            format!("max asymmetry (<= {})", sci(th.max_asymmetry)),
+            |v| sci(v.figures.max_asymmetry),
+        ),
+        ("smallest eigenvalue".into(), |v| {
+            sci(v.figures.min_eigenvalue)
+        }),
+        ("lost positive definiteness".into(), |v| {
+            v.figures
+                .first_not_positive_definite
+                .map_or("never".into(), |s| format!("step {s}"))
+        }),
+        (
+            format!("max gain error (<= {})", sci(th.max_gain_error)),
+            |v| {
+                if v.figures.gains_compared == 0 {
+                    "n/a".into()
+                } else {
+                    sci(v.figures.max_gain_error)
+                }
+            },
+        ),
+        ("cond(S) x eps".into(), |v| sci(v.innovation_rounding)),
+        ("min S pivot / diagonal".into(), |v| {
+            if v.figures.min_innovation_pivot_ratio.is_finite() {
+                sci(v.figures.min_innovation_pivot_ratio)
+            } else {
+                "-".into()
+            }
+        }),
+        ("state diff. vs f64 [sigma]".into(), |v| {
+            sci(v.figures.max_state_difference_sigma)
+        }),
+        ("steady-state distance".into(), |v| {
+            v.figures.steady_distance.map_or("-".into(), sci)
+        }),
+        ("refused".into(), |v| {
+            v.figures
+                .failure
+                .as_ref()
+                .map_or("no".into(), |f| format!("step {}", f.step))
+        }),
+        ("verdict".into(), |v| {
+            if v.verdict.passes {
+                "PASS".into()
+            } else {
+                "FAIL".into()
+            }
+        }),
+    ];
+    for (label, cell) in &rows {
+        if label.trim() == "at t [s]" {
+            let mut line = format!("  {label:<32}");
+            for v in vs {
+                let _ = write!(
+                    line,
+                    "{:>w$}",
+                    format!("{:.2}", v.figures.max_relative_error_step as f64 * run.dt)
+                );
+            }
+            let _ = writeln!(o, "{line}");
+            continue;
+        }
+        let mut line = format!("  {label:<32}");
+        for v in vs {
+            let _ = write!(line, "{:>w$}", cell(v));
+        }
+        let _ = writeln!(o, "{line}");
+    }
+    if run.mode == Mode::Covariance && !plan.is_linear() {
+        let _ = writeln!(
+            o,
+            "  (state differences are not judged in covariance-only mode)"
+        );
+    }
+
+    let failing: Vec<&VariantResult> = vs.iter().filter(|v| !v.verdict.passes).collect();
+    if !failing.is_empty() {
+        let _ = writeln!(o, "\nWhy variants fail");
+        for v in failing {
+            for r in &v.verdict.reasons {
+                let _ = writeln!(o, "  {:<16} {r}", v.name);
+            }
+        }
+    }
+    let _ = writeln!(
+        o,
+        "\nGain errors and rounding of S are separate: the Joseph form keeps a gain error out of P to \
+first order, but no covariance form recovers information lost when S = HPH' + R is rounded \
+(cond(S) x eps near 1 or above; factored forms such as U-D delay it)."
+    );
+    let _ = writeln!(
+        o,
+        "\nFlash {}: {}",
+        run.flash,
+        if run.flash_passes { "PASS" } else { "FAIL" }
+    );
+    let _ = writeln!(
+        o,
+        "Cheapest variant that passes: {}",
+        run.cheapest_passing.as_deref().unwrap_or("none")
+    );
+    let _ = writeln!(o, "\n{NOT_A_SAFETY_CASE}");
+    o
+}

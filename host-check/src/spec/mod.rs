@@ -1,0 +1,322 @@
+//! The model spec: a TOML file of our own design, parsed with spans and
+//! validated into one [`Plan`] before any work starts.
+
+mod error;
+mod figures;
+pub mod raw;
+mod validate;
+
+use std::path::{Path, PathBuf};
+
+use nalgebra::DMatrix;
+use serde::Serialize;
+
+pub use error::{Locator, SpecError};
+pub use figures::{ConversionRecord, convert_standalone};
+
+/// One state of the model.
+#[derive(Debug, Clone, Serialize)]
+pub struct StateInfo {
+    /// Name, for reports.
+    pub name: String,
+    /// Unit, for reports.
+    pub unit: String,
+}
+
+/// Scalar type a variant runs in.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "lowercase")]
+pub enum Precision {
+    /// Single precision.
+    F32,
+    /// Double precision.
+    F64,
+}
+
+impl Precision {
+    /// The name used in specs and reports.
+    pub fn name(self) -> &'static str {
+        match self {
+            Precision::F32 => "f32",
+            Precision::F64 => "f64",
+        }
+    }
+
+    /// Machine epsilon.
+    pub fn epsilon(self) -> f64 {
+        match self {
+            Precision::F32 => f64::from(f32::EPSILON),
+            Precision::F64 => f64::EPSILON,
+        }
+    }
+}
+
+/// How a nonlinear model's variants are driven.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum Mode {
+    /// Every variant gets the same Jacobians, taken along the reference
+    /// state trajectory: only arithmetic differs.
+    Covariance,
+    /// Every variant runs its own nonlinear filter end to end.
+    EndToEnd,
+}
+
+/// The process model, ready to run.
+#[derive(Debug, Clone)]
+pub enum ModelPlan {
+    /// x(k+1) = F x(k) + w, w ~ N(0, Q).
+    Linear {
+        /// Transition matrix.
+        f: DMatrix<f64>,
+        /// Discrete process noise covariance.
+        q: DMatrix<f64>,
+        /// `true` when F and Q came from a continuous model by Van Loan's method.
+        discretised: bool,
+    },
+    /// cairn-core's planar pose model driven by odometry.
+    Pose {
+        /// Variance of one step's speed reading, (m/s)^2.
+        speed_var: f64,
+        /// Variance of one step's yaw-rate reading, (rad/s)^2.
+        yaw_rate_var: f64,
+        /// Extra heading variance per step, rad^2.
+        heading_drift_var: f64,
+        /// The odometry the robot sees.
+        profile: Profile,
+    },
+}
+
+/// An odometry profile: true speed and yaw rate against time.
+#[derive(Debug, Clone)]
+pub enum Profile {
+    /// Segments repeated until the horizon.
+    Segments(Vec<Segment>),
+    /// Recorded samples (time s, speed, yaw rate), held between samples and
+    /// repeated until the horizon.
+    Recorded(Vec<[f64; 3]>),
+}
+
+/// One segment of constant speed and yaw rate.
+#[derive(Debug, Clone, Copy)]
+pub struct Segment {
+    /// Duration, s.
+    pub seconds: f64,
+    /// Speed, m/s.
+    pub speed: f64,
+    /// Yaw rate, rad/s.
+    pub yaw_rate: f64,
+}
+
+impl Profile {
+    /// True (speed, yaw rate) at time `t`.
+    pub fn at(&self, t: f64) -> (f64, f64) {
+        match self {
+            Profile::Segments(segs) => {
+                let total: f64 = segs.iter().map(|s| s.seconds).sum();
+                let mut t = if total > 0.0 {
+                    t.rem_euclid(total)
+                } else {
+                    0.0
+                };
+                for s in segs {
+                    if t < s.seconds {
+                        return (s.speed, s.yaw_rate);
+                    }
+                    t -= s.seconds;
+                }
+                segs.last().map_or((0.0, 0.0), |s| (s.speed, s.yaw_rate))
+            }
+            Profile::Recorded(rows) => {
+                let (first, last) = match (rows.first(), rows.last()) {
+                    (Some(f), Some(l)) => (f[0], l[0]),
+                    _ => return (0.0, 0.0),
+                };
+                let span = last - first;
+                let t = if span > 0.0 {
+                    first + (t - first).rem_euclid(span)
+                } else {
+                    first
+                };
+                let i = rows.partition_point(|r| r[0] <= t).saturating_sub(1);
+                (rows[i][1], rows[i][2])
+            }
+        }
+    }
+}
+
+/// What a channel measures.
+#[derive(Debug, Clone)]
+pub enum ChannelKind {
+    /// z = H x + v.
+    Linear(DMatrix<f64>),
+    /// The pose model's position fix (x, y).
+    Position,
+    /// The pose model's heading fix.
+    Heading,
+}
+
+/// A measurement channel, ready to run.
+#[derive(Debug, Clone)]
+pub struct ChannelPlan {
+    /// Name, for reports.
+    pub name: String,
+    /// Number of components.
+    pub m: usize,
+    /// What it measures.
+    pub kind: ChannelKind,
+    /// Noise covariance.
+    pub r: DMatrix<f64>,
+    /// Rate, Hz.
+    pub rate_hz: f64,
+    /// Windows [start, end) in seconds without measurements.
+    pub dropouts: Vec<(f64, f64)>,
+    /// Chi-square gate, if any.
+    pub gate: Option<f64>,
+}
+
+impl ChannelPlan {
+    /// `true` when the channel delivers a measurement at step `k` (1-based)
+    /// of a filter stepping at `step_hz`.
+    pub fn due(&self, k: u64, step_hz: f64) -> bool {
+        let ratio = self.rate_hz / step_hz;
+        let now = (k as f64 * ratio + 1e-9).floor();
+        let before = ((k - 1) as f64 * ratio + 1e-9).floor();
+        if now <= before {
+            return false;
+        }
+        let t = k as f64 / step_hz;
+        !self.dropouts.iter().any(|&(a, b)| t >= a && t < b)
+    }
+
+    /// The measurement matrix H for a pose-model channel or the given one.
+    pub fn h(&self, n: usize) -> DMatrix<f64> {
+        match &self.kind {
+            ChannelKind::Linear(h) => h.clone(),
+            ChannelKind::Position => DMatrix::from_fn(2, n, |i, j| f64::from(u8::from(i == j))),
+            ChannelKind::Heading => DMatrix::from_fn(1, n, |_, j| f64::from(u8::from(j == 2))),
+        }
+    }
+}
+
+/// Pass/fail thresholds.
+#[derive(Debug, Clone, Copy, Serialize)]
+pub struct Thresholds {
+    /// Largest relative covariance error (Frobenius) against the reference.
+    pub max_relative_error: f64,
+    /// Largest asymmetry relative to the covariance's Frobenius norm.
+    pub max_asymmetry: f64,
+    /// Largest relative gain error against the reference gain.
+    pub max_gain_error: f64,
+    /// Largest relative distance of the late covariance from the Riccati
+    /// steady state, when one is checked.
+    pub max_steady_distance: Option<f64>,
+}
+
+impl Default for Thresholds {
+    fn default() -> Self {
+        Self {
+            max_relative_error: 1e-3,
+            max_asymmetry: 1e-6,
+            max_gain_error: 1e-2,
+            max_steady_distance: None,
+        }
+    }
+}
+
+/// The variant that goes on the target.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize)]
+pub struct Flash {
+    /// Its scalar type.
+    pub precision: Precision,
+    /// Its covariance form's name.
+    pub form: String,
+}
+
+/// An external reference trajectory file.
+#[derive(Debug, Clone)]
+pub struct ExternalReference {
+    /// The CSV file.
+    pub path: PathBuf,
+    /// Relative tolerance for agreement with our own reference.
+    pub tolerance: f64,
+}
+
+/// A validated spec: everything the runner needs, nothing left to check.
+#[derive(Debug, Clone)]
+pub struct Plan {
+    /// One-line description.
+    pub title: String,
+    /// Where the spec came from.
+    pub file: String,
+    /// The states.
+    pub states: Vec<StateInfo>,
+    /// Filter step rate, Hz.
+    pub step_hz: f64,
+    /// Number of filter steps.
+    pub steps: u64,
+    /// Initial state.
+    pub x0: Vec<f64>,
+    /// Initial covariance.
+    pub p0: DMatrix<f64>,
+    /// The process model.
+    pub model: ModelPlan,
+    /// The measurement channels.
+    pub channels: Vec<ChannelPlan>,
+    /// Verdict thresholds.
+    pub thresholds: Thresholds,
+    /// The variant to flash.
+    pub flash: Flash,
+    /// Covariance-only or end-to-end (nonlinear models).
+    pub mode: Mode,
+    /// External reference, if given.
+    pub external: Option<ExternalReference>,
+    /// Every noise-figure conversion, in order.
+    pub conversions: Vec<ConversionRecord>,
+    /// Seed of the synthetic noise.
+    pub seed: u64,
+}
+
+impl Plan {
+    /// Number of states.
+    pub fn n(&self) -> usize {
+        self.states.len()
+    }
+
+    /// Step length, s.
+    pub fn dt(&self) -> f64 {
+        1.0 / self.step_hz
+    }
+
+    /// `true` for a linear time-invariant model.
+    pub fn is_linear(&self) -> bool {
+        matches!(self.model, ModelPlan::Linear { .. })
+    }
+}
+
+/// Reads and validates a spec file.
+///
+/// # Errors
+/// A [`SpecError`] naming file, line and field for anything malformed or
+/// inconsistent, or for a file that cannot be read.
+pub fn load(path: &Path) -> Result<Plan, SpecError> {
+    let file = path.display().to_string();
+    let text = std::fs::read_to_string(path).map_err(|e| SpecError {
+        file: file.clone(),
+        line: 0,
+        column: 0,
+        field: "(file)".into(),
+        message: format!("cannot read the spec file: {e}"),
+    })?;
+    parse(&file, &text, path.parent())
+}
+
+/// Parses and validates spec text; `base` resolves relative file names.
+///
+/// # Errors
+/// A [`SpecError`] naming file, line and field.
+pub fn parse(file: &str, text: &str, base: Option<&Path>) -> Result<Plan, SpecError> {
+    let loc = Locator::new(file, text);
+    let raw: raw::RawSpec = toml::from_str(text).map_err(|e| loc.from_toml(&e))?;
+    validate::plan(&loc, raw, base)
+}

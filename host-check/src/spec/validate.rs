@@ -1,0 +1,933 @@
+//! Checks a raw spec and turns it into a [`Plan`]: dimensions, symmetry,
+//! definiteness, signs, rates and units, each error located in the file.
+
+use std::ops::Range;
+use std::path::Path;
+
+use nalgebra::DMatrix;
+use toml::Spanned;
+
+use super::error::{Locator, SpecError};
+use super::figures::{self, ConversionRecord, Use};
+use super::raw::{RawChannel, RawMatrix, RawModel, RawNoise, RawSpec, RawVector};
+use super::{
+    ChannelKind, ChannelPlan, ExternalReference, Flash, Mode, ModelPlan, Plan, Precision, Profile,
+    Segment, StateInfo, Thresholds,
+};
+use crate::numeric::vanloan;
+use crate::run::variants;
+
+/// Largest supported state dimension.
+pub const MAX_STATES: usize = 9;
+/// Largest supported measurement dimension per channel.
+pub const MAX_COMPONENTS: usize = 3;
+/// Largest horizon in steps (about 58 days at 200 Hz).
+const MAX_STEPS: f64 = 1e9;
+
+type R<T> = Result<T, SpecError>;
+
+pub(super) fn plan(loc: &Locator<'_>, raw: RawSpec, base: Option<&Path>) -> R<Plan> {
+    let mut conversions = Vec::new();
+
+    // States.
+    if raw.state.is_empty() {
+        return Err(loc.error(0..0, "state", "at least one [[state]] is required"));
+    }
+    let n = raw.state.len();
+    if n > MAX_STATES {
+        return Err(loc.error(
+            raw.state[MAX_STATES].span(),
+            "state",
+            format!("{n} states: the verifier supports 1 to {MAX_STATES} states"),
+        ));
+    }
+    let mut states = Vec::with_capacity(n);
+    for s in &raw.state {
+        let s = s.get_ref();
+        let name = s.name.get_ref().trim().to_string();
+        if name.is_empty() {
+            return Err(loc.error(s.name.span(), "state.name", "empty state name"));
+        }
+        if states.iter().any(|o: &StateInfo| o.name == name) {
+            return Err(loc.error(
+                s.name.span(),
+                "state.name",
+                format!("state `{name}` is named twice"),
+            ));
+        }
+        states.push(StateInfo {
+            name,
+            unit: s.unit.get_ref().clone(),
+        });
+    }
+
+    // Step rate and horizon.
+    let model = raw.model.get_ref();
+    let step_hz = positive(loc, &model.step_hz, "model.step_hz")?;
+    let dt = 1.0 / step_hz;
+    let steps = horizon(loc, &raw, step_hz)?;
+
+    // Initial state.
+    let start = raw.start.get_ref();
+    let x0 = vector(loc, &start.x, "start.x", n)?;
+    let p0 = covariance_choice(
+        loc,
+        raw.start.span(),
+        "start",
+        n,
+        [(start.p.as_ref(), "start.p"), (None, ""), (None, "")],
+        start.p_diag.as_ref().map(|v| (v, "start.p_diag", false)),
+        start.std.as_ref().map(|v| (v, "start.std", true)),
+        true,
+    )?;
+
+    // Process model.
+    let kind = model.kind.get_ref().as_str();
+    let (model_plan, mode) = match kind {
+        "discrete" => {
+            forbid_pose_fields(loc, model, kind)?;
+            forbid(loc, model.a.as_ref().map(Spanned::span), "model.a", kind)?;
+            forbid(loc, model.g.as_ref().map(Spanned::span), "model.g", kind)?;
+            forbid(
+                loc,
+                model.noise.as_ref().map(Spanned::span),
+                "model.noise",
+                kind,
+            )?;
+            forbid(
+                loc,
+                model.mode.as_ref().map(Spanned::span),
+                "model.mode",
+                kind,
+            )?;
+            let f = need(loc, model.f.as_ref(), raw.model.span(), "model.f", kind)?;
+            let f = matrix(loc, f, "model.f", n, n)?;
+            let q = covariance_choice(
+                loc,
+                raw.model.span(),
+                "model.q",
+                n,
+                [(model.q.as_ref(), "model.q"), (None, ""), (None, "")],
+                model.q_diag.as_ref().map(|v| (v, "model.q_diag", false)),
+                None,
+                false,
+            )?;
+            (
+                ModelPlan::Linear {
+                    f,
+                    q,
+                    discretised: false,
+                },
+                Mode::Covariance,
+            )
+        }
+        "continuous" => {
+            forbid_pose_fields(loc, model, kind)?;
+            forbid(loc, model.f.as_ref().map(Spanned::span), "model.f", kind)?;
+            forbid(loc, model.q.as_ref().map(Spanned::span), "model.q", kind)?;
+            forbid(
+                loc,
+                model.q_diag.as_ref().map(Spanned::span),
+                "model.q_diag",
+                kind,
+            )?;
+            forbid(
+                loc,
+                model.mode.as_ref().map(Spanned::span),
+                "model.mode",
+                kind,
+            )?;
+            let a = need(loc, model.a.as_ref(), raw.model.span(), "model.a", kind)?;
+            let a = matrix(loc, a, "model.a", n, n)?;
+            let g_raw = need(loc, model.g.as_ref(), raw.model.span(), "model.g", kind)?;
+            let cols = g_raw.get_ref().first().map_or(0, Vec::len);
+            if cols == 0 {
+                return Err(loc.error(g_raw.span(), "model.g", "the noise-input matrix is empty"));
+            }
+            let g = matrix(loc, g_raw, "model.g", n, cols)?;
+            let noise = need(
+                loc,
+                model.noise.as_ref(),
+                raw.model.span(),
+                "model.noise",
+                kind,
+            )?;
+            if noise.get_ref().len() != cols {
+                return Err(loc.error(
+                    noise.span(),
+                    "model.noise",
+                    format!(
+                        "{} noise figures for {cols} columns of model.g: give one per column",
+                        noise.get_ref().len()
+                    ),
+                ));
+            }
+            let mut qc = DMatrix::zeros(cols, cols);
+            for (i, fig) in noise.get_ref().iter().enumerate() {
+                let field = format!("model.noise[{i}]");
+                let (w, rec) = figures::convert(loc, fig, &field, Use::Intensity, step_hz)?;
+                qc[(i, i)] = w;
+                conversions.push(rec);
+            }
+            let (f, q) = vanloan::discretize(&a, &g, &qc, dt).map_err(|e| {
+                loc.error(
+                    raw.model.span(),
+                    "model.a",
+                    format!("cannot discretise the continuous model: {e}"),
+                )
+            })?;
+            let q = (&q + q.transpose()) * 0.5;
+            (
+                ModelPlan::Linear {
+                    f,
+                    q,
+                    discretised: true,
+                },
+                Mode::Covariance,
+            )
+        }
+        "planar-pose" => {
+            for (s, f) in [
+                (model.f.as_ref().map(Spanned::span), "model.f"),
+                (model.q.as_ref().map(Spanned::span), "model.q"),
+                (model.a.as_ref().map(Spanned::span), "model.a"),
+                (model.g.as_ref().map(Spanned::span), "model.g"),
+            ] {
+                forbid(loc, s, f, kind)?;
+            }
+            forbid(
+                loc,
+                model.q_diag.as_ref().map(Spanned::span),
+                "model.q_diag",
+                kind,
+            )?;
+            forbid(
+                loc,
+                model.noise.as_ref().map(Spanned::span),
+                "model.noise",
+                kind,
+            )?;
+            if n != 3 {
+                return Err(loc.error(
+                    model.kind.span(),
+                    "model.kind",
+                    format!(
+                        "the planar pose model has 3 states (x, y, heading), the spec lists {n}"
+                    ),
+                ));
+            }
+            let speed = need(
+                loc,
+                model.speed_noise.as_ref(),
+                raw.model.span(),
+                "model.speed_noise",
+                kind,
+            )?;
+            let (speed_var, rec) = figures::convert(
+                loc,
+                speed,
+                "model.speed_noise",
+                Use::SampleVariance(step_hz),
+                step_hz,
+            )?;
+            conversions.push(rec);
+            let yaw = need(
+                loc,
+                model.yaw_rate_noise.as_ref(),
+                raw.model.span(),
+                "model.yaw_rate_noise",
+                kind,
+            )?;
+            let (yaw_rate_var, rec) = figures::convert(
+                loc,
+                yaw,
+                "model.yaw_rate_noise",
+                Use::SampleVariance(step_hz),
+                step_hz,
+            )?;
+            conversions.push(rec);
+            let heading_drift_var = match model.heading_drift.as_ref() {
+                Some(fig) => {
+                    let (v, rec) = figures::convert(
+                        loc,
+                        fig,
+                        "model.heading_drift",
+                        Use::WalkVariance(dt),
+                        step_hz,
+                    )?;
+                    conversions.push(rec);
+                    v
+                }
+                None => 0.0,
+            };
+            let profile = profile(loc, model, raw.model.span(), base)?;
+            let mode = match model.mode.as_ref() {
+                None => Mode::Covariance,
+                Some(m) => match m.get_ref().as_str() {
+                    "covariance" => Mode::Covariance,
+                    "end-to-end" => Mode::EndToEnd,
+                    other => {
+                        return Err(loc.error(
+                            m.span(),
+                            "model.mode",
+                            format!("unknown mode `{other}`: use \"covariance\" or \"end-to-end\""),
+                        ));
+                    }
+                },
+            };
+            (
+                ModelPlan::Pose {
+                    speed_var,
+                    yaw_rate_var,
+                    heading_drift_var,
+                    profile,
+                },
+                mode,
+            )
+        }
+        other => {
+            return Err(loc.error(
+                model.kind.span(),
+                "model.kind",
+                format!("unknown model kind `{other}`: use \"continuous\", \"discrete\" or \"planar-pose\""),
+            ));
+        }
+    };
+    let pose = matches!(model_plan, ModelPlan::Pose { .. });
+
+    // Channels.
+    let mut channels = Vec::with_capacity(raw.channel.len());
+    for (ci, ch) in raw.channel.iter().enumerate() {
+        let c = channel(loc, ch, ci, n, step_hz, pose, &mut conversions)?;
+        if channels.iter().any(|o: &ChannelPlan| o.name == c.name) {
+            return Err(loc.error(
+                ch.get_ref().name.span(),
+                "channel.name",
+                format!("channel `{}` is named twice", c.name),
+            ));
+        }
+        channels.push(c);
+    }
+
+    // Verdict thresholds.
+    let mut thresholds = Thresholds::default();
+    if let Some(v) = raw.verdict.as_ref() {
+        let v = v.get_ref();
+        if let Some(t) = &v.max_relative_error {
+            thresholds.max_relative_error = positive(loc, t, "verdict.max_relative_error")?;
+        }
+        if let Some(t) = &v.max_asymmetry {
+            thresholds.max_asymmetry = positive(loc, t, "verdict.max_asymmetry")?;
+        }
+        if let Some(t) = &v.max_gain_error {
+            thresholds.max_gain_error = positive(loc, t, "verdict.max_gain_error")?;
+        }
+        if let Some(t) = &v.max_steady_distance {
+            thresholds.max_steady_distance = Some(positive(loc, t, "verdict.max_steady_distance")?);
+        }
+    }
+
+    // Variant to flash.
+    let mut flash = Flash {
+        precision: Precision::F32,
+        form: "joseph".into(),
+    };
+    if let Some(fl) = raw.flash.as_ref() {
+        let fl = fl.get_ref();
+        if let Some(s) = &fl.scalar {
+            flash.precision = match s.get_ref().as_str() {
+                "f32" => Precision::F32,
+                "f64" => Precision::F64,
+                other => {
+                    return Err(loc.error(
+                        s.span(),
+                        "flash.scalar",
+                        format!("unknown scalar `{other}`: use \"f32\" or \"f64\""),
+                    ));
+                }
+            };
+        }
+        if let Some(f) = &fl.form {
+            flash.form = f.get_ref().clone();
+        }
+        if variants::find(flash.precision, &flash.form).is_none() {
+            let span = fl.form.as_ref().map_or(0..0, Spanned::span);
+            return Err(loc.error(
+                span,
+                "flash.form",
+                format!(
+                    "no variant `{} {}`; known forms: {}",
+                    flash.precision.name(),
+                    flash.form,
+                    variants::form_names().join(", ")
+                ),
+            ));
+        }
+    }
+
+    // External reference.
+    let external = match raw.reference.as_ref() {
+        None => None,
+        Some(r) => {
+            let r = r.get_ref();
+            let path = base.map_or_else(|| r.csv.get_ref().into(), |b| b.join(r.csv.get_ref()));
+            if !path.is_file() {
+                return Err(loc.error(
+                    r.csv.span(),
+                    "reference.csv",
+                    format!("no such file: {}", path.display()),
+                ));
+            }
+            let tolerance = match &r.tolerance {
+                Some(t) => positive(loc, t, "reference.tolerance")?,
+                None => 1e-6,
+            };
+            Some(ExternalReference { path, tolerance })
+        }
+    };
+
+    let seed = raw.seed.as_ref().map_or(0x5eed_ca1f, |s| *s.get_ref());
+
+    Ok(Plan {
+        title: raw.title.unwrap_or_else(|| loc.file().to_string()),
+        file: loc.file().to_string(),
+        states,
+        step_hz,
+        steps,
+        x0,
+        p0,
+        model: model_plan,
+        channels,
+        thresholds,
+        flash,
+        mode,
+        external,
+        conversions,
+        seed,
+    })
+}
+
+fn horizon(loc: &Locator<'_>, raw: &RawSpec, step_hz: f64) -> R<u64> {
+    let h = raw.horizon.get_ref();
+    let given = [h.seconds.is_some(), h.hours.is_some(), h.steps.is_some()]
+        .iter()
+        .filter(|b| **b)
+        .count();
+    if given != 1 {
+        return Err(loc.error(
+            raw.horizon.span(),
+            "horizon",
+            "give exactly one of `seconds`, `hours` or `steps`",
+        ));
+    }
+    let steps = if let Some(s) = &h.steps {
+        let v = *s.get_ref();
+        if v <= 0 || v as f64 > MAX_STEPS {
+            return Err(loc.error(
+                s.span(),
+                "horizon.steps",
+                format!("{v} steps: use 1 to {MAX_STEPS:e}"),
+            ));
+        }
+        v as f64
+    } else if let Some(s) = &h.seconds {
+        (positive(loc, s, "horizon.seconds")? * step_hz).round()
+    } else if let Some(s) = &h.hours {
+        (positive(loc, s, "horizon.hours")? * 3600.0 * step_hz).round()
+    } else {
+        0.0
+    };
+    if !(1.0..=MAX_STEPS).contains(&steps) {
+        return Err(loc.error(
+            raw.horizon.span(),
+            "horizon",
+            format!("the horizon is {steps} steps: use 1 to {MAX_STEPS:e}"),
+        ));
+    }
+    Ok(steps as u64)
+}
+
+fn channel(
+    loc: &Locator<'_>,
+    ch: &Spanned<RawChannel>,
+    ci: usize,
+    n: usize,
+    step_hz: f64,
+    pose: bool,
+    conversions: &mut Vec<ConversionRecord>,
+) -> R<ChannelPlan> {
+    let c = ch.get_ref();
+    let name = c.name.get_ref().trim().to_string();
+    let at = |f: &str| format!("channel[{ci}].{f}");
+    if name.is_empty() {
+        return Err(loc.error(c.name.span(), &at("name"), "empty channel name"));
+    }
+    let rate_hz = positive(loc, &c.rate_hz, &at("rate_hz"))?;
+    if rate_hz > step_hz * (1.0 + 1e-12) {
+        return Err(loc.error(
+            c.rate_hz.span(),
+            &at("rate_hz"),
+            format!("{rate_hz} Hz is faster than the filter's step rate ({step_hz} Hz)"),
+        ));
+    }
+    let kind = if pose {
+        if let Some(h) = &c.h {
+            return Err(loc.error(h.span(), &at("h"), "pose-model channels use `fix`, not `h`"));
+        }
+        let fix = c.fix.as_ref().ok_or_else(|| {
+            loc.error(
+                ch.span(),
+                &at("fix"),
+                "missing `fix` (\"position\" or \"heading\")",
+            )
+        })?;
+        match fix.get_ref().as_str() {
+            "position" => ChannelKind::Position,
+            "heading" => ChannelKind::Heading,
+            other => {
+                return Err(loc.error(
+                    fix.span(),
+                    &at("fix"),
+                    format!("unknown fix `{other}`: use \"position\" or \"heading\""),
+                ));
+            }
+        }
+    } else {
+        if let Some(f) = &c.fix {
+            return Err(loc.error(
+                f.span(),
+                &at("fix"),
+                "`fix` is for planar-pose models; give `h`",
+            ));
+        }
+        let h =
+            c.h.as_ref()
+                .ok_or_else(|| loc.error(ch.span(), &at("h"), "missing measurement matrix `h`"))?;
+        let m = h.get_ref().len();
+        if !(1..=MAX_COMPONENTS).contains(&m) {
+            return Err(loc.error(
+                h.span(),
+                &at("h"),
+                format!(
+                    "{m} rows: the verifier supports 1 to {MAX_COMPONENTS} components per channel"
+                ),
+            ));
+        }
+        ChannelKind::Linear(matrix(loc, h, &at("h"), m, n)?)
+    };
+    let m = match &kind {
+        ChannelKind::Linear(h) => h.nrows(),
+        ChannelKind::Position => 2,
+        ChannelKind::Heading => 1,
+    };
+    let given = [c.r.is_some(), c.r_diag.is_some(), c.noise.is_some()]
+        .iter()
+        .filter(|b| **b)
+        .count();
+    if given != 1 {
+        return Err(loc.error(
+            ch.span(),
+            &at("r"),
+            "give exactly one of `r`, `r_diag` or `noise`",
+        ));
+    }
+    let r = if let Some(noise) = &c.noise {
+        if noise.get_ref().len() != m {
+            return Err(loc.error(
+                noise.span(),
+                &at("noise"),
+                format!("{} noise figures for {m} components", noise.get_ref().len()),
+            ));
+        }
+        let mut r = DMatrix::zeros(m, m);
+        for (i, fig) in noise.get_ref().iter().enumerate() {
+            let field = at(&format!("noise[{i}]"));
+            let (v, rec) =
+                figures::convert(loc, fig, &field, Use::SampleVariance(rate_hz), step_hz)?;
+            if v <= 0.0 {
+                return Err(loc.error(
+                    fig.span(),
+                    &field,
+                    "the measurement variance must be positive",
+                ));
+            }
+            r[(i, i)] = v;
+            conversions.push(rec);
+        }
+        r
+    } else {
+        covariance_choice(
+            loc,
+            ch.span(),
+            &at("r"),
+            m,
+            [(c.r.as_ref(), "r"), (None, ""), (None, "")],
+            c.r_diag.as_ref().map(|v| (v, "r_diag", false)),
+            None,
+            true,
+        )
+        .map_err(|mut e| {
+            if !e.field.starts_with("channel") {
+                e.field = at(&e.field);
+            }
+            e
+        })?
+    };
+    let mut dropouts = Vec::new();
+    if let Some(d) = &c.dropouts {
+        for w in d.get_ref() {
+            let v = w.get_ref();
+            if v.len() != 2 || !(v[0].is_finite() && v[1].is_finite()) || v[0] < 0.0 || v[1] <= v[0]
+            {
+                return Err(loc.error(
+                    w.span(),
+                    &at("dropouts"),
+                    "a dropout window is [start_s, end_s] with 0 <= start < end",
+                ));
+            }
+            dropouts.push((v[0], v[1]));
+        }
+    }
+    let gate = match &c.gate {
+        Some(g) => Some(positive(loc, g, &at("gate"))?),
+        None => None,
+    };
+    Ok(ChannelPlan {
+        name,
+        m,
+        kind,
+        r,
+        rate_hz,
+        dropouts,
+        gate,
+    })
+}
+
+fn profile(
+    loc: &Locator<'_>,
+    model: &RawModel,
+    model_span: Range<usize>,
+    base: Option<&Path>,
+) -> R<Profile> {
+    match (&model.profile, &model.profile_csv) {
+        (Some(p), None) => {
+            if p.get_ref().is_empty() {
+                return Err(loc.error(p.span(), "model.profile", "the profile has no segments"));
+            }
+            let mut segs = Vec::new();
+            for (i, s) in p.get_ref().iter().enumerate() {
+                let s = s.get_ref();
+                let seconds = positive(loc, &s.seconds, &format!("model.profile[{i}].seconds"))?;
+                let speed = finite(loc, &s.speed, &format!("model.profile[{i}].speed"))?;
+                let yaw_rate = match &s.yaw_rate {
+                    Some(y) => finite(loc, y, &format!("model.profile[{i}].yaw_rate"))?,
+                    None => 0.0,
+                };
+                segs.push(Segment {
+                    seconds,
+                    speed,
+                    yaw_rate,
+                });
+            }
+            Ok(Profile::Segments(segs))
+        }
+        (None, Some(csv)) => {
+            let path = base.map_or_else(|| csv.get_ref().into(), |b| b.join(csv.get_ref()));
+            let text = std::fs::read_to_string(&path).map_err(|e| {
+                loc.error(
+                    csv.span(),
+                    "model.profile_csv",
+                    format!("cannot read {}: {e}", path.display()),
+                )
+            })?;
+            let mut rows: Vec<[f64; 3]> = Vec::new();
+            for (li, line) in text.lines().enumerate() {
+                let line = line.trim();
+                if line.is_empty() || line.starts_with('#') {
+                    continue;
+                }
+                let cells: Vec<&str> = line.split(',').map(str::trim).collect();
+                let parsed: Option<Vec<f64>> =
+                    cells.iter().map(|c| c.parse::<f64>().ok()).collect();
+                match parsed {
+                    None if rows.is_empty() && li == 0 => continue, // header
+                    Some(v) if v.len() == 3 && v.iter().all(|x| x.is_finite()) => {
+                        if rows.last().is_some_and(|r| r[0] >= v[0]) {
+                            return Err(loc.error(
+                                csv.span(),
+                                "model.profile_csv",
+                                format!("{}:{}: times must increase", path.display(), li + 1),
+                            ));
+                        }
+                        rows.push([v[0], v[1], v[2]]);
+                    }
+                    _ => {
+                        return Err(loc.error(
+                            csv.span(),
+                            "model.profile_csv",
+                            format!(
+                                "{}:{}: expected three numbers `time_s, speed, yaw_rate`",
+                                path.display(),
+                                li + 1
+                            ),
+                        ));
+                    }
+                }
+            }
+            if rows.is_empty() {
+                return Err(loc.error(
+                    csv.span(),
+                    "model.profile_csv",
+                    "the recorded profile is empty",
+                ));
+            }
+            Ok(Profile::Recorded(rows))
+        }
+        _ => Err(loc.error(
+            model_span,
+            "model.profile",
+            "give exactly one of `profile` (segments) or `profile_csv` (recorded odometry)",
+        )),
+    }
+}
+
+fn forbid_pose_fields(loc: &Locator<'_>, model: &RawModel, kind: &str) -> R<()> {
+    forbid(
+        loc,
+        model.speed_noise.as_ref().map(Spanned::span),
+        "model.speed_noise",
+        kind,
+    )?;
+    forbid(
+        loc,
+        model.yaw_rate_noise.as_ref().map(Spanned::span),
+        "model.yaw_rate_noise",
+        kind,
+    )?;
+    forbid(
+        loc,
+        model.heading_drift.as_ref().map(Spanned::span),
+        "model.heading_drift",
+        kind,
+    )?;
+    forbid(
+        loc,
+        model.profile.as_ref().map(Spanned::span),
+        "model.profile",
+        kind,
+    )?;
+    forbid(
+        loc,
+        model.profile_csv.as_ref().map(Spanned::span),
+        "model.profile_csv",
+        kind,
+    )
+}
+
+fn forbid(loc: &Locator<'_>, span: Option<Range<usize>>, field: &str, kind: &str) -> R<()> {
+    match span {
+        Some(s) => Err(loc.error(s, field, format!("not used by kind = \"{kind}\""))),
+        None => Ok(()),
+    }
+}
+
+fn need<'a, T>(
+    loc: &Locator<'_>,
+    v: Option<&'a T>,
+    span: Range<usize>,
+    field: &str,
+    kind: &str,
+) -> R<&'a T> {
+    v.ok_or_else(|| loc.error(span, field, format!("required by kind = \"{kind}\"")))
+}
+
+fn positive(loc: &Locator<'_>, v: &Spanned<f64>, field: &str) -> R<f64> {
+    let x = *v.get_ref();
+    if x.is_finite() && x > 0.0 {
+        Ok(x)
+    } else {
+        Err(loc.error(
+            v.span(),
+            field,
+            format!("must be a positive number, got {x}"),
+        ))
+    }
+}
+
+fn finite(loc: &Locator<'_>, v: &Spanned<f64>, field: &str) -> R<f64> {
+    let x = *v.get_ref();
+    if x.is_finite() {
+        Ok(x)
+    } else {
+        Err(loc.error(v.span(), field, format!("must be finite, got {x}")))
+    }
+}
+
+fn vector(loc: &Locator<'_>, v: &RawVector, field: &str, len: usize) -> R<Vec<f64>> {
+    let x = v.get_ref();
+    if x.len() != len {
+        return Err(loc.error(
+            v.span(),
+            field,
+            format!("has {} entries, expected {len}", x.len()),
+        ));
+    }
+    if let Some(i) = x.iter().position(|e| !e.is_finite()) {
+        return Err(loc.error(v.span(), field, format!("entry {i} is not finite")));
+    }
+    Ok(x.clone())
+}
+
+fn matrix(
+    loc: &Locator<'_>,
+    m: &RawMatrix,
+    field: &str,
+    rows: usize,
+    cols: usize,
+) -> R<DMatrix<f64>> {
+    let v = m.get_ref();
+    if v.len() != rows {
+        return Err(loc.error(
+            m.span(),
+            field,
+            format!("has {} rows, expected {rows} ({rows} x {cols})", v.len()),
+        ));
+    }
+    for (i, row) in v.iter().enumerate() {
+        if row.len() != cols {
+            return Err(loc.error(
+                m.span(),
+                field,
+                format!(
+                    "row {i} has {} entries, expected {cols} ({rows} x {cols})",
+                    row.len()
+                ),
+            ));
+        }
+        if let Some(j) = row.iter().position(|e| !e.is_finite()) {
+            return Err(loc.error(m.span(), field, format!("entry ({i}, {j}) is not finite")));
+        }
+    }
+    Ok(DMatrix::from_fn(rows, cols, |i, j| v[i][j]))
+}
+
+/// A covariance given as a full matrix, a diagonal or standard deviations
+/// (exactly one), checked for symmetry and definiteness (`strict`: positive
+/// definite, otherwise positive semidefinite).
+#[allow(clippy::too_many_arguments)]
+fn covariance_choice(
+    loc: &Locator<'_>,
+    span: Range<usize>,
+    field: &str,
+    n: usize,
+    full: [(Option<&RawMatrix>, &str); 3],
+    diag: Option<(&RawVector, &str, bool)>,
+    std: Option<(&RawVector, &str, bool)>,
+    strict: bool,
+) -> R<DMatrix<f64>> {
+    let full = full[0];
+    let count =
+        usize::from(full.0.is_some()) + usize::from(diag.is_some()) + usize::from(std.is_some());
+    if count != 1 {
+        return Err(loc.error(
+            span,
+            field,
+            "give the covariance exactly once (full matrix, `_diag` variances or `std`)",
+        ));
+    }
+    if let Some(m) = full.0 {
+        let p = matrix(loc, m, full.1, n, n)?;
+        check_covariance(loc, m.span(), full.1, &p, strict)?;
+        return Ok(p);
+    }
+    let (v, name, is_std) = diag
+        .or(std)
+        .ok_or_else(|| loc.error(span.clone(), field, "missing"))?;
+    let d = vector(loc, v, name, n)?;
+    let mut p = DMatrix::zeros(n, n);
+    for (i, &e) in d.iter().enumerate() {
+        if e < 0.0 || (strict && e == 0.0) {
+            let what = if is_std {
+                "standard deviation"
+            } else {
+                "variance"
+            };
+            let need = if strict { "positive" } else { "non-negative" };
+            return Err(loc.error(
+                v.span(),
+                name,
+                format!("entry {i}: a {what} must be {need}, got {e}"),
+            ));
+        }
+        p[(i, i)] = if is_std { e * e } else { e };
+    }
+    Ok(p)
+}
+
+fn check_covariance(
+    loc: &Locator<'_>,
+    span: Range<usize>,
+    field: &str,
+    p: &DMatrix<f64>,
+    strict: bool,
+) -> R<()> {
+    let n = p.nrows();
+    let scale = p.iter().fold(0.0_f64, |a, v| a.max(v.abs()));
+    for i in 0..n {
+        if p[(i, i)] < 0.0 {
+            return Err(loc.error(
+                span,
+                field,
+                format!("diagonal entry {i} is a negative variance ({})", p[(i, i)]),
+            ));
+        }
+        for j in 0..i {
+            if (p[(i, j)] - p[(j, i)]).abs() > 1e-12 * scale {
+                return Err(loc.error(
+                    span,
+                    field,
+                    format!(
+                        "not symmetric: entry ({i}, {j}) = {} but ({j}, {i}) = {}",
+                        p[(i, j)],
+                        p[(j, i)]
+                    ),
+                ));
+            }
+        }
+    }
+    let eig = p.clone().symmetric_eigenvalues();
+    let min = eig.iter().copied().fold(f64::INFINITY, f64::min);
+    if strict {
+        if p.clone().cholesky().is_none() || min <= 0.0 {
+            return Err(loc.error(
+                span,
+                field,
+                format!("not positive definite (smallest eigenvalue {min:.3e})"),
+            ));
+        }
+    } else if min < -1e-12 * scale.max(f64::MIN_POSITIVE) {
+        return Err(loc.error(
+            span,
+            field,
+            format!("not positive semidefinite (smallest eigenvalue {min:.3e})"),
+        ));
+    }
+    Ok(())
+}
+
+/// A noise figure's raw fields, for the figures module.
+pub(super) fn noise_value(fig: &RawNoise) -> Vec<(&'static str, &Spanned<f64>)> {
+    let mut v = Vec::new();
+    for (name, f) in [
+        ("density", &fig.density),
+        ("psd", &fig.psd),
+        ("random_walk", &fig.random_walk),
+        ("std", &fig.std),
+        ("variance", &fig.variance),
+    ] {
+        if let Some(s) = f {
+            v.push((name, s));
+        }
+    }
+    v
+}
