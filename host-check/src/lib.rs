@@ -1,4 +1,18 @@
 //! cairn host-check: runs cairn-core's own code in f32 and f64 against an
 //! extended-precision reference and judges whether the filter is safe to flash.
+//!
+//! | module      | job                                                          |
+//! |-------------|--------------------------------------------------------------|
+//! | [`spec`]    | the TOML model spec, parsed with spans and validated         |
+//! | [`run`]     | the streaming check: variants, reference, figures, verdicts  |
+//! | [`report`]  | terminal text, JSON and the SVG drift plot                   |
+//! | [`cli`]     | the `cairn` command line                                     |
+//! | [`demo`]    | the built-in demo spec                                       |
+//! | [`numeric`] | double-double, Van Loan, Riccati, noise figures              |
 
+pub mod cli;
+pub mod demo;
 pub mod numeric;
+pub mod report;
+pub mod run;
+pub mod spec;
