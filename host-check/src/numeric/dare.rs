@@ -8,7 +8,7 @@
 //! for periodic discrete-time algebraic Riccati equations", Int. J. Control
 //! 77(8), 2004; W.-W. Lin & S.-F. Xu, SIAM J. Matrix Anal. Appl. 28(1),
 //! 2006), which converges quadratically, so slow filters (gains near zero)
-//! cost no more than fast ones. Every operation is in [`Dd`]; the answer is
+//! cost no more than fast ones. Every operation is in [`Dd`](super::Dd); the answer is
 //! then polished by two plain Riccati steps and its relative residual is
 //! reported.
 

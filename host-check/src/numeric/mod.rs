@@ -10,7 +10,7 @@
 //! |---------------|---------------------------------------------------------------------|
 //! | [`dd`]        | double-double scalar [`Dd`] (106-bit significand)                   |
 //! | [`ddmat`]     | small dense [`DdMatrix`] with LDL' and LU solves                    |
-//! | [`reference`] | [`ReferenceFilter`]: predict/update in double-double                |
+//! | [`mod@reference`] | [`ReferenceFilter`]: predict/update in double-double                |
 //! | [`vanloan`]   | matrix exponential and Van Loan (1978) discretisation               |
 //! | [`dare`]      | steady state of the discrete Riccati equation, solved in [`Dd`]     |
 //! | [`noise`]     | datasheet noise figures to white-noise intensities, with the steps  |

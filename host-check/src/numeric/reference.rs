@@ -45,7 +45,7 @@ impl std::error::Error for RefError {}
 ///
 /// The covariance recursion is the textbook one (Kalman 1960; e.g.
 /// Bar-Shalom, Li & Kirubarajan 2001, section 5.2), evaluated with every
-/// product and sum in [`Dd`](super::Dd):
+/// product and sum in [`Dd`]:
 ///
 /// - predict: `x = F x`, `P = F P F' + Q`;
 /// - update: `S = H P H' + R` factored as `L D L'` (no pivoting, in
