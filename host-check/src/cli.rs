@@ -53,6 +53,32 @@ pub enum Command {
     /// show each step (no check is run).
     #[command(after_help = "Exit codes:\n  0  converted\n  2  bad figure or unit")]
     Noise(NoiseArgs),
+    /// Estimate the cycles of one predict and one update on a Cortex-M4F (and
+    /// a Cortex-M7): builds on-target's cost probe, traces it under QEMU and
+    /// weights the executed instructions with the published cycle tables.
+    #[command(
+        after_help = "Exit codes:\n  0  estimate printed\n  2  bad option, missing tool or failed build/run"
+    )]
+    Cost(CostArgs),
+}
+
+/// `cairn cost`.
+#[derive(Debug, Args)]
+pub struct CostArgs {
+    /// Trace this cost-probe ELF instead of building on-target's.
+    #[arg(long, value_name = "PATH")]
+    pub elf: Option<PathBuf>,
+    /// The on-target workspace to build (default: ./on-target).
+    #[arg(long, value_name = "DIR")]
+    pub on_target: Option<PathBuf>,
+    /// Core clock, MHz.
+    #[arg(long, value_name = "MHZ", default_value_t = 168.0)]
+    pub clock_mhz: f64,
+    /// Call rate of an operation, NAME=HZ (repeatable), e.g.
+    /// pose_predict=400; the demo's rates apply to the pose operations
+    /// otherwise.
+    #[arg(long = "rate", value_name = "NAME=HZ")]
+    pub rates: Vec<String>,
 }
 
 /// Where the reports go.
@@ -187,7 +213,33 @@ pub fn execute(cli: Cli) -> Result<u8, Failure> {
             check(plan, a.seconds, a.mode, &a.output)
         }
         Some(Command::Noise(a)) => noise(&a),
+        Some(Command::Cost(a)) => cost(&a),
     }
+}
+
+fn cost(a: &CostArgs) -> Result<u8, Failure> {
+    let mut rates = Vec::new();
+    for r in &a.rates {
+        let parsed = r
+            .split_once('=')
+            .and_then(|(n, hz)| Some((n.trim().to_string(), hz.trim().parse::<f64>().ok()?)));
+        let Some(rate) = parsed else {
+            return Err(bad(Message(format!(
+                "`{r}`: write a rate as NAME=HZ, e.g. pose_predict=200"
+            ))));
+        };
+        rates.push(rate);
+    }
+    let config = crate::cost::CostConfig {
+        elf: a.elf.clone(),
+        on_target: a.on_target.clone(),
+        clock_mhz: a.clock_mhz,
+        rates,
+        ..crate::cost::CostConfig::default()
+    };
+    let report = crate::cost::estimate(&config).map_err(bad)?;
+    print!("{}", report.render());
+    Ok(EXIT_PASS)
 }
 
 fn demo(a: &DemoArgs) -> Result<u8, Failure> {

@@ -7,10 +7,16 @@
 //! | [`run`]     | the streaming check: variants, reference, figures, verdicts  |
 //! | [`report`]  | terminal text, JSON and the SVG drift plot                   |
 //! | [`cli`]     | the `cairn` command line                                     |
+//! | [`cost`]    | cycles per predict/update on a Cortex-M4F from QEMU traces   |
+//! | [`consistency`] | Monte Carlo NEES/NIS against chi-square intervals   |
+//! | [`constants`] | the spec's matrices as `const` arrays for firmware    |
 //! | [`demo`]    | the built-in demo spec                                       |
 //! | [`numeric`] | double-double, Van Loan, Riccati, noise figures              |
 
 pub mod cli;
+pub mod consistency;
+pub mod constants;
+pub mod cost;
 pub mod demo;
 pub mod numeric;
 pub mod report;

@@ -1,0 +1,795 @@
+//! Target cost estimate: cycles per predict and update on a Cortex-M4F (and a
+//! Cortex-M7 throughput figure), from QEMU's exact executed instruction mix.
+//!
+//! The pipeline: build `on-target`'s `cost_probe` for `thumbv7em-none-eabihf`
+//! with `-C target-cpu=cortex-m4` (or take a given ELF); find the probe
+//! functions (`cairn_on_target::probe::*`, never inlined) in the symbol
+//! table; disassemble the ELF with `llvm-objdump` and classify every
+//! instruction; run the probe under `qemu-system-arm -M mps2-an386 -icount
+//! shift=0 -d in_asm,exec,nochain`, which logs every translated block and
+//! every execution of one; attribute each executed block to the probe call
+//! it ran under (callees included); weight the mix with the cycle table of
+//! [`timing`]. QEMU counts instructions, not cycles, and does not model the
+//! DWT cycle counter: the cycles come from the table.
+
+pub mod classify;
+pub mod estimate;
+pub mod listing;
+pub mod timing;
+pub mod trace;
+
+use std::fmt::{self, Write as _};
+use std::path::{Path, PathBuf};
+use std::process::{Command, Stdio};
+use std::time::{Duration, Instant};
+
+use estimate::{FpOps, Tally, attribute};
+use listing::{Function, parse_disassembly, parse_symbols};
+
+/// Where the probe symbols live.
+pub const PROBE_PATH: &str = "cairn_on_target::probe::";
+
+/// The demo's rates (odometry 200 Hz, beacon fix 5 Hz, compass 10 Hz), used
+/// for the pose probes when no rate is given.
+pub const DEMO_RATES: [(&str, f64); 3] = [
+    ("pose_predict", 200.0),
+    ("pose_position_update", 5.0),
+    ("pose_heading_update", 10.0),
+];
+
+/// What to estimate and for which clock and rates.
+#[derive(Debug, Clone, PartialEq)]
+pub struct CostConfig {
+    /// A cost-probe ELF already built; when `None`, `on_target` is built.
+    pub elf: Option<PathBuf>,
+    /// The `on-target` workspace; `None` finds it next to the current
+    /// directory or this crate.
+    pub on_target: Option<PathBuf>,
+    /// Core clock, MHz.
+    pub clock_mhz: f64,
+    /// Call rates by probe name, Hz; the demo's rates fill the gaps.
+    pub rates: Vec<(String, f64)>,
+    /// Longest time QEMU may run.
+    pub timeout: Duration,
+}
+
+impl Default for CostConfig {
+    fn default() -> Self {
+        Self {
+            elf: None,
+            on_target: None,
+            clock_mhz: 168.0,
+            rates: Vec::new(),
+            timeout: Duration::from_secs(120),
+        }
+    }
+}
+
+/// Why an estimate could not be made.
+#[derive(Debug)]
+pub enum CostError {
+    /// A required program is not installed.
+    ToolMissing {
+        /// The program.
+        tool: &'static str,
+        /// How to get it.
+        hint: &'static str,
+    },
+    /// A bad configuration value.
+    Config(String),
+    /// Building the on-target probe failed.
+    Build(String),
+    /// A program failed or produced unusable output.
+    Tool {
+        /// The program.
+        tool: &'static str,
+        /// What went wrong.
+        detail: String,
+    },
+    /// A file could not be read or written.
+    Io(PathBuf, std::io::Error),
+    /// The ELF holds no cost probes.
+    NoProbes(PathBuf),
+}
+
+impl fmt::Display for CostError {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        match self {
+            CostError::ToolMissing { tool, hint } => {
+                write!(f, "`{tool}` is not installed ({hint})")
+            }
+            CostError::Config(m) => write!(f, "{m}"),
+            CostError::Build(m) => write!(f, "building the on-target cost probe failed:\n{m}"),
+            CostError::Tool { tool, detail } => write!(f, "{tool}: {detail}"),
+            CostError::Io(p, e) => write!(f, "{}: {e}", p.display()),
+            CostError::NoProbes(p) => write!(
+                f,
+                "{} holds no functions under `{PROBE_PATH}`: is it on-target's cost_probe?",
+                p.display()
+            ),
+        }
+    }
+}
+
+impl std::error::Error for CostError {
+    fn source(&self) -> Option<&(dyn std::error::Error + 'static)> {
+        match self {
+            CostError::Io(_, e) => Some(e),
+            _ => None,
+        }
+    }
+}
+
+/// The cost of one operation, per call.
+#[derive(Debug, Clone, PartialEq)]
+pub struct OperationCost {
+    /// Probe name, e.g. `pose_predict`.
+    pub name: String,
+    /// Calls traced.
+    pub calls: u64,
+    /// Instructions executed per call.
+    pub instructions: f64,
+    /// Cortex-M4F cycles per call (table-weighted).
+    pub m4_cycles: f64,
+    /// Cortex-M7 cycles per call (throughput model).
+    pub m7_cycles: f64,
+    /// Floating-point operations, summed over the calls.
+    pub fp_total: FpOps,
+    /// The arithmetic lower bound per call, cycles.
+    pub bound: f64,
+    /// Call rate, Hz, when known.
+    pub rate_hz: Option<f64>,
+    /// The functions taking the most M4 cycles: (name, share of the call).
+    pub hot: Vec<(String, f64)>,
+    /// Share of the M4 cycles spent inside software f64 routines.
+    pub soft_share: f64,
+    /// Share of the M4 cycles by instruction group ([`estimate::GROUPS`]).
+    pub mix: [f64; 6],
+}
+
+impl OperationCost {
+    fn from_tally(name: &str, t: &Tally, rate_hz: Option<f64>) -> Self {
+        let total = t.m4_cycles.max(1) as f64;
+        let mut hot: Vec<(String, f64)> = t
+            .by_function
+            .iter()
+            .map(|(n, &c)| (n.clone(), c as f64 / total))
+            .collect();
+        hot.sort_by(|a, b| b.1.total_cmp(&a.1).then_with(|| a.0.cmp(&b.0)));
+        hot.truncate(4);
+        Self {
+            name: name.to_string(),
+            calls: t.calls,
+            instructions: t.per_call(t.instructions),
+            m4_cycles: t.per_call(t.m4_cycles),
+            m7_cycles: if t.calls == 0 {
+                0.0
+            } else {
+                t.m7.cycles() / t.calls as f64
+            },
+            fp_total: t.fp,
+            bound: t.per_call(t.fp.bound()),
+            rate_hz,
+            hot,
+            soft_share: t
+                .by_function
+                .iter()
+                .filter(|(n, _)| estimate::is_soft_float(n))
+                .map(|(_, &c)| c as f64 / total)
+                .sum(),
+            mix: t.group_cycles.map(|c| c as f64 / total),
+        }
+    }
+
+    /// Per-call value of an operation count.
+    pub fn per_call(&self, total: u64) -> f64 {
+        if self.calls == 0 {
+            0.0
+        } else {
+            total as f64 / self.calls as f64
+        }
+    }
+
+    /// Estimated M4 cycles over the arithmetic lower bound.
+    pub fn ratio(&self) -> Option<f64> {
+        (self.bound > 0.0).then(|| self.m4_cycles / self.bound)
+    }
+
+    /// Microseconds per call at `clock_mhz`.
+    pub fn micros(&self, clock_mhz: f64) -> f64 {
+        self.m4_cycles / clock_mhz
+    }
+
+    /// Share of the CPU at the call rate, 0 to 1 (0 without a rate).
+    pub fn cpu_share(&self, clock_mhz: f64) -> f64 {
+        self.rate_hz
+            .map_or(0.0, |r| r * self.m4_cycles / (clock_mhz * 1e6))
+    }
+}
+
+/// The whole estimate.
+#[derive(Debug, Clone, PartialEq)]
+pub struct CostReport {
+    /// The ELF that was traced.
+    pub elf: PathBuf,
+    /// Core clock, MHz.
+    pub clock_mhz: f64,
+    /// One entry per probe.
+    pub operations: Vec<OperationCost>,
+    /// Things the reader must know (soft-float in the path, missing tuning).
+    pub warnings: Vec<String>,
+}
+
+impl CostReport {
+    /// The operation of a probe.
+    pub fn operation(&self, name: &str) -> Option<&OperationCost> {
+        self.operations.iter().find(|o| o.name == name)
+    }
+
+    /// CPU share of every operation with a rate, 0 to 1.
+    pub fn cpu_share(&self) -> f64 {
+        self.operations
+            .iter()
+            .map(|o| o.cpu_share(self.clock_mhz))
+            .sum()
+    }
+
+    /// The report as terminal text.
+    pub fn render(&self) -> String {
+        let mut s = String::new();
+        let calls = self.operations.first().map_or(0, |o| o.calls);
+        let _ = writeln!(
+            s,
+            "cairn cost: cycles per call from QEMU's executed instruction mix ({calls} calls each)"
+        );
+        let _ = writeln!(s, "  ELF   {}", self.elf.display());
+        let _ = writeln!(
+            s,
+            "  clock {} MHz (Cortex-M4F, zero wait states)\n",
+            self.clock_mhz
+        );
+        let _ = writeln!(
+            s,
+            "{:<30} {:>7} {:>8} {:>7} {:>6} {:>6} {:>4} {:>5} {:>6} {:>7} {:>8} {:>8} {:>7} {:>6}",
+            "operation",
+            "instr",
+            "M4 cyc",
+            "M7 cyc",
+            "f32 +",
+            "f32 x",
+            "div",
+            "sqrt",
+            "f64 sw",
+            "bound",
+            "M4/bound",
+            "us/call",
+            "rate Hz",
+            "CPU"
+        );
+        for o in &self.operations {
+            let f = &o.fp_total;
+            let ratio = o.ratio().map_or("-".to_string(), |r| format!("{r:.2}x"));
+            let rate = o.rate_hz.map_or("-".to_string(), |r| format!("{r}"));
+            let share = if o.rate_hz.is_some() {
+                format!("{:.2}%", 100.0 * o.cpu_share(self.clock_mhz))
+            } else {
+                "-".to_string()
+            };
+            let _ = writeln!(
+                s,
+                "{:<30} {:>7.0} {:>8.0} {:>7.0} {:>6.0} {:>6.0} {:>4.0} {:>5.0} {:>6.0} {:>7.0} {:>8} {:>8.2} {:>7} {:>6}",
+                o.name,
+                o.instructions,
+                o.m4_cycles,
+                o.m7_cycles,
+                o.per_call(f.add),
+                o.per_call(f.mul),
+                o.per_call(f.div),
+                o.per_call(f.sqrt + f.soft_sqrt),
+                o.per_call(f.soft_add + f.soft_mul + f.soft_div),
+                o.bound,
+                ratio,
+                o.micros(self.clock_mhz),
+                rate,
+                share
+            );
+        }
+        let _ = writeln!(
+            s,
+            "\nCPU share at the given rates: {:.2}% of {} MHz",
+            100.0 * self.cpu_share(),
+            self.clock_mhz
+        );
+        let _ = writeln!(s, "\nwhere the M4 cycles go (share of each call):");
+        for o in &self.operations {
+            let hot: Vec<String> = o
+                .hot
+                .iter()
+                .map(|(n, share)| format!("{} {:.0}%", short_name(n), 100.0 * share))
+                .collect();
+            let _ = writeln!(s, "  {:<28} {}", o.name, hot.join(", "));
+            let mix: Vec<String> = estimate::GROUPS
+                .iter()
+                .zip(o.mix)
+                .map(|(g, share)| format!("{g} {:.0}%", 100.0 * share))
+                .collect();
+            let _ = writeln!(s, "  {:<28} by kind: {}", "", mix.join(", "));
+        }
+        for w in &self.warnings {
+            let _ = writeln!(s, "\nwarning: {w}");
+        }
+        let _ = writeln!(
+            s,
+            "\nM4 cycles: Arm Cortex-M4 TRM (DDI 0439) timings as in TI SWCU192 Table 3-27.\n\
+             M7 cycles: a dual-issue throughput bound with LLVM's ARMScheduleM7.td latencies\n\
+             (dependency stalls not modelled, so optimistic). Bound: 1 cycle per add or\n\
+             multiply (f32 in hardware, f64 in software alike), 14 per divide or square root.\n\
+             f64 sw: f64 operations done by run-time library calls (the M4 has no f64 unit)."
+        );
+        s
+    }
+}
+
+/// A short name for the report: `<A as B>::m` and `<impl B for A>::m`
+/// become `A::m`; paths keep their last two segments; generics go.
+fn short_name(name: &str) -> String {
+    let strip_generics = |s: &str| -> String {
+        let mut depth = 0;
+        s.chars()
+            .filter(|&c| {
+                match c {
+                    '<' => depth += 1,
+                    '>' => depth -= 1,
+                    _ => return depth == 0,
+                }
+                false
+            })
+            .collect()
+    };
+    // A path into an impl block, `nalgebra::base::ops::<impl ...>::mul`: the
+    // impl is the interesting part.
+    let name = name.find("::<").map_or(name, |i| &name[i + 2..]);
+    if let Some(rest) = name.strip_prefix('<')
+        && let Some(close) = rest.rfind(">::")
+    {
+        let inner = &rest[..close];
+        let method = &rest[close + 3..];
+        let ty = match (inner.strip_prefix("impl "), inner.find(" as ")) {
+            (Some(imp), _) => imp.rsplit(" for ").next().unwrap_or(imp),
+            (None, Some(a)) => &inner[..a],
+            _ => inner,
+        };
+        let ty = strip_generics(ty.trim_start_matches('&'));
+        let ty = ty.rsplit("::").next().unwrap_or("").to_string();
+        return format!("{ty}::{method}");
+    }
+    let plain = strip_generics(name);
+    let parts: Vec<&str> = plain.rsplitn(3, "::").collect();
+    if parts.len() >= 2 {
+        format!("{}::{}", parts[1], parts[0])
+    } else {
+        plain
+    }
+}
+
+/// Finds a program, trying each name in turn.
+fn find_tool(names: &[&'static str]) -> Option<&'static str> {
+    names.iter().copied().find(|n| {
+        Command::new(n)
+            .arg("--version")
+            .stdout(Stdio::null())
+            .stderr(Stdio::null())
+            .status()
+            .is_ok_and(|s| s.success())
+    })
+}
+
+fn run_tool(tool: &'static str, args: &[&std::ffi::OsStr]) -> Result<String, CostError> {
+    let out = Command::new(tool)
+        .args(args)
+        .output()
+        .map_err(|e| CostError::Tool {
+            tool,
+            detail: e.to_string(),
+        })?;
+    if !out.status.success() {
+        return Err(CostError::Tool {
+            tool,
+            detail: String::from_utf8_lossy(&out.stderr).into_owned(),
+        });
+    }
+    Ok(String::from_utf8_lossy(&out.stdout).into_owned())
+}
+
+/// The on-target workspace: the configured one, `./on-target`, or the one
+/// next to this crate's sources.
+fn on_target_dir(config: &CostConfig) -> Result<PathBuf, CostError> {
+    let candidates = [
+        config.on_target.clone(),
+        Some(PathBuf::from("on-target")),
+        Some(Path::new(env!("CARGO_MANIFEST_DIR")).join("../on-target")),
+    ];
+    candidates
+        .into_iter()
+        .flatten()
+        .find(|d| d.join("Cargo.toml").is_file())
+        .ok_or_else(|| {
+            CostError::Config(
+                "cannot find the on-target workspace: pass --on-target DIR or --elf FILE".into(),
+            )
+        })
+}
+
+/// Builds on-target's `cost_probe` in release and returns its ELF. The
+/// workspace's own `.cargo/config.toml` sets the target, the linker script
+/// and `-C target-cpu=cortex-m4`; variables that would override it are
+/// removed.
+pub fn build_probe(dir: &Path) -> Result<PathBuf, CostError> {
+    let out = Command::new("cargo")
+        .args(["build", "--release", "--locked", "--bin", "cost_probe"])
+        .current_dir(dir)
+        .env_remove("RUSTFLAGS")
+        .env_remove("CARGO_ENCODED_RUSTFLAGS")
+        .env_remove("CARGO_TARGET_DIR")
+        .env_remove("CARGO_BUILD_TARGET")
+        .env_remove("CARGO_BUILD_RUSTFLAGS")
+        .output()
+        .map_err(|e| CostError::Build(format!("cannot run cargo: {e}")))?;
+    if !out.status.success() {
+        return Err(CostError::Build(
+            String::from_utf8_lossy(&out.stderr).into_owned(),
+        ));
+    }
+    Ok(dir.join("target/thumbv7em-none-eabihf/release/cost_probe"))
+}
+
+/// Runs the ELF under QEMU with block tracing and returns (log, stdout).
+fn trace_qemu(elf: &Path, timeout: Duration) -> Result<(String, String), CostError> {
+    let log = std::env::temp_dir().join(format!("cairn-cost-{}.log", std::process::id()));
+    let mut child = Command::new("qemu-system-arm")
+        .args(["-M", "mps2-an386", "-nographic"])
+        .args(["-semihosting-config", "enable=on,target=native"])
+        .args(["-icount", "shift=0"])
+        .args(["-d", "in_asm,exec,nochain", "-D"])
+        .arg(&log)
+        .arg("-kernel")
+        .arg(elf)
+        .stdin(Stdio::null())
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .map_err(|e| CostError::Tool {
+            tool: "qemu-system-arm",
+            detail: e.to_string(),
+        })?;
+    let start = Instant::now();
+    loop {
+        match child.try_wait() {
+            Ok(Some(_)) => break,
+            Ok(None) if start.elapsed() > timeout => {
+                let _ = child.kill();
+                let _ = child.wait();
+                let _ = std::fs::remove_file(&log);
+                return Err(CostError::Tool {
+                    tool: "qemu-system-arm",
+                    detail: format!("no exit within {timeout:?}: is the ELF a cost probe?"),
+                });
+            }
+            Ok(None) => std::thread::sleep(Duration::from_millis(20)),
+            Err(e) => {
+                return Err(CostError::Tool {
+                    tool: "qemu-system-arm",
+                    detail: e.to_string(),
+                });
+            }
+        }
+    }
+    let out = child.wait_with_output().map_err(|e| CostError::Tool {
+        tool: "qemu-system-arm",
+        detail: e.to_string(),
+    })?;
+    let text = std::fs::read_to_string(&log).map_err(|e| CostError::Io(log.clone(), e));
+    let _ = std::fs::remove_file(&log);
+    let stdout = String::from_utf8_lossy(&out.stdout).into_owned();
+    if !out.status.success() {
+        return Err(CostError::Tool {
+            tool: "qemu-system-arm",
+            detail: format!(
+                "the probe failed ({}): {stdout}{}",
+                out.status,
+                String::from_utf8_lossy(&out.stderr)
+            ),
+        });
+    }
+    Ok((text?, stdout))
+}
+
+/// The probes in the ELF: (name, entry address), in address order.
+pub fn probes(functions: &[Function]) -> Vec<(String, u32)> {
+    functions
+        .iter()
+        .filter_map(|f| {
+            f.name
+                .strip_prefix(PROBE_PATH)
+                .map(|n| (n.to_string(), f.addr))
+        })
+        .collect()
+}
+
+/// Makes the estimate: builds (or takes) the probe ELF, disassembles and
+/// traces it, and prices every probe.
+///
+/// # Errors
+/// [`CostError`] when a tool is missing, the build or a run fails, the ELF
+/// has no probes, or the clock or a rate is not a positive finite number.
+pub fn estimate(config: &CostConfig) -> Result<CostReport, CostError> {
+    if !(config.clock_mhz.is_finite() && config.clock_mhz > 0.0) {
+        return Err(CostError::Config(format!(
+            "clock must be a positive number of MHz, got {}",
+            config.clock_mhz
+        )));
+    }
+    for (name, hz) in &config.rates {
+        if !(hz.is_finite() && *hz > 0.0) {
+            return Err(CostError::Config(format!(
+                "rate of {name} must be a positive number of Hz, got {hz}"
+            )));
+        }
+    }
+    let objdump =
+        find_tool(&["llvm-objdump", "llvm-objdump-14"]).ok_or(CostError::ToolMissing {
+            tool: "llvm-objdump",
+            hint: "Debian: apt-get install llvm",
+        })?;
+    if find_tool(&["qemu-system-arm"]).is_none() {
+        return Err(CostError::ToolMissing {
+            tool: "qemu-system-arm",
+            hint: "Debian: apt-get install qemu-system-arm",
+        });
+    }
+    let elf = match &config.elf {
+        Some(e) => {
+            if !e.is_file() {
+                return Err(CostError::Config(format!("{}: no such ELF", e.display())));
+            }
+            e.clone()
+        }
+        None => build_probe(&on_target_dir(config)?)?,
+    };
+    let syms = run_tool(
+        objdump,
+        &["--syms".as_ref(), "-C".as_ref(), elf.as_os_str()],
+    )?;
+    let functions = parse_symbols(&syms);
+    let probes = probes(&functions);
+    if probes.is_empty() {
+        return Err(CostError::NoProbes(elf));
+    }
+    for (name, _) in &config.rates {
+        if !probes.iter().any(|(p, _)| p == name) {
+            let known: Vec<&str> = probes.iter().map(|(p, _)| p.as_str()).collect();
+            return Err(CostError::Config(format!(
+                "no probe named {name}; the ELF has: {}",
+                known.join(", ")
+            )));
+        }
+    }
+    let asm = run_tool(
+        objdump,
+        &[
+            "-d".as_ref(),
+            "--no-show-raw-insn".as_ref(),
+            "-C".as_ref(),
+            elf.as_os_str(),
+        ],
+    )?;
+    let listing = parse_disassembly(&asm);
+    let (log, stdout) = trace_qemu(&elf, config.timeout)?;
+    let trace = trace::parse_log(&log);
+    let tallies = attribute(&trace, &listing, &functions, &probes);
+
+    let rate = |name: &str| {
+        config
+            .rates
+            .iter()
+            .find(|(n, _)| n == name)
+            .map(|r| r.1)
+            .or_else(|| DEMO_RATES.iter().find(|(n, _)| *n == name).map(|r| r.1))
+    };
+    let operations: Vec<OperationCost> = probes
+        .iter()
+        .zip(&tallies)
+        .map(|((name, _), t)| OperationCost::from_tally(name, t, rate(name)))
+        .collect();
+    let warnings = warnings(
+        &operations,
+        &tallies,
+        &stdout,
+        &listing,
+        &functions,
+        &probes,
+    );
+    Ok(CostReport {
+        elf,
+        clock_mhz: config.clock_mhz,
+        operations,
+        warnings,
+    })
+}
+
+fn warnings(
+    operations: &[OperationCost],
+    tallies: &[Tally],
+    stdout: &str,
+    listing: &std::collections::HashMap<u32, listing::Instruction>,
+    functions: &[Function],
+    probes: &[(String, u32)],
+) -> Vec<String> {
+    let mut w = Vec::new();
+    let announced = stdout
+        .split_whitespace()
+        .skip_while(|t| *t != "calls")
+        .nth(1)
+        .and_then(|n| n.parse::<u64>().ok());
+    for o in operations {
+        if Some(o.calls) != announced {
+            w.push(format!(
+                "{}: traced {} calls, the probe announced {:?}",
+                o.name, o.calls, announced
+            ));
+        }
+        let f = &o.fp_total;
+        if f.soft_sqrt > 0 {
+            w.push(format!(
+                "{}: a software square root runs {:.0} times per call; use VSQRT (f32::sqrt with \
+                 target-cpu=cortex-m4) or keep square roots out of the covariance path",
+                o.name,
+                o.per_call(f.soft_sqrt)
+            ));
+        }
+        let soft = f.soft_add + f.soft_mul + f.soft_div + f.soft_other;
+        if soft > 0 {
+            let libm = o.hot.iter().any(|(n, _)| n.starts_with("libm::")) || o.soft_share > 0.0;
+            w.push(format!(
+                "{}: {:.0} software f64 operations per call take {:.0}% of its cycles (the M4 \
+                 has no f64 unit){}",
+                o.name,
+                o.per_call(soft),
+                100.0 * o.soft_share,
+                if libm {
+                    "; libm's sinf/cosf compute in f64 internally"
+                } else {
+                    ""
+                }
+            ));
+        }
+    }
+    for t in tallies {
+        if t.unlisted > 0 {
+            w.push(format!(
+                "{} executed instructions were not in the llvm-objdump listing (counted as 1 cycle)",
+                t.unlisted
+            ));
+        }
+    }
+    // VMLA in the probes' own code: built without -C target-cpu=cortex-m4?
+    let vmla = probes
+        .iter()
+        .filter_map(|(_, a)| functions.iter().find(|f| f.addr == *a))
+        .flat_map(|f| (f.addr..f.addr + f.size).step_by(2))
+        .filter(|a| {
+            listing
+                .get(a)
+                .is_some_and(|i| i.class == classify::Class::FpMac)
+        })
+        .count();
+    if vmla > 0 {
+        w.push(format!(
+            "the probes hold {vmla} VMLA-family instructions (3 cycles on the M4, VMUL + VADD \
+             take 2): was the ELF built without -C target-cpu=cortex-m4?"
+        ));
+    }
+    w
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn short_names_keep_the_last_two_segments() {
+        assert_eq!(short_name("libm::math::sinf::sinf"), "sinf::sinf");
+        assert_eq!(short_name("__aeabi_dmul"), "__aeabi_dmul");
+        assert_eq!(
+            short_name("<cairn_core::form::Joseph as cairn_core::form::CovarianceForm>::posterior"),
+            "Joseph::posterior"
+        );
+        assert_eq!(
+            short_name(
+                "nalgebra::base::ops::<impl core::ops::arith::Mul<&nalgebra::Matrix<T,R2,C2,SB>> for &nalgebra::Matrix<T,R1,C1,SA>>::mul"
+            ),
+            "Matrix::mul"
+        );
+        assert_eq!(
+            short_name("cairn_core::ldl::Ldl<T,_>::right_divide"),
+            "Ldl::right_divide"
+        );
+    }
+
+    #[test]
+    fn cpu_share_from_clock_and_rate() {
+        // 1680 cycles at 168 MHz is 10 us; at 200 Hz that is 0.2% of the CPU.
+        let o = OperationCost {
+            name: "p".into(),
+            calls: 1,
+            instructions: 1000.0,
+            m4_cycles: 1680.0,
+            m7_cycles: 900.0,
+            fp_total: FpOps::default(),
+            bound: 840.0,
+            rate_hz: Some(200.0),
+            hot: Vec::new(),
+            soft_share: 0.0,
+            mix: [0.0; 6],
+        };
+        assert!((o.micros(168.0) - 10.0).abs() < 1e-12);
+        assert!((o.cpu_share(168.0) - 0.002).abs() < 1e-15);
+        assert_eq!(o.ratio(), Some(2.0));
+    }
+
+    /// End to end on the pose filter: builds on-target's cost probe, traces
+    /// it under QEMU and prices the pose operations.
+    #[test]
+    fn pose_filter_end_to_end() {
+        if find_tool(&["qemu-system-arm"]).is_none()
+            || find_tool(&["llvm-objdump", "llvm-objdump-14"]).is_none()
+        {
+            println!("SKIPPED: qemu-system-arm or llvm-objdump is not installed");
+            return;
+        }
+        let report = estimate(&CostConfig::default()).expect("estimate");
+        println!("{}", report.render());
+        let predict = report
+            .operation("pose_predict")
+            .expect("pose_predict probe");
+        let position = report
+            .operation("pose_position_update")
+            .expect("position probe");
+        let heading = report
+            .operation("pose_heading_update")
+            .expect("heading probe");
+        for o in [predict, position, heading] {
+            assert_eq!(o.calls, 16, "{}", o.name);
+            // Every cycle is at least one instruction; the table's dearest
+            // common instruction (VDIV, 14) bounds the other side.
+            assert!(o.m4_cycles >= o.instructions, "{}", o.name);
+            assert!(o.m4_cycles <= 14.0 * o.instructions, "{}", o.name);
+            assert!(o.bound > 0.0 && o.m4_cycles > o.bound, "{}", o.name);
+        }
+        // Operation counts the source fixes (pose.rs, form.rs, ldl.rs; n = 3):
+        // P = F P F' + Q has at least n^3 = 27 multiplies, the position
+        // update divides at least once per LDL' pivot of S (m = 2).
+        assert!(predict.per_call(predict.fp_total.mul) >= 27.0);
+        assert!(position.per_call(position.fp_total.div) >= 2.0);
+        // No square root anywhere in the covariance path (issue 2).
+        for o in &report.operations {
+            assert_eq!(o.fp_total.sqrt + o.fp_total.soft_sqrt, 0, "{}", o.name);
+        }
+        // Built with -C target-cpu=cortex-m4: no VMLA warning.
+        assert!(
+            !report.warnings.iter().any(|w| w.contains("VMLA")),
+            "{:?}",
+            report.warnings
+        );
+        assert!(report.cpu_share() > 0.0);
+    }
+
+    #[test]
+    fn refuses_a_bad_clock() {
+        let c = CostConfig {
+            clock_mhz: 0.0,
+            ..CostConfig::default()
+        };
+        assert!(matches!(estimate(&c), Err(CostError::Config(_))));
+    }
+}
