@@ -646,6 +646,35 @@ mod tests {
     }
 
     #[test]
+    fn steady_state_to_thirty_digits() {
+        // Random walk in white noise with q = r = 1: steady prior
+        // (q + sqrt(q^2 + 4qr))/2 = (1 + sqrt 5)/2, posterior = prior - q =
+        // (sqrt 5 - 1)/2 = 0.618033988749894848204586834365638117720...
+        // (REFERENCES.md closed form; digits of the golden ratio, common
+        // knowledge). The iteration contracts by (1 - K)^2 ~ 0.15 per step,
+        // so 100 steps leave only rounding: the double-double reference must
+        // hold ~30 digits, where an f64 filter holds 16.
+        let one = dmat![1.0];
+        let mut f = ReferenceFilter::new(&DVector::zeros(1), &one);
+        for _ in 0..100 {
+            f.predict(&one, &one);
+            f.update(&one, &one, &DVector::zeros(1)).unwrap();
+        }
+        let post = f.covariance_dd()[(0, 0)];
+        let exact = (Dd::from_f64(5.0).sqrt() - 1.0) * 0.5;
+        let err = ((post - exact) / exact).abs().to_f64();
+        assert!(err < 1e-30, "{post} vs {exact}: {err}");
+        // Independent of the Dd square root: the f64 nearest the value is
+        // 0.6180339887498949 and the remainder is -5.4321152036825059e-17
+        // (computed with 50-digit mpmath).
+        assert_eq!(post.hi(), 0.618_033_988_749_894_9);
+        assert!(
+            (post.lo() + 5.432_115_203_682_506e-17).abs() < 1e-30,
+            "{post}"
+        );
+    }
+
+    #[test]
     fn innovation_update_equals_linear_update() {
         // Giving z - H x as the innovation must give the same result as
         // the linear update (definition of the innovation; common practice).
