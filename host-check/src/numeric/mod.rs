@@ -15,6 +15,34 @@
 //! | [`dare`]      | steady state of the discrete Riccati equation, solved in [`Dd`]     |
 //! | [`noise`]     | datasheet noise figures to white-noise intensities, with the steps  |
 //! | [`units`]     | the unit grammar of the spec file                                   |
+//!
+//! ## Example: from a datasheet to a steady state, and a reference run
+//! ```
+//! use cairn_host_check::numeric::{dare, noise, vanloan, ReferenceFilter};
+//! use nalgebra::{DMatrix, DVector};
+//!
+//! // An invented wheel-speed sensor: 0.02 (m/s)/sqrt(Hz), one-sided, drives a
+//! // velocity state; position is measured at 50 Hz with 5 cm noise.
+//! let accel = noise::convert(0.02, "m/s^2/sqrt(Hz)", "m/s^2", None, None)?;
+//! let fix = noise::convert(5.0, "cm", "m", None, Some(50.0))?;
+//! let dt = 1.0 / 50.0;
+//! let a = DMatrix::from_row_slice(2, 2, &[0.0, 1.0, 0.0, 0.0]);
+//! let g = DMatrix::from_row_slice(2, 1, &[0.0, 1.0]);
+//! let (f, q) = vanloan::discretize(&a, &g, &DMatrix::from_element(1, 1, accel.intensity), dt)?;
+//! let h = DMatrix::from_row_slice(1, 2, &[1.0, 0.0]);
+//! let r = DMatrix::from_element(1, 1, noise::sample_variance(fix.intensity, dt));
+//! let steady = dare::solve(&f, &h, &q, &r)?;
+//!
+//! // The double-double reference converges to the same steady state.
+//! let mut reference = ReferenceFilter::new(&DVector::zeros(2), &DMatrix::identity(2, 2));
+//! for _ in 0..5000 {
+//!     reference.predict(&f, &q);
+//!     reference.update(&h, &r, &DVector::zeros(1))?;
+//! }
+//! let diff = (reference.covariance() - &steady.posterior).norm() / steady.posterior.norm();
+//! assert!(diff < 1e-12);
+//! # Ok::<(), Box<dyn std::error::Error>>(())
+//! ```
 
 /// Test helper: `dmat![a, b; c, d]` builds a `DMatrix<f64>` row by row.
 #[cfg(test)]
