@@ -1,0 +1,390 @@
+//! Averages of NEES and NIS over the runs, their chi-square intervals, the
+//! verdict per variant, and the text and JSON forms of the report.
+
+use std::fmt::Write as _;
+
+use serde::Serialize;
+
+use super::ConsistencyError;
+use super::chi2::{self, Interval, Place};
+use super::lanes::{Trace, Variant};
+
+/// Fraction of points that must fall inside the 95% interval for a
+/// statistic to be called consistent. With a consistent filter about 95%
+/// fall inside; the margin absorbs the correlation of NEES between steps.
+pub const MIN_INSIDE: f64 = 0.90;
+
+/// Most points kept in a report's decimated series.
+const SERIES_POINTS: usize = 400;
+
+/// Whether the filter's covariance matches its actual errors.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum Verdict {
+    /// The averages stay inside their intervals.
+    Consistent,
+    /// The averages sit above their intervals: the filter believes itself
+    /// more accurate than it is (Q or R too small).
+    Optimistic,
+    /// The averages sit below their intervals: the filter is more accurate
+    /// than it believes (Q or R too large).
+    Pessimistic,
+    /// The filter refused to go on in at least one run (a numerical failure).
+    Failed,
+}
+
+impl Verdict {
+    /// The word used in the text report.
+    pub fn word(self) -> &'static str {
+        match self {
+            Verdict::Consistent => "consistent",
+            Verdict::Optimistic => "optimistic",
+            Verdict::Pessimistic => "pessimistic",
+            Verdict::Failed => "failed",
+        }
+    }
+}
+
+/// Running sums of one statistic over the runs, per point (a step for NEES,
+/// a measurement for NIS).
+#[derive(Debug, Clone, Default)]
+pub struct Sums {
+    sum: Vec<f64>,
+    count: Vec<u32>,
+}
+
+impl Sums {
+    /// Adds one run's values; NaN marks a missing value (after a failure).
+    pub fn add(&mut self, values: &[f64]) {
+        if self.sum.len() < values.len() {
+            self.sum.resize(values.len(), 0.0);
+            self.count.resize(values.len(), 0);
+        }
+        for (i, &v) in values.iter().enumerate() {
+            if !v.is_nan() {
+                self.sum[i] += v;
+                self.count[i] += 1;
+            }
+        }
+    }
+}
+
+/// The summary of one averaged statistic (NEES, or NIS of one channel).
+#[derive(Debug, Clone, Serialize)]
+pub struct Summary {
+    /// Degrees of freedom of one sample (states, or channel components).
+    pub dof: usize,
+    /// Points (steps or measurements) averaged over the runs.
+    pub points: usize,
+    /// Interval for one point's average over every run.
+    pub interval: Interval,
+    /// Mean over points of the per-point average.
+    pub time_average: f64,
+    /// Interval of the time average, treating all samples as independent
+    /// (exact for NIS of a consistent filter, whose innovations are white;
+    /// only indicative for NEES, which is correlated in time).
+    pub time_average_interval: Interval,
+    /// Fraction of points whose average falls inside `interval`.
+    pub inside: f64,
+    /// Fraction above.
+    pub above: f64,
+    /// Fraction below.
+    pub below: f64,
+    /// The verdict on this statistic alone.
+    pub verdict: Verdict,
+    /// Decimated series (point index, average) for plots.
+    pub series: Vec<(usize, f64)>,
+}
+
+fn summarize(
+    sums: &Sums,
+    dof: usize,
+    runs: usize,
+    confidence: f64,
+) -> Result<Option<Summary>, ConsistencyError> {
+    let points = sums.sum.len();
+    if points == 0 {
+        return Ok(None);
+    }
+    let interval = chi2::average_interval(dof, runs as u64, confidence)?;
+    let (mut inside, mut above, mut below) = (0usize, 0usize, 0usize);
+    let mut total = 0.0;
+    let mut samples = 0u64;
+    let mut series = Vec::new();
+    let stride = points.div_ceil(SERIES_POINTS).max(1);
+    for i in 0..points {
+        let c = sums.count[i];
+        let avg = if c == 0 {
+            f64::NAN
+        } else {
+            sums.sum[i] / f64::from(c)
+        };
+        // A point with fewer runs (after failures) gets its own interval.
+        let here = if c as usize == runs || c == 0 {
+            interval
+        } else {
+            chi2::average_interval(dof, u64::from(c), confidence)?
+        };
+        match here.place(avg) {
+            Place::Inside => inside += 1,
+            Place::Above => above += 1,
+            Place::Below => below += 1,
+        }
+        if c > 0 {
+            total += sums.sum[i];
+            samples += u64::from(c);
+        }
+        if i % stride == 0 || i + 1 == points {
+            series.push((i + 1, avg));
+        }
+    }
+    let p = points as f64;
+    let (inside, above, below) = (inside as f64 / p, above as f64 / p, below as f64 / p);
+    let time_average = if samples == 0 {
+        f64::NAN
+    } else {
+        total / samples as f64
+    };
+    let time_average_interval = chi2::average_interval(dof, samples.max(1), confidence)?;
+    let verdict = if inside >= MIN_INSIDE {
+        Verdict::Consistent
+    } else if above >= below {
+        Verdict::Optimistic
+    } else {
+        Verdict::Pessimistic
+    };
+    Ok(Some(Summary {
+        dof,
+        points,
+        interval,
+        time_average,
+        time_average_interval,
+        inside,
+        above,
+        below,
+        verdict,
+        series,
+    }))
+}
+
+/// The NIS summary of one channel.
+#[derive(Debug, Clone, Serialize)]
+pub struct ChannelSummary {
+    /// Channel name.
+    pub channel: String,
+    /// Its summary (absent when the channel never delivered).
+    pub nis: Option<Summary>,
+}
+
+/// The findings for one variant.
+#[derive(Debug, Clone, Serialize)]
+pub struct VariantReport {
+    /// "f32 joseph" and so on.
+    pub label: String,
+    /// Scalar type and form.
+    pub variant: Variant,
+    /// Runs in which the filter refused to go on.
+    pub failed_runs: usize,
+    /// The first such refusal: run, step and the core's message.
+    pub first_failure: Option<String>,
+    /// Average NEES.
+    pub nees: Option<Summary>,
+    /// Average NIS per channel.
+    pub nis: Vec<ChannelSummary>,
+    /// Overall verdict.
+    pub verdict: Verdict,
+    /// Why, in words.
+    pub reason: String,
+}
+
+/// Accumulates the traces of one variant over the runs, in run order.
+pub struct Accumulator {
+    variant: Variant,
+    nees: Sums,
+    nis: Vec<Sums>,
+    failed_runs: usize,
+    first_failure: Option<String>,
+}
+
+impl Accumulator {
+    /// An empty accumulator for `channels` channels.
+    pub fn new(variant: Variant, channels: usize) -> Self {
+        Self {
+            variant,
+            nees: Sums::default(),
+            nis: vec![Sums::default(); channels],
+            failed_runs: 0,
+            first_failure: None,
+        }
+    }
+
+    /// Adds run `run`'s trace.
+    pub fn add(&mut self, run: usize, trace: &Trace) {
+        self.nees.add(&trace.nees);
+        for (sums, values) in self.nis.iter_mut().zip(&trace.nis) {
+            sums.add(values);
+        }
+        if let Some((step, e)) = trace.failure {
+            self.failed_runs += 1;
+            if self.first_failure.is_none() {
+                self.first_failure = Some(format!("run {run}, step {step}: {e}"));
+            }
+        }
+    }
+
+    /// The variant's report.
+    ///
+    /// # Errors
+    /// [`ConsistencyError::Statistic`] when an interval cannot be computed.
+    pub fn finish(
+        self,
+        n: usize,
+        channels: &[(String, usize)],
+        runs: usize,
+        confidence: f64,
+    ) -> Result<VariantReport, ConsistencyError> {
+        let nees = summarize(&self.nees, n, runs, confidence)?;
+        let mut nis = Vec::with_capacity(channels.len());
+        for ((name, m), sums) in channels.iter().zip(&self.nis) {
+            nis.push(ChannelSummary {
+                channel: name.clone(),
+                nis: summarize(sums, *m, runs, confidence)?,
+            });
+        }
+        let pct = |x: f64| 100.0 * x;
+        let (verdict, reason) = if self.failed_runs > 0 {
+            (
+                Verdict::Failed,
+                format!(
+                    "the filter refused to go on in {} of {runs} runs",
+                    self.failed_runs
+                ),
+            )
+        } else if let Some(s) = nees.as_ref().filter(|s| s.verdict != Verdict::Consistent) {
+            (
+                s.verdict,
+                format!(
+                    "average NEES inside its interval at {:.1}% of steps (above {:.1}%, below {:.1}%; at least {:.0}% needed)",
+                    pct(s.inside),
+                    pct(s.above),
+                    pct(s.below),
+                    pct(MIN_INSIDE)
+                ),
+            )
+        } else if let Some((c, s)) = nis.iter().find_map(|c| {
+            c.nis
+                .as_ref()
+                .filter(|s| s.verdict != Verdict::Consistent)
+                .map(|s| (c, s))
+        }) {
+            (
+                s.verdict,
+                format!(
+                    "average NIS of `{}` inside its interval at {:.1}% of measurements (above {:.1}%, below {:.1}%)",
+                    c.channel,
+                    pct(s.inside),
+                    pct(s.above),
+                    pct(s.below)
+                ),
+            )
+        } else {
+            (
+                Verdict::Consistent,
+                format!(
+                    "average NEES and every channel's average NIS inside their intervals at {:.0}% of points or more",
+                    pct(MIN_INSIDE)
+                ),
+            )
+        };
+        Ok(VariantReport {
+            label: self.variant.label(),
+            variant: self.variant,
+            failed_runs: self.failed_runs,
+            first_failure: self.first_failure,
+            nees,
+            nis,
+            verdict,
+            reason,
+        })
+    }
+}
+
+/// The whole Monte Carlo consistency report.
+#[derive(Debug, Clone, Serialize)]
+pub struct Report {
+    /// Spec title.
+    pub title: String,
+    /// Spec file.
+    pub file: String,
+    /// Monte Carlo runs.
+    pub runs: usize,
+    /// Steps per run.
+    pub steps: usize,
+    /// Steps in the spec's horizon (the trials may use fewer).
+    pub spec_steps: u64,
+    /// Scale applied to the filters' Q (1 = as specified).
+    pub filter_q_scale: f64,
+    /// Confidence of the two-sided intervals.
+    pub confidence: f64,
+    /// Seed of the study (run i uses a seed derived from it and i).
+    pub seed: u64,
+    /// One entry per variant.
+    pub variants: Vec<VariantReport>,
+}
+
+impl Report {
+    /// The report as readable text.
+    pub fn text(&self) -> String {
+        let mut out = String::new();
+        let _ = writeln!(out, "cairn trials: {} ({})", self.title, self.file);
+        let _ = writeln!(
+            out,
+            "{} runs x {} steps (spec horizon {} steps), seed {}, filter Q scale {}, {:.0}% two-sided chi-square intervals",
+            self.runs,
+            self.steps,
+            self.spec_steps,
+            self.seed,
+            self.filter_q_scale,
+            100.0 * self.confidence
+        );
+        let _ = writeln!(
+            out,
+            "(Bar-Shalom, Li & Kirubarajan 2001: runs x average ~ chi2(runs x dof))\n"
+        );
+        let _ = writeln!(
+            out,
+            "{:<18} {:>6} {:>10} {:>21} {:>8} {:>8} {:>8}  verdict",
+            "variant / stat", "dof", "time avg", "interval per point", "inside", "above", "below"
+        );
+        for v in &self.variants {
+            let _ = writeln!(out, "{}", v.label);
+            let mut row = |name: &str, s: &Summary| {
+                let _ = writeln!(
+                    out,
+                    "  {:<16} {:>6} {:>10.4} {:>21} {:>7.1}% {:>7.1}% {:>7.1}%  {}",
+                    name,
+                    s.dof,
+                    s.time_average,
+                    format!("[{:.4}, {:.4}]", s.interval.lower, s.interval.upper),
+                    100.0 * s.inside,
+                    100.0 * s.above,
+                    100.0 * s.below,
+                    s.verdict.word()
+                );
+            };
+            if let Some(s) = &v.nees {
+                row("NEES", s);
+            }
+            for c in &v.nis {
+                if let Some(s) = &c.nis {
+                    row(&format!("NIS {}", c.channel), s);
+                }
+            }
+            let _ = writeln!(out, "  => {}: {}", v.verdict.word(), v.reason);
+            if let Some(f) = &v.first_failure {
+                let _ = writeln!(out, "     first failure: {f}");
+            }
+        }
+        out
+    }
+}

@@ -1,0 +1,332 @@
+//! Monte Carlo consistency checks: the chi-square intervals against the
+//! published values, and the verdicts on a tuned and a mistuned filter.
+
+use cairn_host_check::consistency::{
+    self, ConsistencyError, Form, Options, Variant, Verdict, average_interval,
+};
+use cairn_host_check::spec::{
+    ChannelKind, ChannelPlan, Flash, Mode, ModelPlan, Plan, Precision, Profile, Segment, StateInfo,
+    Thresholds,
+};
+use nalgebra::DMatrix;
+
+/// A nearly-constant-velocity track (position, velocity) with a position
+/// sensor: an invented demo cart, not a published case.
+fn cart(steps: u64, seed: u64) -> Plan {
+    let dt = 0.1;
+    let q = 0.5;
+    Plan {
+        title: "cart on a rail".into(),
+        file: "<test>".into(),
+        states: vec![
+            StateInfo {
+                name: "position".into(),
+                unit: "m".into(),
+            },
+            StateInfo {
+                name: "velocity".into(),
+                unit: "m/s".into(),
+            },
+        ],
+        step_hz: 1.0 / dt,
+        steps,
+        x0: vec![0.0, 1.0],
+        p0: DMatrix::from_row_slice(2, 2, &[1.0, 0.0, 0.0, 0.25]),
+        model: ModelPlan::Linear {
+            f: DMatrix::from_row_slice(2, 2, &[1.0, dt, 0.0, 1.0]),
+            // White-noise-acceleration Q = q [[T^3/3, T^2/2], [T^2/2, T]]
+            // (Bar-Shalom, Li & Kirubarajan 2001, from memory).
+            q: DMatrix::from_row_slice(
+                2,
+                2,
+                &[
+                    q * dt * dt * dt / 3.0,
+                    q * dt * dt / 2.0,
+                    q * dt * dt / 2.0,
+                    q * dt,
+                ],
+            ),
+            discretised: false,
+        },
+        channels: vec![ChannelPlan {
+            name: "rail encoder".into(),
+            m: 1,
+            kind: ChannelKind::Linear(DMatrix::from_row_slice(1, 2, &[1.0, 0.0])),
+            r: DMatrix::from_element(1, 1, 0.04),
+            rate_hz: 10.0,
+            dropouts: vec![],
+            gate: None,
+        }],
+        thresholds: Thresholds::default(),
+        flash: Flash {
+            precision: Precision::F32,
+            form: "joseph".into(),
+        },
+        mode: Mode::Covariance,
+        external: None,
+        conversions: vec![],
+        seed,
+    }
+}
+
+/// An invented lawn robot on the core's planar pose model.
+fn rover(steps: u64) -> Plan {
+    Plan {
+        title: "lawn rover".into(),
+        file: "<test>".into(),
+        states: vec![
+            StateInfo {
+                name: "x".into(),
+                unit: "m".into(),
+            },
+            StateInfo {
+                name: "y".into(),
+                unit: "m".into(),
+            },
+            StateInfo {
+                name: "heading".into(),
+                unit: "rad".into(),
+            },
+        ],
+        step_hz: 50.0,
+        steps,
+        x0: vec![0.0, 0.0, 0.3],
+        p0: DMatrix::from_diagonal(&nalgebra::DVector::from_column_slice(&[0.04, 0.04, 0.01])),
+        model: ModelPlan::Pose {
+            speed_var: 4e-3,
+            yaw_rate_var: 1e-3,
+            heading_drift_var: 1e-7,
+            profile: Profile::Segments(vec![
+                Segment {
+                    seconds: 4.0,
+                    speed: 0.8,
+                    yaw_rate: 0.0,
+                },
+                Segment {
+                    seconds: 2.0,
+                    speed: 0.5,
+                    yaw_rate: 0.6,
+                },
+            ]),
+        },
+        channels: vec![
+            ChannelPlan {
+                name: "beacon fix".into(),
+                m: 2,
+                kind: ChannelKind::Position,
+                r: DMatrix::from_row_slice(2, 2, &[0.01, 0.0, 0.0, 0.01]),
+                rate_hz: 5.0,
+                dropouts: vec![],
+                gate: None,
+            },
+            ChannelPlan {
+                name: "compass".into(),
+                m: 1,
+                kind: ChannelKind::Heading,
+                r: DMatrix::from_element(1, 1, 4e-3),
+                rate_hz: 10.0,
+                dropouts: vec![],
+                gate: None,
+            },
+        ],
+        thresholds: Thresholds::default(),
+        flash: Flash {
+            precision: Precision::F32,
+            form: "joseph".into(),
+        },
+        mode: Mode::EndToEnd,
+        external: None,
+        conversions: vec![],
+        seed: 7,
+    }
+}
+
+fn options(runs: usize, steps: u64, scale: f64) -> Options {
+    Options {
+        runs,
+        steps: Some(steps),
+        filter_q_scale: scale,
+        ..Options::default()
+    }
+}
+
+#[test]
+fn statrs_quantiles_reproduce_the_published_intervals() {
+    // Bar-Shalom, Li & Kirubarajan 2001, two-sided 95% intervals for the
+    // N-run average of an n-dof chi-square statistic (values as listed in
+    // REFERENCES.md, computed).
+    let cases: [(usize, u64, f64, f64, f64); 6] = [
+        (3, 50, 2.3597, 3.7160, 5e-5),
+        (2, 50, 1.484, 2.591, 5e-4),
+        (1, 50, 0.647, 1.428, 5e-4),
+        (4, 50, 3.255, 4.821, 5e-4),
+        (3, 100, 2.539, 3.499, 5e-4),
+        (3, 1, 0.216, 9.348, 5e-4),
+    ];
+    for (n, runs, lo, hi, tol) in cases {
+        let i = average_interval(n, runs, 0.95).unwrap();
+        assert!(
+            (i.lower - lo).abs() <= tol,
+            "n = {n}, N = {runs}: lower {} vs {lo}",
+            i.lower
+        );
+        assert!(
+            (i.upper - hi).abs() <= tol,
+            "n = {n}, N = {runs}: upper {} vs {hi}",
+            i.upper
+        );
+    }
+}
+
+#[test]
+fn a_tuned_linear_filter_is_consistent_in_every_variant() {
+    // A filter told the truth's own Q and R has NEES ~ chi2(n) and
+    // NIS ~ chi2(m) (Bar-Shalom, Li & Kirubarajan 2001).
+    let report = consistency::run(&cart(300, 11), &options(50, 300, 1.0)).unwrap();
+    assert_eq!(report.variants.len(), 6);
+    for v in &report.variants {
+        assert_eq!(v.verdict, Verdict::Consistent, "{}", report.text());
+        let nees = v.nees.as_ref().unwrap();
+        assert!(
+            (nees.time_average - 2.0).abs() < 0.3,
+            "{}: {}",
+            v.label,
+            nees.time_average
+        );
+        let nis = v.nis[0].nis.as_ref().unwrap();
+        assert!(
+            (nis.time_average - 1.0).abs() < 0.15,
+            "{}: {}",
+            v.label,
+            nis.time_average
+        );
+    }
+}
+
+#[test]
+fn a_filter_with_q_ten_times_too_small_is_optimistic() {
+    // Q too small makes P too small: NEES above its interval
+    // (Bar-Shalom, Li & Kirubarajan 2001; common practice).
+    let report = consistency::run(&cart(300, 11), &options(50, 300, 0.1)).unwrap();
+    for v in &report.variants {
+        assert_eq!(v.verdict, Verdict::Optimistic, "{}", report.text());
+        assert!(v.nees.as_ref().unwrap().above > 0.5, "{}", report.text());
+    }
+}
+
+#[test]
+fn a_filter_with_q_ten_times_too_large_is_pessimistic() {
+    // Common practice: Q too large makes P too large, NEES below its interval.
+    let report = consistency::run(&cart(300, 11), &options(50, 300, 10.0)).unwrap();
+    for v in &report.variants {
+        assert_eq!(v.verdict, Verdict::Pessimistic, "{}", report.text());
+    }
+}
+
+#[test]
+fn the_report_does_not_depend_on_the_thread_count() {
+    let plan = cart(120, 5);
+    let opts = Options {
+        variants: vec![Variant {
+            precision: Precision::F32,
+            form: Form::Ud,
+        }],
+        ..options(20, 120, 1.0)
+    };
+    let one = rayon::ThreadPoolBuilder::new()
+        .num_threads(1)
+        .build()
+        .unwrap();
+    let two = rayon::ThreadPoolBuilder::new()
+        .num_threads(2)
+        .build()
+        .unwrap();
+    let a = one.install(|| consistency::run(&plan, &opts)).unwrap();
+    let b = two.install(|| consistency::run(&plan, &opts)).unwrap();
+    let ja = serde_json::to_string(&a).unwrap();
+    let jb = serde_json::to_string(&b).unwrap();
+    assert_eq!(ja, jb);
+    // A different seed gives a different study.
+    let c = consistency::run(&cart(120, 6), &opts).unwrap();
+    assert_ne!(ja, serde_json::to_string(&c).unwrap());
+}
+
+#[test]
+fn the_pose_model_is_judged_with_wrapped_headings() {
+    // An extended filter told the truth's noise stays close to consistent
+    // over a short horizon; with Q ten times too small it is optimistic
+    // (Bar-Shalom, Li & Kirubarajan 2001).
+    let variants = vec![Variant {
+        precision: Precision::F32,
+        form: Form::Joseph,
+    }];
+    let tuned = consistency::run(
+        &rover(500),
+        &Options {
+            variants: variants.clone(),
+            ..options(40, 500, 1.0)
+        },
+    )
+    .unwrap();
+    let v = &tuned.variants[0];
+    assert_eq!(v.failed_runs, 0, "{}", tuned.text());
+    let nees = v.nees.as_ref().unwrap();
+    // Linearisation makes an extended filter slightly optimistic; it must
+    // still sit near chi2(3) on average and inside the band most of the time.
+    assert!((nees.time_average - 3.0).abs() < 0.5, "{}", tuned.text());
+    assert!(nees.inside > 0.8, "{}", tuned.text());
+    for c in &v.nis {
+        assert_eq!(
+            c.nis.as_ref().unwrap().verdict,
+            Verdict::Consistent,
+            "{}",
+            tuned.text()
+        );
+    }
+    let mistuned = consistency::run(
+        &rover(500),
+        &Options {
+            variants,
+            ..options(40, 500, 0.1)
+        },
+    )
+    .unwrap();
+    assert_eq!(
+        mistuned.variants[0].verdict,
+        Verdict::Optimistic,
+        "{}",
+        mistuned.text()
+    );
+}
+
+#[test]
+fn bad_options_are_refused_with_a_reason() {
+    let plan = cart(10, 1);
+    let cases = [
+        options(0, 10, 1.0),
+        options(5, 0, 1.0),
+        options(5, 10, 0.0),
+        options(5, 10, f64::NAN),
+        Options {
+            confidence: 1.5,
+            ..options(5, 10, 1.0)
+        },
+        Options {
+            variants: vec![],
+            ..options(5, 10, 1.0)
+        },
+    ];
+    for o in cases {
+        match consistency::run(&plan, &o) {
+            Err(ConsistencyError::Option(msg)) => assert!(!msg.is_empty()),
+            other => panic!("expected an option error for {o:?}, got {other:?}"),
+        }
+    }
+    // A covariance that is not one: P0 with a negative eigenvalue.
+    let mut bad = cart(10, 1);
+    bad.p0 = DMatrix::from_row_slice(2, 2, &[1.0, 2.0, 2.0, 1.0]);
+    assert!(matches!(
+        consistency::run(&bad, &options(5, 10, 1.0)),
+        Err(ConsistencyError::Model(_))
+    ));
+}
