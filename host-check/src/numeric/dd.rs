@@ -502,6 +502,44 @@ mod tests {
         assert_eq!(1.0 - (1.0 - 2f64.powi(-50)), 2f64.powi(-50));
     }
 
+    /// A double-double holding an integer below 2^120 exactly, as i128.
+    fn to_i128(d: Dd) -> i128 {
+        // hi is an integer (|hi| >= 2^60 here); lo is below 2^67, so its
+        // fractional part (if any) is below 1.
+        d.hi() as i128 + d.lo().trunc() as i128
+    }
+
+    #[test]
+    fn products_and_quotients_against_exact_integers() {
+        // Exact integer arithmetic (i128) as the referee: a, b < 2^60 are
+        // exact as double-doubles (not as f64); a + b must be exact, a * b
+        // within 5u^2 relative (JMP 2017 bound for DWTimesDW1, from
+        // memory, "a few u^2") and (a*b)/b within the DWDivDW2 bound
+        // 15u^2 + 56u^3 plus the product's error.
+        let mut state = 0x2545_f491_4f6c_dd1d_u64;
+        let mut next = || {
+            state ^= state << 13;
+            state ^= state >> 7;
+            state ^= state << 17;
+            state >> 4 // below 2^60
+        };
+        let dd_of = |v: u64| Dd::sum_exact((v >> 30 << 30) as f64, (v & ((1 << 30) - 1)) as f64);
+        for _ in 0..2000 {
+            let (a, b) = (next() | (1 << 59), next() | (1 << 59));
+            let (da, db) = (dd_of(a), dd_of(b));
+            assert_eq!(to_i128(da), i128::from(a));
+            assert_eq!(to_i128(da + db), i128::from(a) + i128::from(b));
+            let exact = i128::from(a) * i128::from(b);
+            let p = da * db;
+            let err = (exact - to_i128(p)).unsigned_abs() as f64;
+            assert!(err <= 5.0 * U2 * exact as f64 + 1.0, "{a} * {b}: err {err}");
+            // Quotient: (a*b)/b = a.
+            let q = p / db;
+            let qerr = (q - da).abs().to_f64();
+            assert!(qerr <= 21.0 * U2 * a as f64, "{a}: {qerr}");
+        }
+    }
+
     #[test]
     fn non_finite_propagates_without_panic() {
         let z = Dd::ONE / Dd::ZERO;
