@@ -697,6 +697,27 @@ mod tests {
     }
 
     #[test]
+    fn covariance_only_predict_and_innovation_covariance() {
+        // Covariance-only predict leaves the state alone and gives
+        // F P F' + Q; S = H P H' + R (textbook definitions, common practice).
+        let f = dmat![1.0, 0.5; 0.0, 1.0];
+        let q = dmat![0.1, 0.0; 0.0, 0.2];
+        let x0 = DVector::from_vec(vec![3.0, 4.0]);
+        let mut a = ReferenceFilter::new(&x0, &DMatrix::identity(2, 2));
+        a.predict_covariance(&f, &q).unwrap();
+        assert_eq!(a.state(), x0);
+        // F F' + Q = [[1.25 + 0.1, 0.5], [0.5, 1 + 0.2]] (by hand).
+        assert_eq!(a.covariance(), dmat![1.35, 0.5; 0.5, 1.2]);
+        let s = a
+            .innovation_covariance(&dmat![1.0, 1.0], &dmat![0.5])
+            .unwrap();
+        assert!((s[(0, 0)] - (1.35 + 1.0 + 1.2 + 0.5)).abs() < 1e-15);
+        a.set_covariance(&dmat![2.0, 1.0; 0.0, 2.0]).unwrap();
+        assert_eq!(a.covariance(), dmat![2.0, 0.5; 0.5, 2.0]);
+        assert!(a.set_covariance(&dmat![f64::NAN]).is_err());
+    }
+
+    #[test]
     fn bad_input_is_refused_and_changes_nothing() {
         let mut f = ReferenceFilter::new(&DVector::zeros(2), &DMatrix::zeros(2, 2));
         let before = f.covariance();
