@@ -376,6 +376,27 @@ fn unknown_units_are_named() {
 }
 
 #[test]
+fn units_that_do_not_fit_the_quantity_are_named() {
+    // The strip measures a position in m: a figure in degrees cannot be its
+    // noise, and a density is not a random walk (dimensional analysis,
+    // common practice).
+    rejects(
+        "dim-std",
+        "unit = \"mm\"",
+        "unit = \"deg\"",
+        "unit = \"deg\"",
+        "channel[0].noise[0].unit",
+    );
+    rejects(
+        "dim-psd",
+        "psd = 0.04, unit = \"(m/s^2)^2/Hz\"",
+        "psd = 0.04, unit = \"(m/s^2)/sqrt(Hz)\"",
+        "sqrt(Hz)",
+        "model.noise[0].unit",
+    );
+}
+
+#[test]
 fn zero_rates_are_named() {
     rejects(
         "rate",

@@ -9,6 +9,7 @@ use super::error::{Locator, SpecError};
 use super::raw::RawNoise;
 use super::validate::noise_value;
 use crate::numeric::noise::{self, NoiseFigure, PerFrequency, Sided};
+use crate::numeric::units::{BASE_DIMS, Unit};
 
 /// What the converted figure is for.
 #[derive(Debug, Clone, Copy)]
@@ -60,6 +61,7 @@ pub fn convert(
     field: &str,
     purpose: Use,
     step_hz: f64,
+    quantity: Option<&str>,
 ) -> Result<(f64, ConversionRecord), SpecError> {
     let raw = fig.get_ref();
     let values = noise_value(raw);
@@ -144,63 +146,106 @@ pub fn convert(
         return misplaced("at_hz", s.span());
     }
 
-    // The value in coherent units (SI, radians, seconds).
-    let scaled = v * unit.scale;
-    let mut steps = vec![Step {
-        what: format!("{kind} in coherent units"),
-        formula: format!("{v} {unit_text} x {}", unit.scale),
-        value: scaled,
-        unit: "SI".into(),
-    }];
-    let figure = match kind {
-        "density" => NoiseFigure::Density {
-            value: scaled,
-            sided: sided.unwrap_or(Sided::One),
-        },
-        "psd" => NoiseFigure::Psd {
-            value: scaled,
-            sided: sided.unwrap_or(Sided::One),
-            per: per.unwrap_or(PerFrequency::Hz),
-        },
-        "random_walk" => NoiseFigure::RandomWalk {
-            value: scaled,
-            per_sqrt_hour: false,
-        },
-        "std" | "variance" => {
-            let rate_hz = match (&raw.at_hz, purpose) {
-                (Some(r), _) => {
-                    let x = *r.get_ref();
-                    if !(x.is_finite() && x > 0.0) {
-                        return Err(loc.error(
-                            r.span(),
-                            &format!("{field}.at_hz"),
-                            format!("a sample rate must be positive, got {x}"),
-                        ));
-                    }
-                    x
-                }
-                (None, Use::SampleVariance(rate)) => rate,
-                (None, _) => {
-                    return Err(loc.error(
-                        fig.span(),
-                        &format!("{field}.at_hz"),
-                        format!(
-                            "a per-sample `{kind}` needs the rate it was measured at (`at_hz`)"
-                        ),
-                    ));
-                }
-            };
-            let sigma = if kind == "variance" {
-                scaled.sqrt()
-            } else {
-                scaled
-            };
-            NoiseFigure::SampleStd { sigma, rate_hz }
+    let rate_hz = match (&raw.at_hz, purpose) {
+        (Some(r), _) => {
+            let x = *r.get_ref();
+            if !(x.is_finite() && x > 0.0) {
+                return Err(loc.error(
+                    r.span(),
+                    &format!("{field}.at_hz"),
+                    format!("a sample rate must be positive, got {x}"),
+                ));
+            }
+            Some(x)
         }
-        _ => unreachable_kind(),
+        (None, Use::SampleVariance(rate)) => Some(rate),
+        (None, _) => None,
     };
-    let conv = noise::to_intensity(&figure)
-        .map_err(|e| loc.error(value.span(), &vfield, e.to_string()))?;
+    if matches!(kind, "std" | "variance") && rate_hz.is_none() {
+        return Err(loc.error(
+            fig.span(),
+            &format!("{field}.at_hz"),
+            format!("a per-sample `{kind}` needs the rate it was measured at (`at_hz`)"),
+        ));
+    }
+    let quantity = raw
+        .quantity
+        .as_ref()
+        .map(|q| (q.get_ref().trim().to_string(), Some(q.span())))
+        .or_else(|| quantity.map(|q| (q.to_string(), None)));
+    let mut steps = Vec::new();
+    let squared = quantity
+        .as_ref()
+        .map_or_else(|| "SI^2".to_string(), |(q, _)| format!("({q})^2"));
+    let conv = if let Some((q, qspan)) = quantity {
+        // The quantity's unit is known: the figure's unit must fit the kind
+        // the spec names, and numeric::noise scales and converts it.
+        let qfield = format!("{field}.quantity");
+        let qu = noise::parse_unit(&q)
+            .map_err(|e| loc.error(qspan.clone().unwrap_or(fig.span()), &qfield, e.to_string()))?;
+        let fits = classify(&unit, &qu, unit_text);
+        let wanted = if kind == "variance" { "std" } else { kind };
+        let (value, unit_for) = if kind == "variance" {
+            (v.sqrt(), format!("sqrt({unit_text})"))
+        } else {
+            (v, unit_text.to_string())
+        };
+        let fits_variance = kind == "variance" && unit.same_dimension(&qu.mul(&qu));
+        if fits != Some(wanted) && !fits_variance {
+            return Err(loc.error(
+                raw.unit.span(),
+                &ufield,
+                format!(
+                    "`{unit_text}` does not fit a `{kind}` of a quantity in `{q}`: {}",
+                    expected_form(kind, &q)
+                ),
+            ));
+        }
+        let per_given = per.map(|p| p == PerFrequency::RadPerSecond);
+        if let (Some(true), false) = (per_given, unit_text.contains("rad/s")) {
+            return Err(loc.error(
+                raw.per.as_ref().map_or(fig.span(), Spanned::span),
+                &format!("{field}.per"),
+                "`per` contradicts the unit; write the PSD's unit as (q)^2/(rad/s)",
+            ));
+        }
+        noise::convert(value, &unit_for, &q, sided, rate_hz)
+            .map_err(|e| loc.error(raw.unit.span(), &ufield, e.to_string()))?
+    } else {
+        // No quantity known: the field name says the kind, the unit only
+        // scales it to coherent units (SI, radians, seconds).
+        let scaled = v * unit.scale;
+        steps.push(Step {
+            what: format!("{kind} in coherent units"),
+            formula: format!("{v} {unit_text} x {:.6e}", unit.scale),
+            value: scaled,
+            unit: "SI".into(),
+        });
+        let figure = match kind {
+            "density" => NoiseFigure::Density {
+                value: scaled,
+                sided: sided.unwrap_or(Sided::One),
+            },
+            "psd" => NoiseFigure::Psd {
+                value: scaled,
+                sided: sided.unwrap_or(Sided::Two),
+                per: per.unwrap_or(PerFrequency::Hz),
+            },
+            "random_walk" => NoiseFigure::RandomWalk {
+                value: scaled,
+                per_sqrt_hour: false,
+            },
+            _ => NoiseFigure::SampleStd {
+                sigma: if kind == "variance" {
+                    scaled.sqrt()
+                } else {
+                    scaled
+                },
+                rate_hz: rate_hz.unwrap_or(step_hz),
+            },
+        };
+        noise::to_intensity(&figure).map_err(|e| loc.error(value.span(), &vfield, e.to_string()))?
+    };
     steps.extend(conv.steps.iter().map(|s| Step {
         what: s.what.clone(),
         formula: s.formula.clone(),
@@ -216,7 +261,7 @@ pub fn convert(
                 what: format!("variance of one sample at {rate} Hz"),
                 formula: "W / Ts".into(),
                 value: r,
-                unit: "SI^2".into(),
+                unit: squared.clone(),
             });
             (r, format!("per-sample variance at {rate} Hz"))
         }
@@ -226,7 +271,7 @@ pub fn convert(
                 what: format!("random-walk variance gained per step ({t} s)"),
                 formula: "W t".into(),
                 value: r,
-                unit: "SI^2".into(),
+                unit: squared.clone(),
             });
             (r, format!("variance per filter step at {step_hz} Hz"))
         }
@@ -257,11 +302,46 @@ pub fn convert(
     ))
 }
 
-fn unreachable_kind() -> NoiseFigure {
-    // noise_value only returns the five names matched above.
-    NoiseFigure::SampleStd {
-        sigma: f64::NAN,
-        rate_hz: f64::NAN,
+/// The kind of figure a unit is for a quantity: "std", "density",
+/// "random_walk" or "psd" (dimensions as in numeric::noise::convert).
+fn classify(fig: &Unit, q: &Unit, text: &str) -> Option<&'static str> {
+    let mut half_s = [0; BASE_DIMS];
+    half_s[1] = 1;
+    let sqrt_s = Unit {
+        scale: 1.0,
+        dims: half_s,
+    };
+    let s = sqrt_s.mul(&sqrt_s);
+    let mut rad = [0; BASE_DIMS];
+    rad[2] = 2;
+    let rad = Unit {
+        scale: 1.0,
+        dims: rad,
+    };
+    let q2 = q.mul(q);
+    if fig.same_dimension(q) {
+        Some("std")
+    } else if fig.same_dimension(&q.mul(&sqrt_s)) {
+        Some(if text.contains("Hz") {
+            "density"
+        } else {
+            "random_walk"
+        })
+    } else if fig.same_dimension(&q2.mul(&s)) || fig.same_dimension(&q2.mul(&s).div(&rad)) {
+        Some("psd")
+    } else {
+        None
+    }
+}
+
+/// What a unit of this kind looks like, for error messages.
+fn expected_form(kind: &str, q: &str) -> String {
+    match kind {
+        "density" => format!("a density is in ({q})/sqrt(Hz)"),
+        "random_walk" => format!("a random walk is in ({q})*sqrt(s), e.g. deg/sqrt(h) for deg/s"),
+        "psd" => format!("a PSD is in ({q})^2/Hz or ({q})^2/(rad/s)"),
+        "variance" => format!("a variance is in ({q})^2"),
+        _ => format!("a standard deviation is in {q}"),
     }
 }
 
@@ -277,5 +357,5 @@ pub fn convert_standalone(doc: &str, rate: Option<f64>) -> Result<ConversionReco
         .map(|r| Spanned::new(0..doc.len(), r))
         .map_err(|e| loc.from_toml(&e))?;
     let purpose = rate.map_or(Use::Intensity, Use::SampleVariance);
-    convert(&loc, &fig, "figure", purpose, rate.unwrap_or(1.0)).map(|(_, r)| r)
+    convert(&loc, &fig, "figure", purpose, rate.unwrap_or(1.0), None).map(|(_, r)| r)
 }

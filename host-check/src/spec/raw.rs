@@ -120,6 +120,10 @@ pub struct RawNoise {
     pub per: Option<Spanned<String>>,
     /// Sample rate a `std` or `variance` was measured at, Hz.
     pub at_hz: Option<Spanned<f64>>,
+    /// Unit of the noisy quantity itself (e.g. "m/s^2" for an
+    /// accelerometer); the figure's unit is checked against it. Defaults to
+    /// what the model knows (see docs/spec-format.md).
+    pub quantity: Option<Spanned<String>>,
 }
 
 /// A measurement channel.

@@ -165,7 +165,17 @@ pub(super) fn plan(loc: &Locator<'_>, raw: RawSpec, base: Option<&Path>) -> R<Pl
             let mut qc = DMatrix::zeros(cols, cols);
             for (i, fig) in noise.get_ref().iter().enumerate() {
                 let field = format!("model.noise[{i}]");
-                let (w, rec) = figures::convert(loc, fig, &field, Use::Intensity, step_hz)?;
+                let quantity = selected_state(&g, i, true)
+                    .and_then(|r| parsed_unit(&states[r].unit))
+                    .map(|u| format!("({u})/s"));
+                let (w, rec) = figures::convert(
+                    loc,
+                    fig,
+                    &field,
+                    Use::Intensity,
+                    step_hz,
+                    quantity.as_deref(),
+                )?;
                 qc[(i, i)] = w;
                 conversions.push(rec);
             }
@@ -229,6 +239,7 @@ pub(super) fn plan(loc: &Locator<'_>, raw: RawSpec, base: Option<&Path>) -> R<Pl
                 "model.speed_noise",
                 Use::SampleVariance(step_hz),
                 step_hz,
+                Some("m/s"),
             )?;
             conversions.push(rec);
             let yaw = need(
@@ -244,6 +255,7 @@ pub(super) fn plan(loc: &Locator<'_>, raw: RawSpec, base: Option<&Path>) -> R<Pl
                 "model.yaw_rate_noise",
                 Use::SampleVariance(step_hz),
                 step_hz,
+                Some("rad/s"),
             )?;
             conversions.push(rec);
             let heading_drift_var = match model.heading_drift.as_ref() {
@@ -254,6 +266,7 @@ pub(super) fn plan(loc: &Locator<'_>, raw: RawSpec, base: Option<&Path>) -> R<Pl
                         "model.heading_drift",
                         Use::WalkVariance(dt),
                         step_hz,
+                        Some("rad/s"),
                     )?;
                     conversions.push(rec);
                     v
@@ -298,7 +311,7 @@ pub(super) fn plan(loc: &Locator<'_>, raw: RawSpec, base: Option<&Path>) -> R<Pl
     // Channels.
     let mut channels = Vec::with_capacity(raw.channel.len());
     for (ci, ch) in raw.channel.iter().enumerate() {
-        let c = channel(loc, ch, ci, n, step_hz, pose, &mut conversions)?;
+        let c = channel(loc, ch, ci, &states, step_hz, pose, &mut conversions)?;
         if channels.iter().any(|o: &ChannelPlan| o.name == c.name) {
             return Err(loc.error(
                 ch.get_ref().name.span(),
@@ -451,12 +464,13 @@ fn channel(
     loc: &Locator<'_>,
     ch: &Spanned<RawChannel>,
     ci: usize,
-    n: usize,
+    states: &[StateInfo],
     step_hz: f64,
     pose: bool,
     conversions: &mut Vec<ConversionRecord>,
 ) -> R<ChannelPlan> {
     let c = ch.get_ref();
+    let n = states.len();
     let name = c.name.get_ref().trim().to_string();
     let at = |f: &str| format!("channel[{ci}].{f}");
     if name.is_empty() {
@@ -542,8 +556,21 @@ fn channel(
         let mut r = DMatrix::zeros(m, m);
         for (i, fig) in noise.get_ref().iter().enumerate() {
             let field = at(&format!("noise[{i}]"));
-            let (v, rec) =
-                figures::convert(loc, fig, &field, Use::SampleVariance(rate_hz), step_hz)?;
+            let quantity = match &kind {
+                ChannelKind::Position => Some("m".to_string()),
+                ChannelKind::Heading => Some("rad".to_string()),
+                ChannelKind::Linear(h) => {
+                    selected_state(h, i, false).and_then(|j| parsed_unit(&states[j].unit))
+                }
+            };
+            let (v, rec) = figures::convert(
+                loc,
+                fig,
+                &field,
+                Use::SampleVariance(rate_hz),
+                step_hz,
+                quantity.as_deref(),
+            )?;
             if v <= 0.0 {
                 return Err(loc.error(
                     fig.span(),
@@ -930,4 +957,26 @@ pub(super) fn noise_value(fig: &RawNoise) -> Vec<(&'static str, &Spanned<f64>)> 
         }
     }
     v
+}
+
+/// The one state a column (`by_column`, of G) or a row (of H) touches with
+/// coefficient 1, if it touches exactly one.
+fn selected_state(m: &DMatrix<f64>, index: usize, by_column: bool) -> Option<usize> {
+    let line: Vec<f64> = if by_column {
+        m.column(index).iter().copied().collect()
+    } else {
+        m.row(index).iter().copied().collect()
+    };
+    let nonzero: Vec<usize> = (0..line.len()).filter(|&k| line[k] != 0.0).collect();
+    match nonzero.as_slice() {
+        [k] if line[*k] == 1.0 => Some(*k),
+        _ => None,
+    }
+}
+
+/// A state's unit text when the unit grammar reads it (free-text units such
+/// as "1" or "counts" give no dimension check).
+fn parsed_unit(text: &str) -> Option<String> {
+    let t = text.trim();
+    (!t.is_empty() && crate::numeric::units::parse_unit(t).is_ok()).then(|| t.to_string())
 }
