@@ -207,3 +207,26 @@ fn heading_residual_wraps_and_state_stays_in_range() {
         "heading {th}"
     );
 }
+
+#[test]
+fn rank_deficient_process_noise_is_accepted_in_single_precision() {
+    // Odometry noise maps two inputs into three states, so Q = L S L' is
+    // positive semidefinite and singular; rounding in f32 must not make the
+    // cheap definiteness checks refuse it (common practice: one noise
+    // source driving several states gives a singular Q).
+    let motion = PlanarOdometry {
+        speed_var: 4e-4_f32,
+        yaw_rate_var: 2.5e-5,
+        heading_drift_var: 0.0,
+    };
+    let mut kf = filter();
+    let mut ud = cairn_core::UdKalman::<f32, 3>::try_new(*kf.state(), *kf.covariance()).unwrap();
+    for k in 0..20_000 {
+        let u = Odometry {
+            speed: 1.2,
+            yaw_rate: 0.3 * ((k as f32) * 1e-3).sin(),
+        };
+        kf.predict_with(&motion, &u, 0.005).unwrap();
+        ud.predict_with(&motion, &u, 0.005).unwrap();
+    }
+}

@@ -41,7 +41,8 @@ pub(crate) fn symmetric<T: Scalar, const N: usize>(
 
 /// A noise covariance: finite, symmetric, non-negative diagonal and every
 /// 2 x 2 principal minor non-negative (necessary for positive
-/// semidefiniteness; O(n^2)). With `strict`, the diagonal must be positive.
+/// semidefiniteness, to within rounding; O(n^2)). With `strict`, the
+/// diagonal must be positive.
 #[inline]
 pub(crate) fn noise<T: Scalar, const N: usize>(
     a: &SMatrix<T, N, N>,
@@ -50,6 +51,7 @@ pub(crate) fn noise<T: Scalar, const N: usize>(
 ) -> Result<(), FilterError> {
     finite(a, what)?;
     symmetric(a, what)?;
+    let slack = T::EPSILON * T::of(16.0);
     for i in 0..N {
         let d = a[(i, i)];
         if d < T::zero() || (strict && d <= T::zero()) {
@@ -59,8 +61,11 @@ pub(crate) fn noise<T: Scalar, const N: usize>(
             });
         }
         for j in 0..i {
+            // A rank-deficient block (one noise source driving two states)
+            // has c^2 = a_ii a_jj exactly; allow the few roundings that
+            // assembling it in floating point costs.
             let c = a[(i, j)];
-            if c * c > a[(i, i)] * a[(j, j)] {
+            if c * c > a[(i, i)] * a[(j, j)] * (T::one() + slack) {
                 return Err(FilterError::NotPositiveDefinite {
                     operand: what,
                     index: idx(i),

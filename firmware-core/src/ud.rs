@@ -30,11 +30,21 @@ pub struct UdKalman<T: Scalar, const N: usize> {
 
 /// U-D factorisation of a symmetric positive semidefinite matrix (upper
 /// unit-triangular U, diagonal D), packed. Zero pivots are allowed (the
-/// column of U is then zero); negative or non-finite pivots are refused.
+/// column of U is then zero, and pivots within rounding of zero count as
+/// zero); negative or non-finite pivots are refused.
 fn factor_ud<T: Scalar, const N: usize>(
     p: &SMatrix<T, N, N>,
     strict: bool,
 ) -> Result<SMatrix<T, N, N>, usize> {
+    // Pivots at the rounding level of the largest variance carry no
+    // information; for a semidefinite matrix (strict = false) they are
+    // zeroed rather than divided by, which keeps the factors of a
+    // rank-deficient Q bounded (common practice for a rank decision).
+    let mut largest = T::zero();
+    for j in 0..N {
+        largest = largest.max(p[(j, j)].abs());
+    }
+    let floor = T::EPSILON * T::of(4.0 * N as f64) * largest;
     let mut ud = SMatrix::<T, N, N>::zeros();
     for j in (0..N).rev() {
         let mut d = p[(j, j)];
@@ -42,8 +52,14 @@ fn factor_ud<T: Scalar, const N: usize>(
             let u = ud[(j, k)];
             d -= u * u * ud[(k, k)];
         }
-        let tiny = T::EPSILON * T::of(N as f64) * p[(j, j)].abs();
-        if !d.finite() || d < T::zero() || (strict && d <= tiny) {
+        let tiny = if strict {
+            T::EPSILON * T::of(N as f64) * p[(j, j)].abs()
+        } else {
+            floor
+        };
+        // Within rounding of zero is a rank-deficient direction; below
+        // that, the matrix is indefinite.
+        if !d.finite() || d < -tiny || (strict && d <= tiny) {
             return Err(j);
         }
         if d <= tiny {
