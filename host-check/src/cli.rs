@@ -60,6 +60,15 @@ pub enum Command {
         after_help = "Exit codes:\n  0  estimate printed\n  2  bad option, missing tool or failed build/run"
     )]
     Cost(CostArgs),
+    /// Monte Carlo consistency: simulate truth and measurements from the
+    /// spec's own noise, run every variant, and judge average NEES and NIS
+    /// against their chi-square intervals (the demo when no spec is given).
+    #[command(after_help = crate::consistency::command::EXIT_CODES)]
+    Trials(crate::consistency::command::TrialsArgs),
+    /// Write the spec's matrices (F, Q, H, R, P0 and the Riccati steady
+    /// gain and covariance) as a Rust file of `const` arrays for firmware.
+    #[command(after_help = crate::constants::command::EXIT_CODES)]
+    Constants(crate::constants::command::ConstantsArgs),
 }
 
 /// `cairn cost`.
@@ -158,6 +167,10 @@ pub struct NoiseArgs {
     /// Sample rate a per-sample std or variance was measured at, Hz.
     #[arg(long, value_name = "HZ")]
     pub at_hz: Option<f64>,
+    /// Unit of the noisy quantity (e.g. "rad/s" for a gyro); checks the
+    /// figure's unit against it and converts into it.
+    #[arg(long)]
+    pub quantity: Option<String>,
     /// Also give the variance of one sample at this rate, Hz.
     #[arg(long, value_name = "HZ")]
     pub rate: Option<f64>,
@@ -214,6 +227,8 @@ pub fn execute(cli: Cli) -> Result<u8, Failure> {
         }
         Some(Command::Noise(a)) => noise(&a),
         Some(Command::Cost(a)) => cost(&a),
+        Some(Command::Trials(a)) => crate::consistency::command::execute(&a),
+        Some(Command::Constants(a)) => crate::constants::command::execute(&a),
     }
 }
 
@@ -323,6 +338,9 @@ fn noise(a: &NoiseArgs) -> Result<u8, Failure> {
     }
     if let Some(s) = &a.per {
         doc.push_str(&format!("per = {}\n", quote(s)));
+    }
+    if let Some(q) = &a.quantity {
+        doc.push_str(&format!("quantity = {}\n", quote(q)));
     }
     if let Some(r) = a.at_hz {
         doc.push_str(&format!("at_hz = {r:?}\n"));

@@ -268,6 +268,40 @@ fn noise_subcommand_converts_an_angle_random_walk() {
     assert!((value.sqrt() / 2.909e-4 - 1.0).abs() < 1e-3, "{last}");
 }
 
+#[test]
+fn noise_subcommand_converts_an_accelerometer_density() {
+    // 100 ug/sqrt(Hz), one-sided, sampled at 100 Hz: sigma = ND sqrt(fs/2) =
+    // 6.93e-3 m/s^2 (REFERENCES.md, sensor noise figures, computed).
+    let out = cairn(&[
+        "noise",
+        "density=100",
+        "--unit",
+        "ug/sqrt(Hz)",
+        "--sided",
+        "one",
+        "--quantity",
+        "m/s^2",
+        "--rate",
+        "100",
+    ]);
+    assert_eq!(out.status.code(), Some(0));
+    let text = String::from_utf8_lossy(&out.stdout);
+    let last = text.lines().last().unwrap();
+    let value: f64 = last.rsplit('=').next().unwrap().trim().parse().unwrap();
+    assert!((value.sqrt() / 6.93e-3 - 1.0).abs() < 1e-3, "{last}");
+    // The same figure for a quantity in m/s does not fit: exit 2, field named.
+    let out = cairn(&[
+        "noise",
+        "density=100",
+        "--unit",
+        "ug/sqrt(Hz)",
+        "--quantity",
+        "m/s",
+    ]);
+    assert_eq!(out.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&out.stderr).contains("`figure.unit`"));
+}
+
 /// A bad spec made from the tracker spec by one replacement: exit 2 and a
 /// message naming the file, the line of `locate` and the field.
 fn rejects(tag: &str, from: &str, to: &str, locate: &str, field: &str) {
