@@ -564,3 +564,23 @@ fn recorded_odometry_runs_end_to_end() {
     let d = num(&f32j["figures"]["max_state_difference_sigma"]);
     assert!(d > 0.0 && d < 0.1, "f32 state difference {d} sigma");
 }
+
+#[test]
+fn the_documented_example_spec_is_valid() {
+    // docs/spec-format.md's commented example must stay a valid spec.
+    let doc = std::fs::read_to_string(
+        Path::new(env!("CARGO_MANIFEST_DIR")).join("../docs/spec-format.md"),
+    )
+    .expect("docs/spec-format.md");
+    let start = doc.find("```toml\n").expect("a toml example") + "```toml\n".len();
+    let end = start + doc[start..].find("```").unwrap();
+    let path = scratch("documented.toml");
+    std::fs::write(&path, &doc[start..end]).unwrap();
+    let out = cairn(&["check", path.to_str().unwrap(), "--seconds", "5", "--quiet"]);
+    assert_ne!(
+        out.status.code(),
+        Some(2),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+}
