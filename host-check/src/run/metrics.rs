@@ -14,7 +14,7 @@ pub struct Failure {
     pub step: u64,
     /// Time, s.
     pub time_s: f64,
-    /// The operation ("start", "predict", "update <channel>").
+    /// The operation ("start", "predict", "update `channel`").
     pub operation: String,
     /// The core's error.
     pub error: String,
