@@ -20,6 +20,19 @@ pub trait ProcessModel<T: Scalar, const N: usize> {
     /// The discrete process noise covariance Q for this step.
     fn noise(&self, x: &SVector<T, N>, u: &Self::Input, dt: T) -> SMatrix<T, N, N>;
 
+    /// The same process noise as independent sources, Q = G diag(q) G',
+    /// when the model knows them (columns of G beyond the number of sources
+    /// are zero). Factored filters then skip factoring Q. The default is
+    /// `None`.
+    fn noise_input(
+        &self,
+        _x: &SVector<T, N>,
+        _u: &Self::Input,
+        _dt: T,
+    ) -> Option<(SMatrix<T, N, N>, SVector<T, N>)> {
+        None
+    }
+
     /// Brings a state back to its canonical range (for example, wraps a
     /// heading into (-pi, pi]). The default does nothing.
     fn normalize(&self, _x: &mut SVector<T, N>) {}

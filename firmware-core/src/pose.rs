@@ -85,6 +85,32 @@ impl<T: Scalar> ProcessModel<T, 3> for PlanarOdometry<T> {
         q
     }
 
+    fn noise_input(
+        &self,
+        x: &Vector3<T>,
+        u: &Odometry<T>,
+        dt: T,
+    ) -> Option<(SMatrix<T, 3, 3>, Vector3<T>)> {
+        let (s, c) = Self::midpoint(x, u, dt);
+        let half = T::of(0.5);
+        // Sources: speed reading, yaw-rate reading, heading drift.
+        let g = SMatrix::<T, 3, 3>::new(
+            dt * c,
+            -u.speed * dt * dt * half * s,
+            T::zero(),
+            dt * s,
+            u.speed * dt * dt * half * c,
+            T::zero(),
+            T::zero(),
+            dt,
+            T::one(),
+        );
+        Some((
+            g,
+            Vector3::new(self.speed_var, self.yaw_rate_var, self.heading_drift_var),
+        ))
+    }
+
     fn normalize(&self, x: &mut Vector3<T>) {
         x[2] = wrap_angle(x[2]);
     }

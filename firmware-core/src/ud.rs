@@ -181,12 +181,27 @@ impl<T: Scalar, const N: usize> UdKalman<T, N> {
         }
         let f = model.jacobian(&self.x, u, dt);
         check::finite(&f, Operand::Transition)?;
-        let q = model.noise(&self.x, u, dt);
-        check::noise(&q, Operand::ProcessNoise, false)?;
+        let ud = match model.noise_input(&self.x, u, dt) {
+            Some((g, q)) => {
+                check::finite(&g, Operand::ProcessNoise)?;
+                check::finite(&q, Operand::ProcessNoise)?;
+                if let Some(i) = q.iter().position(|&v| v < T::zero()) {
+                    return Err(FilterError::NotPositiveDefinite {
+                        operand: Operand::ProcessNoise,
+                        index: idx(i),
+                    });
+                }
+                self.gram_schmidt(&f, &g, &q)?
+            }
+            None => {
+                let q = model.noise(&self.x, u, dt);
+                check::noise(&q, Operand::ProcessNoise, false)?;
+                self.time_update(&f, &q)?
+            }
+        };
         let mut x = model.transition(&self.x, u, dt);
         check::finite(&x, Operand::Control)?;
         model.normalize(&mut x);
-        let ud = self.time_update(&f, &q)?;
         self.commit(x, ud)
     }
 
@@ -199,7 +214,57 @@ impl<T: Scalar, const N: usize> UdKalman<T, N> {
             operand: Operand::ProcessNoise,
             index: idx(j),
         })?;
-        // Rows of W: a = F U (n x n) and the n columns of U_q.
+        let mut g = SMatrix::<T, N, N>::zeros();
+        for i in 0..N {
+            for k in i..N {
+                g[(i, k)] = if i == k { T::one() } else { uq[(i, k)] };
+            }
+        }
+        self.gram_schmidt(f, &g, &uq.diagonal())
+    }
+
+    /// Linear predict with the process noise given as Q = G diag(q) G'
+    /// (the noise-input form of Thornton and Bierman 1977): no factorisation
+    /// of Q at all. Columns of G beyond the number of noise sources may be
+    /// zero.
+    ///
+    /// # Errors
+    /// [`FilterError::NonFinite`] for NaN or infinity in F, G or q;
+    /// [`FilterError::NotPositiveDefinite`] for a negative entry of q;
+    /// [`FilterError::CovarianceLost`] when the result is not a covariance.
+    /// Nothing changes on error.
+    ///
+    /// # Panics
+    /// Never.
+    pub fn predict_noise_input(
+        &mut self,
+        f: &SMatrix<T, N, N>,
+        g: &SMatrix<T, N, N>,
+        q: &SVector<T, N>,
+    ) -> Result<(), FilterError> {
+        check::finite(f, Operand::Transition)?;
+        check::finite(g, Operand::ProcessNoise)?;
+        check::finite(q, Operand::ProcessNoise)?;
+        if let Some(i) = q.iter().position(|&v| v < T::zero()) {
+            return Err(FilterError::NotPositiveDefinite {
+                operand: Operand::ProcessNoise,
+                index: idx(i),
+            });
+        }
+        let x = f * self.x;
+        let ud = self.gram_schmidt(f, g, q)?;
+        self.commit(x, ud)
+    }
+
+    /// Thornton's modified weighted Gram-Schmidt: the U-D factors of
+    /// [F U | G] diag(D, q) [F U | G]'.
+    fn gram_schmidt(
+        &self,
+        f: &SMatrix<T, N, N>,
+        g: &SMatrix<T, N, N>,
+        q: &SVector<T, N>,
+    ) -> Result<SMatrix<T, N, N>, FilterError> {
+        // Rows of W: a = F U (n x n) and b = G.
         let mut a = SMatrix::<T, N, N>::zeros();
         for i in 0..N {
             for k in 0..N {
@@ -211,18 +276,7 @@ impl<T: Scalar, const N: usize> UdKalman<T, N> {
                 a[(i, k)] = v;
             }
         }
-        let mut b = SMatrix::<T, N, N>::zeros();
-        for i in 0..N {
-            for k in 0..N {
-                b[(i, k)] = if i == k {
-                    T::one()
-                } else if i < k {
-                    uq[(i, k)]
-                } else {
-                    T::zero()
-                };
-            }
-        }
+        let mut b = *g;
         let mut out = SMatrix::<T, N, N>::zeros();
         for j in (0..N).rev() {
             // d_j = sum_k w_jk^2 Dw_k ; keep c_k = Dw_k w_jk.
@@ -231,7 +285,7 @@ impl<T: Scalar, const N: usize> UdKalman<T, N> {
             let mut dj = T::zero();
             for k in 0..N {
                 ca[k] = self.ud[(k, k)] * a[(j, k)];
-                cb[k] = uq[(k, k)] * b[(j, k)];
+                cb[k] = q[k] * b[(j, k)];
                 dj += a[(j, k)] * ca[k] + b[(j, k)] * cb[k];
             }
             if !(dj.finite() && dj > T::zero()) {
