@@ -213,3 +213,38 @@ fn every_form_behind_the_estimator_trait_gives_the_same_posterior() {
     assert!((j - c).norm() / j.norm() < 1e-12);
     assert!((j - u).norm() / j.norm() < 1e-12);
 }
+
+#[test]
+fn noise_input_time_update_equals_the_full_q_one() {
+    // Thornton and Bierman (1977): the weighted Gram-Schmidt time update
+    // accepts Q as G diag(q) G' directly; in f64 it must give F P F' + Q.
+    use cairn_core::ProcessModel;
+    use cairn_core::pose::{Odometry, PlanarOdometry};
+    let motion = PlanarOdometry {
+        speed_var: 0.0144_f64,
+        yaw_rate_var: 6.9e-6,
+        heading_drift_var: 2.7e-10,
+    };
+    let p0 = Matrix3::new(0.25, 0.01, 0.002, 0.01, 0.2, -0.003, 0.002, -0.003, 0.01);
+    let mut a = UdKalman::<f64, 3>::try_new(Vector3::new(0.0, 0.0, 0.4), p0).unwrap();
+    let mut b = Kalman::<f64, 3, Joseph>::try_new(Vector3::new(0.0, 0.0, 0.4), p0).unwrap();
+    for k in 0..2000 {
+        let u = Odometry {
+            speed: 0.8,
+            yaw_rate: 0.26 * ((k / 400) % 2) as f64,
+        };
+        let x = *b.state();
+        let (g, q) = motion.noise_input(&x, &u, 0.005).unwrap();
+        let gq = g * Matrix3::from_diagonal(&q) * g.transpose();
+        assert!((gq - motion.noise(&x, &u, 0.005)).norm() <= 1e-15 * gq.norm().max(1e-30));
+        a.predict_with(&motion, &u, 0.005).unwrap();
+        b.predict_with(&motion, &u, 0.005).unwrap();
+    }
+    let (pa, pb) = (a.covariance(), *b.covariance());
+    assert!(
+        (pa - pb).norm() / pb.norm() < 1e-12,
+        "{}",
+        (pa - pb).norm() / pb.norm()
+    );
+    assert!((a.state() - b.state()).norm() < 1e-12);
+}
