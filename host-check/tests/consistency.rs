@@ -141,6 +141,20 @@ fn rover(steps: u64) -> Plan {
     }
 }
 
+/// The double-precision Joseph form and the single-precision U-D form.
+fn two() -> Vec<Variant> {
+    vec![
+        Variant {
+            precision: Precision::F64,
+            form: Form::Joseph,
+        },
+        Variant {
+            precision: Precision::F32,
+            form: Form::Ud,
+        },
+    ]
+}
+
 fn options(runs: usize, steps: u64, scale: f64) -> Options {
     Options {
         runs,
@@ -182,7 +196,7 @@ fn statrs_quantiles_reproduce_the_published_intervals() {
 fn a_tuned_linear_filter_is_consistent_in_every_variant() {
     // A filter told the truth's own Q and R has NEES ~ chi2(n) and
     // NIS ~ chi2(m) (Bar-Shalom, Li & Kirubarajan 2001).
-    let report = consistency::run(&cart(300, 11), &options(50, 300, 1.0)).unwrap();
+    let report = consistency::run(&cart(200, 11), &options(50, 200, 1.0)).unwrap();
     assert_eq!(report.variants.len(), 6);
     for v in &report.variants {
         assert_eq!(v.verdict, Verdict::Consistent, "{}", report.text());
@@ -207,7 +221,14 @@ fn a_tuned_linear_filter_is_consistent_in_every_variant() {
 fn a_filter_with_q_ten_times_too_small_is_optimistic() {
     // Q too small makes P too small: NEES above its interval
     // (Bar-Shalom, Li & Kirubarajan 2001; common practice).
-    let report = consistency::run(&cart(300, 11), &options(50, 300, 0.1)).unwrap();
+    let report = consistency::run(
+        &cart(200, 11),
+        &Options {
+            variants: two(),
+            ..options(50, 200, 0.1)
+        },
+    )
+    .unwrap();
     for v in &report.variants {
         assert_eq!(v.verdict, Verdict::Optimistic, "{}", report.text());
         assert!(v.nees.as_ref().unwrap().above > 0.5, "{}", report.text());
@@ -217,7 +238,14 @@ fn a_filter_with_q_ten_times_too_small_is_optimistic() {
 #[test]
 fn a_filter_with_q_ten_times_too_large_is_pessimistic() {
     // Common practice: Q too large makes P too large, NEES below its interval.
-    let report = consistency::run(&cart(300, 11), &options(50, 300, 10.0)).unwrap();
+    let report = consistency::run(
+        &cart(200, 11),
+        &Options {
+            variants: two(),
+            ..options(50, 200, 10.0)
+        },
+    )
+    .unwrap();
     for v in &report.variants {
         assert_eq!(v.verdict, Verdict::Pessimistic, "{}", report.text());
     }
@@ -329,4 +357,55 @@ fn bad_options_are_refused_with_a_reason() {
         consistency::run(&bad, &options(5, 10, 1.0)),
         Err(ConsistencyError::Model(_))
     ));
+}
+
+fn cairn(args: &[&str]) -> std::process::Output {
+    std::process::Command::new(env!("CARGO_BIN_EXE_cairn"))
+        .args(args)
+        .output()
+        .unwrap()
+}
+
+#[test]
+fn the_trials_subcommand_gates_on_consistency() {
+    let spec = concat!(env!("CARGO_MANIFEST_DIR"), "/specs/wna-tracker.toml");
+    let json = std::env::temp_dir().join(format!("cairn-trials-{}.json", std::process::id()));
+    let json_arg = json.to_str().unwrap();
+    let common = [
+        "trials",
+        spec,
+        "--runs",
+        "30",
+        "--steps",
+        "150",
+        "--variant",
+        "f32-joseph",
+    ];
+    let tuned = cairn(&[&common[..], &["--json", json_arg]].concat());
+    assert_eq!(
+        tuned.status.code(),
+        Some(0),
+        "{}",
+        String::from_utf8_lossy(&tuned.stdout)
+    );
+    let report: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(&json).unwrap()).unwrap();
+    let _ = std::fs::remove_file(&json);
+    assert_eq!(report["variants"][0]["verdict"], "consistent");
+    assert_eq!(report["variants"][0]["nees"]["dof"], 2);
+    // Q ten times too small: exit 1 and the word "optimistic".
+    let mistuned = cairn(&[&common[..], &["--filter-q-scale", "0.1"]].concat());
+    assert_eq!(mistuned.status.code(), Some(1));
+    assert!(String::from_utf8_lossy(&mistuned.stdout).contains("optimistic"));
+    // Bad input: exit 2 with a reason.
+    for bad in [
+        &[&common[..], &["--filter-q-scale", "-1"]].concat()[..],
+        &["trials", spec, "--variant", "f16-joseph"],
+        &["trials", spec, "--runs", "0"],
+        &["trials", "/nonexistent/spec.toml"],
+    ] {
+        let out = cairn(bad);
+        assert_eq!(out.status.code(), Some(2), "{bad:?}");
+        assert!(!out.stderr.is_empty());
+    }
 }

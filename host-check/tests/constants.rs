@@ -279,3 +279,39 @@ fn the_generated_file_compiles_for_the_cortex_m4f_with_the_core() {
         String::from_utf8_lossy(&out.stderr)
     );
 }
+
+#[test]
+fn the_constants_subcommand_writes_the_file() {
+    let spec = repo().join("host-check/specs/wna-tracker.toml");
+    let path = std::env::temp_dir().join(format!("cairn-consts-{}.rs", std::process::id()));
+    let out = Command::new(env!("CARGO_BIN_EXE_cairn"))
+        .args([
+            "constants",
+            spec.to_str().unwrap(),
+            "-o",
+            path.to_str().unwrap(),
+            "--scalar",
+            "f64",
+        ])
+        .output()
+        .unwrap();
+    assert_eq!(
+        out.status.code(),
+        Some(0),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let text = std::fs::read_to_string(&path).unwrap();
+    let _ = std::fs::remove_file(&path);
+    assert_eq!(
+        text,
+        constants::generate(&tracker(), Precision::F64)
+            .unwrap()
+            .source
+    );
+    let missing = Command::new(env!("CARGO_BIN_EXE_cairn"))
+        .args(["constants", "/nonexistent/spec.toml"])
+        .output()
+        .unwrap();
+    assert_eq!(missing.status.code(), Some(2));
+}

@@ -2,7 +2,7 @@
 //! (Bar-Shalom, Li & Kirubarajan 2001), with quantiles from `statrs`.
 
 use serde::Serialize;
-use statrs::distribution::{ChiSquared, ContinuousCDF};
+use statrs::distribution::{Binomial, ChiSquared, ContinuousCDF, DiscreteCDF};
 
 use super::ConsistencyError;
 
@@ -73,6 +73,21 @@ pub fn average_interval(
     Ok(Interval { lower, upper })
 }
 
+/// The chance that `outside` or more of `points` independent points fall
+/// outside their intervals when each does so with probability `rate`
+/// (the upper tail of the binomial distribution).
+///
+/// # Errors
+/// [`ConsistencyError::Statistic`] for a rate outside [0, 1].
+pub fn outside_chance(points: u64, outside: u64, rate: f64) -> Result<f64, ConsistencyError> {
+    if outside == 0 {
+        return Ok(1.0);
+    }
+    let b = Binomial::new(rate, points)
+        .map_err(|e| ConsistencyError::Statistic(format!("binomial with rate {rate}: {e}")))?;
+    Ok(b.sf(outside - 1))
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -83,6 +98,18 @@ mod tests {
         let i = average_interval(3, 1, 0.95).unwrap();
         assert!((i.lower - 0.216).abs() < 5e-4, "{i:?}");
         assert!((i.upper - 9.348).abs() < 5e-4, "{i:?}");
+    }
+
+    #[test]
+    fn binomial_tail_matches_hand_values() {
+        // Binomial(10, 0.05): P(X >= 1) = 1 - 0.95^10, P(X >= 2) = 1 - 0.95^10
+        // - 10 0.05 0.95^9 (common practice: the binomial distribution).
+        let p0 = 0.95_f64.powi(10);
+        let p1 = 10.0 * 0.05 * 0.95_f64.powi(9);
+        assert!((outside_chance(10, 1, 0.05).unwrap() - (1.0 - p0)).abs() < 1e-12);
+        assert!((outside_chance(10, 2, 0.05).unwrap() - (1.0 - p0 - p1)).abs() < 1e-12);
+        assert_eq!(outside_chance(10, 0, 0.05).unwrap(), 1.0);
+        assert!(outside_chance(10, 2, 1.5).is_err());
     }
 
     #[test]

@@ -7,6 +7,7 @@
 //! not depend on the number of threads or their scheduling.
 
 pub mod chi2;
+pub mod command;
 pub mod lanes;
 pub mod report;
 pub mod sim;

@@ -7,6 +7,7 @@
 //! `SMatrix::from_array_storage(ArrayStorage(F))` builds it in a `const`
 //! context; each matrix is also shown row by row in its doc comment.
 
+pub mod command;
 mod emit;
 
 use std::fmt::{self, Write as _};
