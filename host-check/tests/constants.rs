@@ -315,3 +315,82 @@ fn the_constants_subcommand_writes_the_file() {
         .unwrap();
     assert_eq!(missing.status.code(), Some(2));
 }
+
+/// A random walk stepped at 100 Hz with q per step, read at `meas_hz`
+/// with variance r: an invented level gauge.
+fn gauge(q: f64, r: f64, meas_hz: f64) -> Plan {
+    use cairn_host_check::spec::{ChannelKind, ChannelPlan, Flash, Mode, StateInfo, Thresholds};
+    Plan {
+        title: "tank level gauge".into(),
+        file: "<test>".into(),
+        states: vec![StateInfo {
+            name: "level".into(),
+            unit: "m".into(),
+        }],
+        step_hz: 100.0,
+        steps: 1000,
+        x0: vec![0.0],
+        p0: DMatrix::from_element(1, 1, 1.0),
+        model: ModelPlan::Linear {
+            f: DMatrix::from_element(1, 1, 1.0),
+            q: DMatrix::from_element(1, 1, q),
+            discretised: false,
+        },
+        channels: vec![ChannelPlan {
+            name: "float".into(),
+            m: 1,
+            kind: ChannelKind::Linear(DMatrix::from_element(1, 1, 1.0)),
+            r: DMatrix::from_element(1, 1, r),
+            rate_hz: meas_hz,
+            dropouts: vec![],
+            gate: None,
+        }],
+        thresholds: Thresholds::default(),
+        flash: Flash {
+            precision: Precision::F32,
+            form: "joseph".into(),
+        },
+        mode: Mode::Covariance,
+        external: None,
+        conversions: vec![],
+        seed: 1,
+    }
+}
+
+fn value(consts: &[(String, Vec<String>)], name: &str) -> f64 {
+    f64::from(find(consts, name)[0].parse::<f32>().unwrap())
+}
+
+#[test]
+fn a_slower_sensor_gets_the_lifted_steady_state() {
+    // Random walk in white noise, steady prior P = (q + sqrt(q^2 + 4 q r)) / 2
+    // and gain K = P / (P + r) (closed form, REFERENCES.md). Read every 4th
+    // step, the walk gathers 4 q between measurements: with 4 q = r = 1,
+    // P = 1.6180340 and K = 0.6180340.
+    let generated = constants::generate(&gauge(0.25, 1.0, 25.0), Precision::F32).unwrap();
+    assert!(
+        generated.steady_note.is_none(),
+        "{:?}",
+        generated.steady_note
+    );
+    let consts = read_back(&generated.source);
+    assert!(
+        generated
+            .source
+            .contains("pub const STEADY_EVERY: usize = 4;")
+    );
+    assert!((value(&consts, "STEADY_PRIOR") - 1.618_034_0).abs() < 1e-6);
+    assert!((value(&consts, "STEADY_GAIN") - 0.618_034_0).abs() < 1e-6);
+    // Every step (q = 0.01, r = 1): P = 0.1051249, K = 0.0951249.
+    let every = read_back(
+        &constants::generate(&gauge(0.01, 1.0, 100.0), Precision::F32)
+            .unwrap()
+            .source,
+    );
+    assert!((value(&every, "STEADY_PRIOR") - 0.105_124_9).abs() < 1e-6);
+    assert!((value(&every, "STEADY_GAIN") - 0.095_124_9).abs() < 1e-6);
+    // A rate that is not a whole fraction of the step: no constant gain, and why.
+    let odd = constants::generate(&gauge(0.01, 1.0, 30.0), Precision::F32).unwrap();
+    assert!(odd.steady_note.unwrap().contains("whole fraction"));
+    assert!(!odd.source.contains("STEADY_GAIN"));
+}

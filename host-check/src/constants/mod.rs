@@ -148,29 +148,65 @@ fn pair_units(plan: &Plan) -> String {
     )
 }
 
-/// F, Q, H and R of a time-invariant filter.
-type Lti = (DMatrix<f64>, DMatrix<f64>, DMatrix<f64>, DMatrix<f64>);
+/// A time-invariant filter as seen at its measurement instants.
+struct Lti {
+    /// Transition over one measurement interval, F^every.
+    f: DMatrix<f64>,
+    /// Process noise gathered over the interval, sum of F^i Q F^i'.
+    q: DMatrix<f64>,
+    /// The channels' H, stacked.
+    h: DMatrix<f64>,
+    /// The channels' R, block diagonal.
+    r: DMatrix<f64>,
+    /// Filter steps per measurement.
+    every: usize,
+}
 
-/// The steady state of the stacked measurement, when the schedule is
-/// time-invariant: a linear model whose channels are all due every step.
+/// The measurement instants' time-invariant filter, when the schedule has
+/// one: a linear model whose channels share one rate, a whole fraction of
+/// the step rate, with no dropouts. With a measurement every k steps the
+/// steady state is that of the lifted model (F^k, sum F^i Q F^i').
 fn steady_inputs(plan: &Plan) -> Result<Lti, String> {
     let ModelPlan::Linear { f, q, .. } = &plan.model else {
         return Err("the planar pose model is nonlinear: no constant gain".into());
     };
-    if plan.channels.is_empty() {
+    let Some(first) = plan.channels.first() else {
         return Err("no measurement channel: no gain".into());
+    };
+    if let Some(c) = plan.channels.iter().find(|c| !c.dropouts.is_empty()) {
+        return Err(format!(
+            "channel `{}` has dropout windows: the schedule is not time-invariant",
+            c.name
+        ));
     }
+    let rate = first.rate_hz;
     if let Some(c) = plan
         .channels
         .iter()
-        .find(|c| (c.rate_hz - plan.step_hz).abs() > 1e-9 * plan.step_hz || !c.dropouts.is_empty())
+        .find(|c| (c.rate_hz - rate).abs() > 1e-9 * rate)
     {
         return Err(format!(
-            "channel `{}` is not due at every step (rate {} Hz against the {} Hz step, or dropouts): the schedule is not time-invariant",
-            c.name, c.rate_hz, plan.step_hz
+            "channels `{}` ({} Hz) and `{}` ({} Hz) run at different rates: the schedule is periodic, not time-invariant",
+            first.name, rate, c.name, c.rate_hz
         ));
     }
+    let ratio = plan.step_hz / rate;
+    let every = ratio.round();
+    if !(every >= 1.0 && (ratio - every).abs() <= 1e-9 * ratio && every <= 1e6) {
+        return Err(format!(
+            "the measurement rate {rate} Hz is not a whole fraction of the {} Hz step",
+            plan.step_hz
+        ));
+    }
+    let every = every as usize;
     let n = plan.n();
+    let mut fk = DMatrix::identity(n, n);
+    let mut qk = DMatrix::zeros(n, n);
+    for _ in 0..every {
+        qk = f * &qk * f.transpose() + q;
+        fk = f * fk;
+    }
+    let qk = (&qk + qk.transpose()) * 0.5;
     let m: usize = plan.channels.iter().map(|c| c.m).sum();
     let mut h = DMatrix::zeros(m, n);
     let mut r = DMatrix::zeros(m, m);
@@ -180,7 +216,13 @@ fn steady_inputs(plan: &Plan) -> Result<Lti, String> {
         r.view_mut((row, row), (c.m, c.m)).copy_from(&c.r);
         row += c.m;
     }
-    Ok((f.clone(), q.clone(), h, r))
+    Ok(Lti {
+        f: fk,
+        q: qk,
+        h,
+        r,
+        every,
+    })
 }
 
 /// Writes the constants of `plan` in `precision`.
@@ -360,7 +402,7 @@ pub fn generate(plan: &Plan, precision: Precision) -> Result<Generated, Constant
 
     let steady_note = match steady_inputs(plan) {
         Err(why) => Some(why),
-        Ok((f, q, h, r)) => match dare::solve(&f, &h, &q, &r) {
+        Ok(Lti { f, q, h, r, every }) => match dare::solve(&f, &h, &q, &r) {
             Err(e) => Some(format!(
                 "the Riccati equation has no usable steady state: {e}"
             )),
@@ -375,6 +417,21 @@ pub fn generate(plan: &Plan, precision: Precision) -> Result<Generated, Constant
                     "// channels [{}] in that order. For cairn_core::SteadyGain::try_new(x, F, H, K, S).",
                     names.join(", ")
                 ));
+                if every > 1 {
+                    w.line(&format!(
+                        "// A measurement arrives every {every} steps: predict with F every step and update at"
+                    ));
+                    w.line("// steps STEADY_EVERY, 2 STEADY_EVERY, ...; the prior below is the one at those steps,");
+                    w.line(&format!(
+                        "// the steady state of the lifted model (F^{every}, sum of F^i Q F^i' for i < {every})."
+                    ));
+                }
+                emit::size(
+                    &mut w.out,
+                    "STEADY_EVERY",
+                    "Filter steps per measurement (the steady gain applies at these steps).",
+                    every,
+                );
                 emit::size(
                     &mut w.out,
                     "STEADY_M",
@@ -396,7 +453,10 @@ pub fn generate(plan: &Plan, precision: Precision) -> Result<Generated, Constant
                 )?;
                 w.matrix(
                     "STEADY_PRIOR",
-                    &["Steady prior covariance P-.".into(), pair_units(plan)],
+                    &[
+                        "Steady prior covariance P- (at a measurement step).".into(),
+                        pair_units(plan),
+                    ],
                     &s.prior,
                 )?;
                 w.matrix(
