@@ -26,6 +26,12 @@ use crate::spec::Plan;
 
 /// Steps per run when the options do not say (the spec's horizon if shorter).
 pub const DEFAULT_STEPS: u64 = 2_000;
+/// Most steps per run.
+pub const MAX_STEPS: usize = 2_000_000;
+/// Bytes the runs in flight may hold.
+const MEMORY_BUDGET: usize = 1 << 30;
+/// Rough measurement components per step, for the memory estimate.
+const MAX_COMPONENTS_TOTAL: usize = 3;
 /// Runs when the options do not say.
 pub const DEFAULT_RUNS: usize = 50;
 
@@ -117,8 +123,12 @@ pub fn run(plan: &Plan, options: &Options) -> Result<Report, ConsistencyError> {
     };
     let steps = usize::try_from(steps)
         .ok()
-        .filter(|&s| s <= 100_000_000)
-        .ok_or_else(|| ConsistencyError::Option(format!("{steps} steps per run is too many")))?;
+        .filter(|&s| s <= MAX_STEPS)
+        .ok_or_else(|| {
+            ConsistencyError::Option(format!(
+                "{steps} steps per run is too many (at most {MAX_STEPS}; consistency shows long before)"
+            ))
+        })?;
     let setup = sim::Setup::new(plan, steps, options.filter_q_scale)?;
     let channels: Vec<(String, usize)> = plan
         .channels
@@ -144,7 +154,12 @@ pub fn run(plan: &Plan, options: &Options) -> Result<Report, ConsistencyError> {
     };
 
     // Runs go in batches: each batch in parallel, then summed in run order.
-    let batch = (rayon::current_num_threads() * 4).max(1);
+    // A run in flight holds its truth, measurements and every variant's
+    // trace; the batch keeps that under MEMORY_BUDGET.
+    let per_step = 8
+        * (setup.n + options.variants.len() * (1 + plan.channels.len()) + 2 * MAX_COMPONENTS_TOTAL);
+    let per_run = (steps * per_step).max(1);
+    let batch = (MEMORY_BUDGET / per_run).clamp(1, rayon::current_num_threads() * 4);
     let mut start = 0;
     while start < options.runs {
         let end = (start + batch).min(options.runs);
