@@ -41,6 +41,7 @@ pub fn build_on_target() -> &'static Path {
             .env_remove("CARGO_TARGET_DIR")
             .env_remove("CARGO_BUILD_TARGET")
             .env_remove("CARGO_BUILD_RUSTFLAGS")
+            .env_remove("CAIRN_COST_SIZES")
             .output()
             .map_err(|e| format!("cannot run cargo: {e}"))?;
         if !out.status.success() {

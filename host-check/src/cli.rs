@@ -88,6 +88,14 @@ pub struct CostArgs {
     /// otherwise.
     #[arg(long = "rate", value_name = "NAME=HZ")]
     pub rates: Vec<String>,
+    /// Also price a linear model of N states with M-component updates
+    /// (repeatable), e.g. 12x3.
+    #[arg(long = "size", value_name = "NxM")]
+    pub sizes: Vec<String>,
+    /// Take the sizes and rates from a spec file (its model, step rate and
+    /// channel rates).
+    #[arg(long, value_name = "PATH")]
+    pub spec: Option<PathBuf>,
 }
 
 /// Where the reports go.
@@ -233,7 +241,29 @@ pub fn execute(cli: Cli) -> Result<u8, Failure> {
 }
 
 fn cost(a: &CostArgs) -> Result<u8, Failure> {
-    let mut rates = Vec::new();
+    let mut sizes = Vec::new();
+    for item in &a.sizes {
+        let parsed = item
+            .split_once(['x', 'X'])
+            .and_then(|(n, m)| Some((n.trim().parse().ok()?, m.trim().parse().ok()?)));
+        let Some(size) = parsed else {
+            return Err(bad(Message(format!(
+                "`{item}`: write a size as NxM, e.g. 12x3"
+            ))));
+        };
+        sizes.push(size);
+    }
+    let (mut rates, mut demo_rates) = (Vec::new(), true);
+    if let Some(path) = &a.spec {
+        let plan = spec::load(path).map_err(bad)?;
+        let wanted = crate::cost::plan_probes(&plan);
+        for note in &wanted.notes {
+            eprintln!("note: {note}");
+        }
+        sizes.extend(wanted.sizes);
+        rates = wanted.rates;
+        demo_rates = false;
+    }
     for r in &a.rates {
         let parsed = r
             .split_once('=')
@@ -243,6 +273,7 @@ fn cost(a: &CostArgs) -> Result<u8, Failure> {
                 "`{r}`: write a rate as NAME=HZ, e.g. pose_predict=200"
             ))));
         };
+        rates.retain(|r: &(String, f64)| r.0 != rate.0);
         rates.push(rate);
     }
     let config = crate::cost::CostConfig {
@@ -250,6 +281,8 @@ fn cost(a: &CostArgs) -> Result<u8, Failure> {
         on_target: a.on_target.clone(),
         clock_mhz: a.clock_mhz,
         rates,
+        demo_rates,
+        sizes,
         ..crate::cost::CostConfig::default()
     };
     let report = crate::cost::estimate(&config).map_err(bad)?;

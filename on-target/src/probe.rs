@@ -6,8 +6,12 @@
 //! for the paths `cairn_on_target::probe::<name>`.
 
 use cairn_core::pose::{HeadingFix, Odometry, PlanarOdometry, PositionFix};
+use core::hint::black_box;
+
 use cairn_core::{Conventional, FilterError, Joseph, Kalman, Outcome};
 use nalgebra::{SMatrix, SVector, Vector1, Vector2};
+
+use crate::scenario::Lcg;
 
 /// Pose filter predict: odometry step through the planar model.
 #[inline(never)]
@@ -42,44 +46,33 @@ pub fn pose_heading_update(
     filter.update_with(model, z, gate)
 }
 
-/// Linear predict, n = 9.
-#[inline(never)]
-pub fn linear9_predict(
-    filter: &mut Kalman<f32, 9, Joseph>,
-    f: &SMatrix<f32, 9, 9>,
-    q: &SMatrix<f32, 9, 9>,
-) -> Result<(), FilterError> {
-    filter.predict(f, q)
+/// A linear model of `N` states and `M` measurements for the probes: a chain
+/// of integrators over 10 ms (F = I plus dt on the superdiagonal), Q = 1e-4 I,
+/// a random H and R = 0.01 I.
+pub fn linear_model<const N: usize, const M: usize>(
+    noise: &mut Lcg,
+) -> (
+    SMatrix<f32, N, N>,
+    SMatrix<f32, N, N>,
+    SMatrix<f32, M, N>,
+    SMatrix<f32, M, M>,
+) {
+    let f = SMatrix::<f32, N, N>::from_fn(|i, j| {
+        if i == j {
+            1.0
+        } else if j == i + 1 {
+            0.01
+        } else {
+            0.0
+        }
+    });
+    let q = SMatrix::<f32, N, N>::from_diagonal_element(1e-4);
+    let h = SMatrix::<f32, M, N>::from_fn(|_, _| noise.signed_unit());
+    let r = SMatrix::<f32, M, M>::from_diagonal_element(1e-2);
+    (f, q, h, r)
 }
 
-/// Linear Joseph update, n = 9, m = 3.
-#[inline(never)]
-pub fn linear9_update3_joseph(
-    filter: &mut Kalman<f32, 9, Joseph>,
-    z: &SVector<f32, 3>,
-    h: &SMatrix<f32, 3, 9>,
-    r: &SMatrix<f32, 3, 3>,
-) -> Result<Outcome<f32>, FilterError> {
-    filter.update(z, h, r, None)
-}
-
-/// Linear conventional update, n = 9, m = 3.
-#[inline(never)]
-pub fn linear9_update3_conventional(
-    filter: &mut Kalman<f32, 9, Conventional>,
-    z: &SVector<f32, 3>,
-    h: &SMatrix<f32, 3, 9>,
-    r: &SMatrix<f32, 3, 3>,
-) -> Result<Outcome<f32>, FilterError> {
-    filter.update(z, h, r, None)
-}
-
-/// The probe names, in the order the cost probe binary runs them.
-pub const NAMES: [&str; 6] = [
-    "pose_predict",
-    "pose_position_update",
-    "pose_heading_update",
-    "linear9_predict",
-    "linear9_update3_joseph",
-    "linear9_update3_conventional",
-];
+// The linear probes, one set per size in CAIRN_COST_SIZES (build.rs):
+// `linear{N}_predict`, `linear{N}_update{M}_joseph`,
+// `linear{N}_update{M}_conventional`, and `run_linear`, which calls them.
+include!(concat!(env!("OUT_DIR"), "/linear_probes.rs"));

@@ -49,6 +49,12 @@ pub struct CostConfig {
     pub clock_mhz: f64,
     /// Call rates by probe name, Hz; the demo's rates fill the gaps.
     pub rates: Vec<(String, f64)>,
+    /// Apply the demo's rates to the pose probes that have no rate (off
+    /// when the rates come from a spec).
+    pub demo_rates: bool,
+    /// Linear model sizes (n, m) to build probes for; empty means on-target's
+    /// default, n = 9 with m = 3. Ignored with `elf`.
+    pub sizes: Vec<(usize, usize)>,
     /// Longest time QEMU may run.
     pub timeout: Duration,
 }
@@ -60,6 +66,8 @@ impl Default for CostConfig {
             on_target: None,
             clock_mhz: 168.0,
             rates: Vec::new(),
+            demo_rates: true,
+            sizes: Vec::new(),
             timeout: Duration::from_secs(120),
         }
     }
@@ -372,6 +380,78 @@ fn short_name(name: &str) -> String {
     }
 }
 
+/// What a spec asks the estimator to price.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct SpecProbes {
+    /// Linear sizes (n, m) to build probes for.
+    pub sizes: Vec<(usize, usize)>,
+    /// Call rates by probe name, Hz.
+    pub rates: Vec<(String, f64)>,
+    /// What the probes cannot match (form, precision, channel kinds).
+    pub notes: Vec<String>,
+}
+
+/// The probes and rates a spec asks for: the sizes of a linear model's
+/// channels, or the pose probes; rates from the step rate (predict) and each
+/// channel's rate (its update, in the form the spec flashes). Notes say what
+/// the probes cannot match.
+pub fn plan_probes(plan: &crate::spec::Plan) -> SpecProbes {
+    use crate::spec::{ChannelKind, ModelPlan};
+    let n = plan.states.len();
+    let mut sizes = Vec::new();
+    let mut rates: Vec<(String, f64)> = Vec::new();
+    let mut notes = Vec::new();
+    let mut add = |name: String, hz: f64| match rates.iter_mut().find(|r| r.0 == name) {
+        Some(r) => r.1 += hz,
+        None => rates.push((name, hz)),
+    };
+    let form = match plan.flash.form.as_str() {
+        f @ ("joseph" | "conventional") => f.to_string(),
+        other => {
+            notes.push(format!(
+                "the spec flashes the {other} form; the probes price the Joseph form instead"
+            ));
+            "joseph".to_string()
+        }
+    };
+    if plan.flash.precision == crate::spec::Precision::F64 {
+        notes.push(
+            "the spec flashes f64; the probes run f32 (f64 on a Cortex-M4F is software \
+             arithmetic, about 75x the f32 cost)"
+                .to_string(),
+        );
+    }
+    match &plan.model {
+        ModelPlan::Pose { .. } => {
+            add("pose_predict".into(), plan.step_hz);
+            for c in &plan.channels {
+                match c.kind {
+                    ChannelKind::Position => add("pose_position_update".into(), c.rate_hz),
+                    ChannelKind::Heading => add("pose_heading_update".into(), c.rate_hz),
+                    ChannelKind::Linear(_) => notes.push(format!(
+                        "channel {}: no probe for a linear channel on the pose model",
+                        c.name
+                    )),
+                }
+            }
+        }
+        _ => {
+            add(format!("linear{n}_predict"), plan.step_hz);
+            for c in &plan.channels {
+                if !sizes.contains(&(n, c.m)) {
+                    sizes.push((n, c.m));
+                }
+                add(format!("linear{n}_update{}_{form}", c.m), c.rate_hz);
+            }
+        }
+    }
+    SpecProbes {
+        sizes,
+        rates,
+        notes,
+    }
+}
+
 /// Finds a program, trying each name in turn.
 fn find_tool(names: &[&'static str]) -> Option<&'static str> {
     names.iter().copied().find(|n| {
@@ -420,19 +500,44 @@ fn on_target_dir(config: &CostConfig) -> Result<PathBuf, CostError> {
         })
 }
 
-/// Builds on-target's `cost_probe` in release and returns its ELF. The
-/// workspace's own `.cargo/config.toml` sets the target, the linker script
-/// and `-C target-cpu=cortex-m4`; variables that would override it are
-/// removed.
-pub fn build_probe(dir: &Path) -> Result<PathBuf, CostError> {
-    let out = Command::new("cargo")
+/// Largest state size on-target's build script generates probes for.
+pub const MAX_PROBE_N: usize = 24;
+
+/// Builds on-target's `cost_probe` in release, with linear probes for
+/// `sizes` (n, m), and returns its ELF. The workspace's own
+/// `.cargo/config.toml` sets the target, the linker script and
+/// `-C target-cpu=cortex-m4`; variables that would override it are removed.
+///
+/// # Errors
+/// [`CostError::Config`] for a size outside 1 <= m <= n <= [`MAX_PROBE_N`];
+/// [`CostError::Build`] when cargo fails.
+pub fn build_probe(dir: &Path, sizes: &[(usize, usize)]) -> Result<PathBuf, CostError> {
+    if let Some(&(n, m)) = sizes
+        .iter()
+        .find(|&&(n, m)| !(1..=MAX_PROBE_N).contains(&n) || !(1..=n).contains(&m))
+    {
+        return Err(CostError::Config(format!(
+            "size {n}x{m}: need 1 <= m <= n <= {MAX_PROBE_N}"
+        )));
+    }
+    let list: Vec<String> = sizes.iter().map(|(n, m)| format!("{n}x{m}")).collect();
+    let mut cargo = Command::new("cargo");
+    cargo
         .args(["build", "--release", "--locked", "--bin", "cost_probe"])
         .current_dir(dir)
         .env_remove("RUSTFLAGS")
         .env_remove("CARGO_ENCODED_RUSTFLAGS")
         .env_remove("CARGO_TARGET_DIR")
         .env_remove("CARGO_BUILD_TARGET")
-        .env_remove("CARGO_BUILD_RUSTFLAGS")
+        .env_remove("CARGO_BUILD_RUSTFLAGS");
+    // Unset means on-target's default sizes; leaving it unset then keeps the
+    // build shared with tests/target.rs (a changed value rebuilds).
+    if list.is_empty() {
+        cargo.env_remove("CAIRN_COST_SIZES");
+    } else {
+        cargo.env("CAIRN_COST_SIZES", list.join(","));
+    }
+    let out = cargo
         .output()
         .map_err(|e| CostError::Build(format!("cannot run cargo: {e}")))?;
     if !out.status.success() {
@@ -504,16 +609,37 @@ fn trace_qemu(elf: &Path, timeout: Duration) -> Result<(String, String), CostErr
     Ok((text?, stdout))
 }
 
-/// The probes in the ELF: (name, entry address), in address order.
+/// The probes in the ELF: (name, entry address), the pose probes first,
+/// then the linear ones by state size, predict before the updates, then any
+/// others.
 pub fn probes(functions: &[Function]) -> Vec<(String, u32)> {
-    functions
+    let mut found: Vec<(String, u32)> = functions
         .iter()
         .filter_map(|f| {
             f.name
                 .strip_prefix(PROBE_PATH)
                 .map(|n| (n.to_string(), f.addr))
         })
-        .collect()
+        .collect();
+    let key = |name: &str| {
+        let pose = [
+            "pose_predict",
+            "pose_position_update",
+            "pose_heading_update",
+        ];
+        if let Some(i) = pose.iter().position(|p| *p == name) {
+            return (0, i, String::new());
+        }
+        let digits: String = name
+            .trim_start_matches(|c: char| !c.is_ascii_digit())
+            .chars()
+            .take_while(char::is_ascii_digit)
+            .collect();
+        let n = digits.parse().unwrap_or(usize::MAX);
+        (1, n, name.replace("_predict", "_0predict"))
+    };
+    found.sort_by_key(|(name, _)| key(name));
+    found
 }
 
 /// Makes the estimate: builds (or takes) the probe ELF, disassembles and
@@ -554,7 +680,7 @@ pub fn estimate(config: &CostConfig) -> Result<CostReport, CostError> {
             }
             e.clone()
         }
-        None => build_probe(&on_target_dir(config)?)?,
+        None => build_probe(&on_target_dir(config)?, &config.sizes)?,
     };
     let syms = run_tool(
         objdump,
@@ -594,7 +720,12 @@ pub fn estimate(config: &CostConfig) -> Result<CostReport, CostError> {
             .iter()
             .find(|(n, _)| n == name)
             .map(|r| r.1)
-            .or_else(|| DEMO_RATES.iter().find(|(n, _)| *n == name).map(|r| r.1))
+            .or_else(|| {
+                DEMO_RATES
+                    .iter()
+                    .find(|(n, _)| config.demo_rates && *n == name)
+                    .map(|r| r.1)
+            })
     };
     let operations: Vec<OperationCost> = probes
         .iter()
@@ -782,6 +913,71 @@ mod tests {
             report.warnings
         );
         assert!(report.cpu_share() > 0.0);
+    }
+
+    #[test]
+    fn probes_come_in_reading_order() {
+        let f = |name: &str, addr| Function {
+            addr,
+            size: 4,
+            name: format!("{PROBE_PATH}{name}"),
+        };
+        let functions = vec![
+            f("linear15_update3_joseph", 0),
+            f("linear2_predict", 4),
+            f("pose_heading_update", 8),
+            f("linear15_predict", 12),
+            f("pose_predict", 16),
+            f("main_loop", 20),
+        ];
+        let names: Vec<String> = probes(&functions).into_iter().map(|p| p.0).collect();
+        assert_eq!(
+            names,
+            [
+                "pose_predict",
+                "pose_heading_update",
+                "linear2_predict",
+                "linear15_predict",
+                "linear15_update3_joseph",
+                "main_loop"
+            ]
+        );
+    }
+
+    #[test]
+    fn spec_sizes_and_rates() {
+        // The demo (pose model): the predict at the step rate, each fix at
+        // its channel's rate, no linear sizes.
+        let demo = crate::demo::plan().expect("demo spec");
+        let wanted = plan_probes(&demo);
+        assert!(wanted.sizes.is_empty());
+        let rate = |w: &SpecProbes, name: &str| w.rates.iter().find(|r| r.0 == name).map(|r| r.1);
+        assert_eq!(rate(&wanted, "pose_predict"), Some(demo.step_hz));
+        assert!(rate(&wanted, "pose_position_update").is_some());
+        // A linear spec: n = 2 states, one scalar channel at 50 Hz.
+        let path = Path::new(env!("CARGO_MANIFEST_DIR")).join("specs/wna-tracker.toml");
+        let plan = crate::spec::load(&path).expect("wna-tracker spec");
+        let wanted = plan_probes(&plan);
+        assert_eq!(wanted.sizes, vec![(2, 1)]);
+        assert_eq!(rate(&wanted, "linear2_predict"), Some(50.0));
+        assert_eq!(rate(&wanted, "linear2_update1_joseph"), Some(50.0));
+    }
+
+    #[test]
+    fn refuses_bad_sizes_before_building() {
+        let dir = Path::new("/nonexistent");
+        assert!(matches!(
+            build_probe(dir, &[(3, 4)]),
+            Err(CostError::Config(_))
+        ));
+        assert!(matches!(
+            build_probe(dir, &[(0, 0)]),
+            Err(CostError::Config(_))
+        ));
+        assert!(matches!(
+            build_probe(dir, &[(25, 1)]),
+            Err(CostError::Config(_))
+        ));
     }
 
     #[test]
