@@ -149,6 +149,10 @@ pub struct OperationCost {
     pub rate_hz: Option<f64>,
     /// The functions taking the most M4 cycles: (name, share of the call).
     pub hot: Vec<(String, f64)>,
+    /// Functions called under the probe, with calls per probe call, most
+    /// called first (the probe itself and the soft-float routines, which
+    /// the f64 counts cover, left out).
+    pub callees: Vec<(String, f64)>,
     /// Share of the M4 cycles spent inside software f64 routines.
     pub soft_share: f64,
     /// Share of the M4 cycles by instruction group ([`estimate::GROUPS`]).
@@ -179,6 +183,19 @@ impl OperationCost {
             bound: t.per_call(t.fp.bound()),
             rate_hz,
             hot,
+            callees: {
+                let mut c: Vec<(String, f64)> = t
+                    .entries
+                    .iter()
+                    .filter(|(n, _)| {
+                        !n.ends_with(&format!("::{name}")) && !estimate::is_soft_float(n)
+                    })
+                    .map(|(n, &k)| (n.clone(), t.per_call(k)))
+                    .collect();
+                c.sort_by(|a, b| b.1.total_cmp(&a.1).then_with(|| a.0.cmp(&b.0)));
+                c.truncate(6);
+                c
+            },
             soft_share: t
                 .by_function
                 .iter()
@@ -322,6 +339,14 @@ impl CostReport {
                 .map(|(g, share)| format!("{g} {:.0}%", 100.0 * share))
                 .collect();
             let _ = writeln!(s, "  {:<28} by kind: {}", "", mix.join(", "));
+            if !o.callees.is_empty() {
+                let calls: Vec<String> = o
+                    .callees
+                    .iter()
+                    .map(|(n, k)| format!("{} x{k:.0}", short_name(n)))
+                    .collect();
+                let _ = writeln!(s, "  {:<28} calls: {}", "", calls.join(", "));
+            }
         }
         for w in &self.warnings {
             let _ = writeln!(s, "\nwarning: {w}");
@@ -860,6 +885,7 @@ mod tests {
             bound: 840.0,
             rate_hz: Some(200.0),
             hot: Vec::new(),
+            callees: Vec::new(),
             soft_share: 0.0,
             mix: [0.0; 6],
         };
