@@ -409,3 +409,58 @@ fn the_trials_subcommand_gates_on_consistency() {
         assert!(!out.stderr.is_empty());
     }
 }
+
+#[test]
+fn the_ill_conditioned_update_fails_in_f32_but_not_in_u_d() {
+    // Dyer & McReynolds 1969 (reproduced by Grewal & Andrews): at d = 1e-4,
+    // near the square root of f32's epsilon, the conventional and Joseph f32
+    // updates lose the answer while the factored U-D form survives; f64 is
+    // fine (REFERENCES.md).
+    let plan = cairn_host_check::spec::load(std::path::Path::new(concat!(
+        env!("CARGO_MANIFEST_DIR"),
+        "/specs/dyer-mcreynolds-1e-4.toml"
+    )))
+    .unwrap();
+    let report = consistency::run(&plan, &options(30, 1, 1.0)).unwrap();
+    for v in &report.variants {
+        let broken = v.variant.precision == Precision::F32 && v.variant.form != Form::Ud;
+        if broken {
+            assert_ne!(v.verdict, Verdict::Consistent, "{}", report.text());
+        } else {
+            assert_eq!(v.verdict, Verdict::Consistent, "{}", report.text());
+        }
+    }
+}
+
+#[test]
+fn one_step_far_outside_is_judged_even_alone() {
+    // With a single step the binomial guard alone would excuse any miss; a
+    // point beyond the 99.9% interval is improbable on its own
+    // (Bar-Shalom, Li & Kirubarajan 2001 intervals; binomial tail).
+    // The start is known almost exactly, so the first step's error is the
+    // process noise alone, which the mistuned filter believes 100 times smaller.
+    let mut plan = cart(1, 3);
+    plan.p0 = DMatrix::from_row_slice(2, 2, &[1e-8, 0.0, 0.0, 1e-8]);
+    let report = consistency::run(
+        &plan,
+        &Options {
+            variants: two(),
+            ..options(50, 1, 1e-2)
+        },
+    )
+    .unwrap();
+    let tuned = consistency::run(
+        &plan,
+        &Options {
+            variants: two(),
+            ..options(50, 1, 1.0)
+        },
+    )
+    .unwrap();
+    for (bad, good) in report.variants.iter().zip(&tuned.variants) {
+        assert_eq!(good.verdict, Verdict::Consistent, "{}", tuned.text());
+        let nees = bad.nees.as_ref().unwrap();
+        assert_eq!((nees.points, nees.far_outside), (1, 1), "{}", report.text());
+        assert_eq!(bad.verdict, Verdict::Optimistic, "{}", report.text());
+    }
+}

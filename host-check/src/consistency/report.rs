@@ -15,10 +15,16 @@ use super::lanes::{Trace, Variant};
 pub const MIN_INSIDE: f64 = 0.90;
 
 /// A statistic below [`MIN_INSIDE`] is still called consistent when a
-/// consistent filter would leave that many points outside with at least
-/// this chance (binomial tail): few points (a slow channel, a short run)
-/// prove nothing.
+/// consistent filter would leave that many points outside its interval,
+/// and that many outside the far interval, each with at least this chance
+/// (binomial tails): a few points (a slow channel, a short run) slightly
+/// outside prove nothing.
 pub const SIGNIFICANCE: f64 = 0.01;
+
+/// The far interval leaves out this fraction of a consistent filter's
+/// points. Few points far outside it are already improbable, so a single
+/// step far off is judged even when there are few steps.
+pub const FAR_RATE: f64 = 1e-3;
 
 /// Most points kept in a report's decimated series.
 const SERIES_POINTS: usize = 400;
@@ -99,6 +105,8 @@ pub struct Summary {
     /// The chance that a consistent filter leaves at least as many points
     /// outside (binomial tail, treating points as independent).
     pub outside_chance: f64,
+    /// Points outside the far interval (confidence 1 - [`FAR_RATE`]).
+    pub far_outside: usize,
     /// The verdict on this statistic alone.
     pub verdict: Verdict,
     /// Decimated series (point index, average) for plots.
@@ -116,7 +124,11 @@ fn summarize(
         return Ok(None);
     }
     let interval = chi2::average_interval(dof, runs as u64, confidence)?;
-    let (mut inside, mut above, mut below) = (0usize, 0usize, 0usize);
+    // Intervals by the number of runs behind a point (fewer after failures):
+    // the `confidence` one and the far one.
+    let mut bands: std::collections::HashMap<u32, (Interval, Interval)> =
+        std::collections::HashMap::new();
+    let (mut inside, mut above, mut below, mut far) = (0usize, 0usize, 0usize, 0usize);
     let mut total = 0.0;
     let mut samples = 0u64;
     let mut series = Vec::new();
@@ -128,16 +140,25 @@ fn summarize(
         } else {
             sums.sum[i] / f64::from(c)
         };
-        // A point with fewer runs (after failures) gets its own interval.
-        let here = if c as usize == runs || c == 0 {
-            interval
-        } else {
-            chi2::average_interval(dof, u64::from(c), confidence)?
+        let key = if c == 0 { runs as u32 } else { c };
+        let (here, wide) = match bands.get(&key) {
+            Some(b) => *b,
+            None => {
+                let b = (
+                    chi2::average_interval(dof, u64::from(key), confidence)?,
+                    chi2::average_interval(dof, u64::from(key), 1.0 - FAR_RATE)?,
+                );
+                bands.insert(key, b);
+                b
+            }
         };
         match here.place(avg) {
             Place::Inside => inside += 1,
             Place::Above => above += 1,
             Place::Below => below += 1,
+        }
+        if wide.place(avg) != Place::Inside {
+            far += 1;
         }
         if c > 0 {
             total += sums.sum[i];
@@ -161,7 +182,11 @@ fn summarize(
         (points - inside_count) as u64,
         1.0 - confidence,
     )?;
-    let verdict = if inside >= MIN_INSIDE || outside_chance >= SIGNIFICANCE {
+    let far_chance = chi2::outside_chance(points as u64, far as u64, FAR_RATE)?;
+    let verdict = if samples == 0 {
+        Verdict::Failed
+    } else if inside >= MIN_INSIDE || (outside_chance >= SIGNIFICANCE && far_chance >= SIGNIFICANCE)
+    {
         Verdict::Consistent
     } else if above >= below {
         Verdict::Optimistic
@@ -178,6 +203,7 @@ fn summarize(
         above,
         below,
         outside_chance,
+        far_outside: far,
         verdict,
         series,
     }))
@@ -364,9 +390,11 @@ impl Report {
             out,
             "(Bar-Shalom, Li & Kirubarajan 2001: runs x average ~ chi2(runs x dof)); a statistic is\n\
              consistent when {:.0}% of its points fall inside, or when a consistent filter would leave\n\
-             as many outside with a {:.0}% chance or more. The time average's interval treats\n\
-             samples as independent: exact for NIS, only indicative for NEES (correlated in time)\n",
+             as many outside, and as many outside the {}% interval, with a {:.0}% chance or more.\n\
+             The time average's interval treats samples as independent: exact for NIS, only\n\
+             indicative for NEES (correlated in time)\n",
             100.0 * MIN_INSIDE,
+            100.0 * (1.0 - FAR_RATE),
             100.0 * SIGNIFICANCE
         );
         let width = self
