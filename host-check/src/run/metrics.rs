@@ -129,15 +129,9 @@ impl Tracker {
 
     /// Records the smallest eigenvalue of P at this step.
     pub fn eigen(&mut self, step: u64, p: &DMatrix<f64>) {
-        if !p.iter().all(|v| v.is_finite()) {
+        let Some((min, _)) = eigen_range(p) else {
             return;
-        }
-        let min = p
-            .clone()
-            .symmetric_eigenvalues()
-            .iter()
-            .copied()
-            .fold(f64::INFINITY, f64::min);
+        };
         if min < self.min_eigenvalue {
             self.min_eigenvalue = min;
             self.min_eigenvalue_step = step;
@@ -158,6 +152,23 @@ impl Tracker {
     pub fn stopped(&self) -> bool {
         self.failure.is_some()
     }
+}
+
+/// The smallest and largest eigenvalue of a symmetric matrix, or `None`
+/// when it holds non-finite entries or the iteration does not converge
+/// (bounded: never hangs on extreme values).
+pub fn eigen_range(m: &DMatrix<f64>) -> Option<(f64, f64)> {
+    if !m.iter().all(|v| v.is_finite()) {
+        return None;
+    }
+    let e = nalgebra::linalg::SymmetricEigen::try_new(m.clone(), f64::EPSILON, 10_000)?;
+    let lo = e.eigenvalues.iter().copied().fold(f64::INFINITY, f64::min);
+    let hi = e
+        .eigenvalues
+        .iter()
+        .copied()
+        .fold(f64::NEG_INFINITY, f64::max);
+    Some((lo, hi))
 }
 
 /// ||a - b||_F / ||b||_F (or the absolute difference when b is zero).

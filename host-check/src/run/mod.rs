@@ -340,11 +340,10 @@ pub fn run(plan: &Plan, opts: RunOptions) -> Result<RunResult, RunError> {
             // The reference.
             let prior = reference.covariance();
             let s = h * &prior * h.transpose() + &ch.r;
-            let eig = s.symmetric_eigenvalues();
-            let (lo, hi) = eig.iter().fold((f64::INFINITY, 0.0_f64), |(lo, hi), &e| {
-                (lo.min(e), hi.max(e.abs()))
-            });
-            let cond = if lo > 0.0 { hi / lo } else { f64::INFINITY };
+            let cond = match metrics::eigen_range(&s) {
+                Some((lo, hi)) if lo > 0.0 => hi / lo,
+                _ => f64::INFINITY,
+            };
             max_cond = max_cond.max(cond);
             let xr = reference.state();
             let mut nu = DVector::from_column_slice(&z) - h * &xr;
@@ -402,13 +401,9 @@ pub fn run(plan: &Plan, opts: RunOptions) -> Result<RunResult, RunError> {
         let pr_norm = pr.norm();
         let eig_now = k % eig_every == 0 || k == steps || steps <= 5_000;
         if eig_now {
-            let m = pr
-                .clone()
-                .symmetric_eigenvalues()
-                .iter()
-                .copied()
-                .fold(f64::INFINITY, f64::min);
-            ref_min_eig = ref_min_eig.min(m);
+            if let Some((m, _)) = metrics::eigen_range(&pr) {
+                ref_min_eig = ref_min_eig.min(m);
+            }
         }
         let ext_p = match external.as_mut() {
             Some(e) => e.at(k).map_err(RunError)?,
@@ -589,7 +584,13 @@ fn steady_setup(plan: &Plan) -> (Option<Lifted>, Option<String>) {
     }
     let ratio = plan.step_hz / plan.channels[0].rate_hz;
     let every = ratio.round();
-    if (ratio - every).abs() > 1e-9 * ratio || every < 1.0 {
+    if !(1.0..=1e5).contains(&every) {
+        return (
+            None,
+            Some("no steady state: more than 100 000 steps between updates".into()),
+        );
+    }
+    if (ratio - every).abs() > 1e-9 * ratio {
         return (
             None,
             Some("no steady state: the update rate does not divide the step rate".into()),

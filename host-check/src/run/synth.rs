@@ -61,7 +61,21 @@ impl Noise {
 /// A square-root factor L with L L' = C for a symmetric positive
 /// semidefinite C (via the eigen-decomposition, so singular C is fine).
 pub fn sqrt_factor(c: &DMatrix<f64>) -> DMatrix<f64> {
-    let e = c.clone().symmetric_eigen();
+    let Some(e) = c
+        .iter()
+        .all(|v| v.is_finite())
+        .then(|| nalgebra::linalg::SymmetricEigen::try_new(c.clone(), f64::EPSILON, 10_000))
+        .flatten()
+    else {
+        // Extreme values: fall back to the diagonal's square roots.
+        return DMatrix::from_fn(c.nrows(), c.ncols(), |i, j| {
+            if i == j {
+                c[(i, i)].max(0.0).sqrt()
+            } else {
+                0.0
+            }
+        });
+    };
     let mut l = e.eigenvectors.clone();
     for (j, &v) in e.eigenvalues.iter().enumerate() {
         let s = v.max(0.0).sqrt();

@@ -64,6 +64,13 @@ pub(super) fn plan(loc: &Locator<'_>, raw: RawSpec, base: Option<&Path>) -> R<Pl
     // Step rate and horizon.
     let model = raw.model.get_ref();
     let step_hz = positive(loc, &model.step_hz, "model.step_hz")?;
+    if step_hz > 1e6 {
+        return Err(loc.error(
+            model.step_hz.span(),
+            "model.step_hz",
+            format!("{step_hz} Hz: the verifier supports step rates up to 1 MHz"),
+        ));
+    }
     let dt = 1.0 / step_hz;
     let steps = horizon(loc, &raw, step_hz)?;
 
@@ -922,17 +929,16 @@ fn check_covariance(
             }
         }
     }
-    let eig = p.clone().symmetric_eigenvalues();
-    let min = eig.iter().copied().fold(f64::INFINITY, f64::min);
+    let min = crate::run::metrics::eigen_range(p).map_or(f64::NAN, |(lo, _)| lo);
     if strict {
-        if p.clone().cholesky().is_none() || min <= 0.0 {
+        if p.clone().cholesky().is_none() || min.is_nan() || min <= 0.0 {
             return Err(loc.error(
                 span,
                 field,
                 format!("not positive definite (smallest eigenvalue {min:.3e})"),
             ));
         }
-    } else if min < -1e-12 * scale.max(f64::MIN_POSITIVE) {
+    } else if min.is_nan() || min < -1e-12 * scale.max(f64::MIN_POSITIVE) {
         return Err(loc.error(
             span,
             field,
