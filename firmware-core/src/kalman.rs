@@ -156,14 +156,13 @@ impl<T: Scalar, const N: usize, F: CovarianceForm> Kalman<T, N, F> {
         if !(dt.finite() && dt > T::zero()) {
             return Err(FilterError::InvalidTimeStep);
         }
-        let f = model.jacobian(&self.x, u, dt);
-        check::finite(&f, Operand::Transition)?;
-        let q = model.noise(&self.x, u, dt);
-        check::noise(&q, Operand::ProcessNoise, false)?;
-        let mut x = model.transition(&self.x, u, dt);
+        let lin = model.linearize(&self.x, u, dt);
+        check::finite(&lin.jacobian, Operand::Transition)?;
+        check::noise(&lin.noise, Operand::ProcessNoise, false)?;
+        let mut x = lin.next;
         check::finite(&x, Operand::Control)?;
         model.normalize(&mut x);
-        let p = propagate(&f, &self.p, &q);
+        let p = propagate(&lin.jacobian, &self.p, &lin.noise);
         self.commit(x, p)
     }
 

@@ -35,8 +35,13 @@
 //! ```
 //!
 //! ## Features
-//! - `fast-trig`: micromath's polynomial sin/cos for `f32` in the pose model
-//!   (faster on a Cortex-M4, about 1e-3 accurate, see the verifier's report).
+//! - Default `f32` trigonometry is the crate's own single-precision sin/cos
+//!   (Cody-Waite reduction and the Cephes minimax polynomials, all in f32):
+//!   about 2 ulp, and no software f64 on a Cortex-M4F.
+//! - `libm-trig`: libm's `sinf`/`cosf` instead (computed in f64 internally:
+//!   a software routine on an M4).
+//! - `fast-trig`: micromath's polynomial sin/cos for `f32` (cheapest, about
+//!   1e-3 accurate; the verifier's report shows what that costs).
 //! - `defmt`: `defmt::Format` for the error, outcome and health types.
 //!
 //! ## MSRV
@@ -61,6 +66,7 @@ mod model;
 pub mod pose;
 mod scalar;
 mod steady;
+mod trig;
 mod ud;
 
 pub use error::{FilterError, Operand, Outcome};
@@ -69,7 +75,7 @@ pub use form::{Conventional, CovarianceForm, Joseph};
 pub use health::{HealthMonitor, HealthReport, NisBand, wilson_hilferty_bounds};
 pub use kalman::Kalman;
 pub use ldl::Ldl;
-pub use model::{MeasurementModel, ProcessModel};
+pub use model::{Linearized, MeasurementModel, ProcessModel};
 pub use scalar::{Scalar, wrap_angle};
 pub use steady::SteadyGain;
 pub use ud::UdKalman;

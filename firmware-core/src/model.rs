@@ -5,6 +5,20 @@ use nalgebra::{SMatrix, SVector};
 
 use crate::scalar::Scalar;
 
+/// Everything one extended predict needs from a process model at the
+/// prior state.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Linearized<T: Scalar, const N: usize> {
+    /// The propagated state f(x, u, dt).
+    pub next: SVector<T, N>,
+    /// The Jacobian of f with respect to x.
+    pub jacobian: SMatrix<T, N, N>,
+    /// The discrete process noise Q.
+    pub noise: SMatrix<T, N, N>,
+    /// Q as independent sources G diag(q) G', when the model knows them.
+    pub sources: Option<(SMatrix<T, N, N>, SVector<T, N>)>,
+}
+
 /// A nonlinear process model x' = f(x, u, dt) with its Jacobian and its
 /// discrete process noise.
 pub trait ProcessModel<T: Scalar, const N: usize> {
@@ -31,6 +45,18 @@ pub trait ProcessModel<T: Scalar, const N: usize> {
         _dt: T,
     ) -> Option<(SMatrix<T, N, N>, SVector<T, N>)> {
         None
+    }
+
+    /// All of the above in one call. The filters call this; override it
+    /// when the pieces share work (the pose model takes one sine and cosine
+    /// per step instead of three).
+    fn linearize(&self, x: &SVector<T, N>, u: &Self::Input, dt: T) -> Linearized<T, N> {
+        Linearized {
+            next: self.transition(x, u, dt),
+            jacobian: self.jacobian(x, u, dt),
+            noise: self.noise(x, u, dt),
+            sources: self.noise_input(x, u, dt),
+        }
     }
 
     /// Brings a state back to its canonical range (for example, wraps a

@@ -3,7 +3,7 @@
 
 use nalgebra::{Matrix2, SMatrix, SVector, Vector2, Vector3};
 
-use crate::model::{MeasurementModel, ProcessModel};
+use crate::model::{Linearized, MeasurementModel, ProcessModel};
 use crate::scalar::{Scalar, wrap_angle};
 
 /// One odometry sample: forward speed (m/s) and yaw rate (rad/s), averaged
@@ -62,27 +62,8 @@ impl<T: Scalar> ProcessModel<T, 3> for PlanarOdometry<T> {
 
     fn noise(&self, x: &Vector3<T>, u: &Odometry<T>, dt: T) -> SMatrix<T, 3, 3> {
         let (s, c) = Self::midpoint(x, u, dt);
-        let half = T::of(0.5);
-        // Input Jacobian L = d f / d (v, w).
-        let l = SMatrix::<T, 3, 2>::new(
-            dt * c,
-            -u.speed * dt * dt * half * s,
-            dt * s,
-            u.speed * dt * dt * half * c,
-            T::zero(),
-            dt,
-        );
-        let mut q = SMatrix::<T, 3, 3>::zeros();
-        for j in 0..3 {
-            for i in 0..=j {
-                let v = l[(i, 0)] * l[(j, 0)] * self.speed_var
-                    + l[(i, 1)] * l[(j, 1)] * self.yaw_rate_var;
-                q[(i, j)] = v;
-                q[(j, i)] = v;
-            }
-        }
-        q[(2, 2)] += self.heading_drift_var;
-        q
+        let (g, q) = self.sources_at(s, c, u, dt);
+        noise_from(&g, &q)
     }
 
     fn noise_input(
@@ -92,8 +73,36 @@ impl<T: Scalar> ProcessModel<T, 3> for PlanarOdometry<T> {
         dt: T,
     ) -> Option<(SMatrix<T, 3, 3>, Vector3<T>)> {
         let (s, c) = Self::midpoint(x, u, dt);
+        Some(self.sources_at(s, c, u, dt))
+    }
+
+    fn linearize(&self, x: &Vector3<T>, u: &Odometry<T>, dt: T) -> Linearized<T, 3> {
+        // One sine and cosine of the midpoint heading serve all four parts.
+        let (s, c) = Self::midpoint(x, u, dt);
+        let (g, q) = self.sources_at(s, c, u, dt);
+        let d = u.speed * dt;
+        let mut f = SMatrix::<T, 3, 3>::identity();
+        f[(0, 2)] = -d * s;
+        f[(1, 2)] = d * c;
+        Linearized {
+            next: Vector3::new(x[0] + d * c, x[1] + d * s, x[2] + u.yaw_rate * dt),
+            jacobian: f,
+            noise: noise_from(&g, &q),
+            sources: Some((g, q)),
+        }
+    }
+
+    fn normalize(&self, x: &mut Vector3<T>) {
+        x[2] = wrap_angle(x[2]);
+    }
+}
+
+impl<T: Scalar> PlanarOdometry<T> {
+    /// Noise sources at the midpoint heading (sine `s`, cosine `c`): the
+    /// speed reading, the yaw-rate reading and heading drift, as the columns
+    /// of the input Jacobian G with their variances.
+    fn sources_at(&self, s: T, c: T, u: &Odometry<T>, dt: T) -> (SMatrix<T, 3, 3>, Vector3<T>) {
         let half = T::of(0.5);
-        // Sources: speed reading, yaw-rate reading, heading drift.
         let g = SMatrix::<T, 3, 3>::new(
             dt * c,
             -u.speed * dt * dt * half * s,
@@ -105,15 +114,25 @@ impl<T: Scalar> ProcessModel<T, 3> for PlanarOdometry<T> {
             dt,
             T::one(),
         );
-        Some((
-            g,
-            Vector3::new(self.speed_var, self.yaw_rate_var, self.heading_drift_var),
-        ))
+        let q = Vector3::new(self.speed_var, self.yaw_rate_var, self.heading_drift_var);
+        (g, q)
     }
+}
 
-    fn normalize(&self, x: &mut Vector3<T>) {
-        x[2] = wrap_angle(x[2]);
+/// Q = G diag(q) G', upper triangle computed and mirrored.
+fn noise_from<T: Scalar>(g: &SMatrix<T, 3, 3>, q: &Vector3<T>) -> SMatrix<T, 3, 3> {
+    let mut out = SMatrix::<T, 3, 3>::zeros();
+    for j in 0..3 {
+        for i in 0..=j {
+            let mut v = T::zero();
+            for k in 0..3 {
+                v += g[(i, k)] * g[(j, k)] * q[k];
+            }
+            out[(i, j)] = v;
+            out[(j, i)] = v;
+        }
     }
+    out
 }
 
 /// A position fix (x, y) in metres, with noise covariance `r` (m^2).

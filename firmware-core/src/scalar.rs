@@ -5,10 +5,12 @@ use nalgebra::RealField;
 
 /// A floating-point scalar the filter can run in.
 ///
-/// Implemented for `f32` and `f64`. Trigonometry goes through the `libm` crate
-/// (or micromath for `f32` with the `fast-trig` feature), never through the
+/// Implemented for `f32` and `f64`. Trigonometry never goes through the
 /// platform's maths library, so a host run computes the same bits as the
-/// Cortex-M target.
+/// Cortex-M target: `f32` uses the crate's own single-precision kernel (all
+/// f32 arithmetic, hardware on a Cortex-M4F), or libm's `sinf`/`cosf` with
+/// the `libm-trig` feature (which compute in f64: software on an M4), or
+/// micromath's approximations with `fast-trig`; `f64` uses libm.
 pub trait Scalar: RealField + Copy {
     /// Machine epsilon (unit roundoff times two) of the type.
     const EPSILON: Self;
@@ -39,9 +41,13 @@ impl Scalar for f32 {
             use micromath::F32Ext;
             (F32Ext::sin(self), F32Ext::cos(self))
         }
-        #[cfg(not(feature = "fast-trig"))]
+        #[cfg(all(feature = "libm-trig", not(feature = "fast-trig")))]
         {
             (libm::sinf(self), libm::cosf(self))
+        }
+        #[cfg(not(any(feature = "fast-trig", feature = "libm-trig")))]
+        {
+            crate::trig::sin_cos_f32(self)
         }
     }
     #[inline]

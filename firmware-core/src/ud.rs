@@ -179,9 +179,10 @@ impl<T: Scalar, const N: usize> UdKalman<T, N> {
         if !(dt.finite() && dt > T::zero()) {
             return Err(FilterError::InvalidTimeStep);
         }
-        let f = model.jacobian(&self.x, u, dt);
+        let lin = model.linearize(&self.x, u, dt);
+        let f = lin.jacobian;
         check::finite(&f, Operand::Transition)?;
-        let ud = match model.noise_input(&self.x, u, dt) {
+        let ud = match lin.sources {
             Some((g, q)) => {
                 check::finite(&g, Operand::ProcessNoise)?;
                 check::finite(&q, Operand::ProcessNoise)?;
@@ -194,12 +195,11 @@ impl<T: Scalar, const N: usize> UdKalman<T, N> {
                 self.gram_schmidt(&f, &g, &q)?
             }
             None => {
-                let q = model.noise(&self.x, u, dt);
-                check::noise(&q, Operand::ProcessNoise, false)?;
-                self.time_update(&f, &q)?
+                check::noise(&lin.noise, Operand::ProcessNoise, false)?;
+                self.time_update(&f, &lin.noise)?
             }
         };
-        let mut x = model.transition(&self.x, u, dt);
+        let mut x = lin.next;
         check::finite(&x, Operand::Control)?;
         model.normalize(&mut x);
         self.commit(x, ud)
