@@ -18,6 +18,8 @@ const REDUCTION_LIMIT: f32 = 8192.0;
 /// 2^-23 absolute elsewhere for |x| < 8192 (checked against f64 in the
 /// tests); larger arguments go to libm. Only f32 adds and multiplies are
 /// used, so host and target compute identical bits.
+// The coefficients are written as published; f32 rounds them.
+#[allow(clippy::excessive_precision)]
 #[inline]
 pub fn sin_cos_f32(x: f32) -> (f32, f32) {
     if x.is_nan() || x.abs() >= REDUCTION_LIMIT {
