@@ -320,3 +320,58 @@ pub fn parse(file: &str, text: &str, base: Option<&Path>) -> Result<Plan, SpecEr
     let raw: raw::RawSpec = toml::from_str(text).map_err(|e| loc.from_toml(&e))?;
     validate::plan(&loc, raw, base)
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn channel(rate_hz: f64, dropouts: Vec<(f64, f64)>) -> ChannelPlan {
+        ChannelPlan {
+            name: "c".into(),
+            m: 1,
+            kind: ChannelKind::Heading,
+            r: DMatrix::identity(1, 1),
+            rate_hz,
+            dropouts,
+            gate: None,
+        }
+    }
+
+    #[test]
+    fn a_channel_falls_due_at_its_rate() {
+        // 4 Hz at a 200 Hz step: every 50th step, 4 per second (arithmetic).
+        let c = channel(4.0, vec![]);
+        let due: Vec<u64> = (1..=200).filter(|&k| c.due(k, 200.0)).collect();
+        assert_eq!(due, vec![50, 100, 150, 200]);
+        // A rate that does not divide the step rate: 3 per second at 200 Hz.
+        let c = channel(3.0, vec![]);
+        assert_eq!((1..=200).filter(|&k| c.due(k, 200.0)).count(), 3);
+        // A dropout window [0.3 s, 0.6 s) removes the measurement at 0.5 s.
+        let c = channel(4.0, vec![(0.3, 0.6)]);
+        let due: Vec<u64> = (1..=200).filter(|&k| c.due(k, 200.0)).collect();
+        assert_eq!(due, vec![50, 150, 200]);
+    }
+
+    #[test]
+    fn profiles_repeat_and_hold() {
+        let p = Profile::Segments(vec![
+            Segment {
+                seconds: 2.0,
+                speed: 1.0,
+                yaw_rate: 0.0,
+            },
+            Segment {
+                seconds: 1.0,
+                speed: 0.5,
+                yaw_rate: 0.1,
+            },
+        ]);
+        assert_eq!(p.at(0.5), (1.0, 0.0));
+        assert_eq!(p.at(2.5), (0.5, 0.1));
+        assert_eq!(p.at(3.5), (1.0, 0.0));
+        let r = Profile::Recorded(vec![[0.0, 1.0, 0.0], [1.0, 2.0, 0.2], [2.0, 3.0, 0.0]]);
+        assert_eq!(r.at(0.5), (1.0, 0.0));
+        assert_eq!(r.at(1.5), (2.0, 0.2));
+        assert_eq!(r.at(2.5), (1.0, 0.0));
+    }
+}

@@ -82,7 +82,7 @@ pub(super) fn plan(loc: &Locator<'_>, raw: RawSpec, base: Option<&Path>) -> R<Pl
         raw.start.span(),
         "start",
         n,
-        [(start.p.as_ref(), "start.p"), (None, ""), (None, "")],
+        (start.p.as_ref(), "start.p"),
         start.p_diag.as_ref().map(|v| (v, "start.p_diag", false)),
         start.std.as_ref().map(|v| (v, "start.std", true)),
         true,
@@ -114,7 +114,7 @@ pub(super) fn plan(loc: &Locator<'_>, raw: RawSpec, base: Option<&Path>) -> R<Pl
                 raw.model.span(),
                 "model.q",
                 n,
-                [(model.q.as_ref(), "model.q"), (None, ""), (None, "")],
+                (model.q.as_ref(), "model.q"),
                 model.q_diag.as_ref().map(|v| (v, "model.q_diag", false)),
                 None,
                 false,
@@ -595,7 +595,7 @@ fn channel(
             ch.span(),
             &at("r"),
             m,
-            [(c.r.as_ref(), "r"), (None, ""), (None, "")],
+            (c.r.as_ref(), "r"),
             c.r_diag.as_ref().map(|v| (v, "r_diag", false)),
             None,
             true,
@@ -854,12 +854,11 @@ fn covariance_choice(
     span: Range<usize>,
     field: &str,
     n: usize,
-    full: [(Option<&RawMatrix>, &str); 3],
+    full: (Option<&RawMatrix>, &str),
     diag: Option<(&RawVector, &str, bool)>,
     std: Option<(&RawVector, &str, bool)>,
     strict: bool,
 ) -> R<DMatrix<f64>> {
-    let full = full[0];
     let count =
         usize::from(full.0.is_some()) + usize::from(diag.is_some()) + usize::from(std.is_some());
     if count != 1 {
