@@ -400,10 +400,8 @@ pub fn run(plan: &Plan, opts: RunOptions) -> Result<RunResult, RunError> {
         let pr = reference.covariance();
         let pr_norm = pr.norm();
         let eig_now = k % eig_every == 0 || k == steps || steps <= 5_000;
-        if eig_now {
-            if let Some((m, _)) = metrics::eigen_range(&pr) {
-                ref_min_eig = ref_min_eig.min(m);
-            }
+        if eig_now && let Some((m, _)) = metrics::eigen_range(&pr) {
+            ref_min_eig = ref_min_eig.min(m);
         }
         let ext_p = match external.as_mut() {
             Some(e) => e.at(k).map_err(RunError)?,
