@@ -4,7 +4,7 @@
 use core::marker::PhantomData;
 
 use cairn_core::pose::{HeadingFix, Odometry, PlanarOdometry, PositionFix};
-use cairn_core::{Estimator, FilterError, Ldl, MeasurementModel, ProcessModel, Scalar};
+use cairn_core::{Estimator, FilterError, Ldl, Linearized, MeasurementModel, ProcessModel, Scalar};
 use nalgebra::{DMatrix, DVector, Matrix2, Matrix3, SMatrix, SVector, Vector2, Vector3};
 
 /// What one update did in a lane.
@@ -182,6 +182,27 @@ impl<T: Scalar, const N: usize> ProcessModel<T, N> for PoseProcess<T> {
     }
     fn noise(&self, x: &SVector<T, N>, u: &Odometry<T>, dt: T) -> SMatrix<T, N, N> {
         up_square(&ProcessModel::noise(&self.0, &down(x), u, dt))
+    }
+    fn noise_input(
+        &self,
+        x: &SVector<T, N>,
+        u: &Odometry<T>,
+        dt: T,
+    ) -> Option<(SMatrix<T, N, N>, SVector<T, N>)> {
+        self.0
+            .noise_input(&down(x), u, dt)
+            .map(|(g, q)| (up_square(&g), up(&q)))
+    }
+    fn linearize(&self, x: &SVector<T, N>, u: &Odometry<T>, dt: T) -> Linearized<T, N> {
+        // Forwarded, so the lanes take the very path the firmware takes
+        // (the core's one-trig-evaluation linearisation).
+        let l = self.0.linearize(&down(x), u, dt);
+        Linearized {
+            next: up(&l.next),
+            jacobian: up_square(&l.jacobian),
+            noise: up_square(&l.noise),
+            sources: l.sources.map(|(g, q)| (up_square(&g), up(&q))),
+        }
     }
     fn normalize(&self, x: &mut SVector<T, N>) {
         let mut v = down(x);

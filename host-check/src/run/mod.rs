@@ -298,12 +298,12 @@ pub fn run(plan: &Plan, opts: RunOptions) -> Result<RunResult, RunError> {
                 };
                 let xr = reference.state();
                 let xr = Vector3::new(xr[0], xr[1], xr[2]);
-                let fj = model.jacobian(&xr, &u, dt);
-                let qj = ProcessModel::noise(model, &xr, &u, dt);
-                let f = DMatrix::from_fn(3, 3, |i, j| fj[(i, j)]);
-                let q = DMatrix::from_fn(3, 3, |i, j| qj[(i, j)]);
+                // The model's own linearisation, in f64, at the reference state.
+                let lin = model.linearize(&xr, &u, dt);
+                let f = DMatrix::from_fn(3, 3, |i, j| lin.jacobian[(i, j)]);
+                let q = DMatrix::from_fn(3, 3, |i, j| lin.noise[(i, j)]);
                 reference.predict(&f, &q);
-                let mut xn = model.transition(&xr, &u, dt);
+                let mut xn = lin.next;
                 model.normalize(&mut xn);
                 reference.set_state(&DVector::from_column_slice(xn.as_slice()));
                 for r in lanes.iter_mut().filter(|r| !r.tracker.stopped()) {
