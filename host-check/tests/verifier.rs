@@ -640,3 +640,59 @@ fn mutated_specs_never_panic() {
         assert!(!err.contains("panicked"), "mutant {case}: {err}");
     }
 }
+
+/// Compares `text` with the golden file `name`; with `CAIRN_BLESS=1` in the
+/// environment, rewrites the golden file instead (a deliberate change).
+fn golden(name: &str, text: &str) {
+    let path = Path::new(env!("CARGO_MANIFEST_DIR"))
+        .join("tests/golden")
+        .join(name);
+    if std::env::var_os("CAIRN_BLESS").is_some() {
+        std::fs::write(&path, text).unwrap();
+        return;
+    }
+    let want = std::fs::read_to_string(&path).unwrap_or_else(|_| {
+        panic!(
+            "missing {}; run with CAIRN_BLESS=1 to create it",
+            path.display()
+        )
+    });
+    assert_eq!(
+        text, want,
+        "{name} changed; rerun with CAIRN_BLESS=1 if that was meant"
+    );
+}
+
+#[test]
+fn help_texts_match_their_golden_files() {
+    for (name, args) in [
+        ("help.txt", vec!["--help"]),
+        ("check-help.txt", vec!["check", "--help"]),
+        ("demo-help.txt", vec!["demo", "--help"]),
+        ("noise-help.txt", vec!["noise", "--help"]),
+    ] {
+        let out = cairn(&args);
+        assert_eq!(out.status.code(), Some(0));
+        golden(name, &String::from_utf8_lossy(&out.stdout));
+    }
+}
+
+#[test]
+fn dyer_mcreynolds_report_matches_its_golden_file() {
+    // The whole terminal report of a one-step published example: layout,
+    // verdicts and the f32 figures (which depend only on IEEE arithmetic and
+    // the core's operation order). Regenerate deliberately after a change
+    // to either with CAIRN_BLESS=1.
+    let spec = specs().join("dyer-mcreynolds-1e-4.toml");
+    let out = Command::new(env!("CARGO_BIN_EXE_cairn"))
+        .current_dir(Path::new(env!("CARGO_MANIFEST_DIR")))
+        .args(["check", "specs/dyer-mcreynolds-1e-4.toml"])
+        .output()
+        .unwrap();
+    assert!(spec.exists());
+    assert_eq!(out.status.code(), Some(1));
+    golden(
+        "dyer-mcreynolds-1e-4.txt",
+        &String::from_utf8_lossy(&out.stdout),
+    );
+}

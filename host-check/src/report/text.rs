@@ -54,8 +54,9 @@ pub fn render(plan: &Plan, run: &RunResult) -> String {
     };
     let _ = writeln!(
         o,
-        "  schedule {} steps at {} Hz ({}); mode {mode}",
+        "  schedule {} step{} at {} Hz ({}); mode {mode}",
         run.steps,
+        if run.steps == 1 { "" } else { "s" },
         plan.step_hz,
         duration(run.steps as f64 * run.dt)
     );
@@ -202,7 +203,11 @@ pub fn render(plan: &Plan, run: &RunResult) -> String {
             }
         }),
         ("state diff. vs f64 [sigma]".into(), |v| {
-            sci(v.figures.max_state_difference_sigma)
+            if v.figures.states_compared {
+                sci(v.figures.max_state_difference_sigma)
+            } else {
+                "-".into()
+            }
         }),
         ("steady-state distance".into(), |v| {
             v.figures.steady_distance.map_or("-".into(), sci)

@@ -47,6 +47,9 @@ pub struct Tracker {
     pub max_state_difference: Vec<f64>,
     /// The same in reference standard deviations (largest over states).
     pub max_state_difference_sigma: f64,
+    /// `false` when states were not compared (covariance-only mode of a
+    /// nonlinear model, where states are not judged).
+    pub states_compared: bool,
     /// Updates applied.
     pub updates_applied: u64,
     /// Updates gated out.
@@ -82,6 +85,7 @@ impl Tracker {
             min_innovation_pivot_ratio: f64::INFINITY,
             max_state_difference: vec![0.0; n],
             max_state_difference_sigma: 0.0,
+            states_compared: false,
             updates_applied: 0,
             updates_gated: 0,
             failure: None,

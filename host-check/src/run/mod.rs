@@ -440,6 +440,7 @@ pub fn run(plan: &Plan, opts: RunOptions) -> Result<RunResult, RunError> {
                 *m = m.max(e);
             }
             if let Some(bx) = &base_x {
+                r.tracker.states_compared = true;
                 lane.state(&mut r.x);
                 dx.copy_from(&r.x);
                 dx -= bx;
