@@ -12,7 +12,7 @@ pub(crate) fn finite<T: Scalar, const R: usize, const C: usize>(
     a: &SMatrix<T, R, C>,
     what: Operand,
 ) -> Result<(), FilterError> {
-    if a.iter().all(|v| v.finite()) {
+    if a.as_slice().iter().all(|v| v.finite()) {
         Ok(())
     } else {
         Err(FilterError::NonFinite(what))
@@ -30,7 +30,9 @@ pub(crate) fn symmetric<T: Scalar, const N: usize>(
     let tol = T::EPSILON * T::of(16.0);
     for j in 0..N {
         for i in 0..j {
-            let scale = a[(i, i)].abs().max(a[(j, j)].abs());
+            // A plain comparison: `max` on floats is a libm call on the target.
+            let (ai, aj) = (a[(i, i)].abs(), a[(j, j)].abs());
+            let scale = if ai > aj { ai } else { aj };
             if (a[(i, j)] - a[(j, i)]).abs() > tol * scale {
                 return Err(FilterError::NotSymmetric(what));
             }
@@ -92,7 +94,7 @@ pub(crate) fn posterior<T: Scalar, const N: usize>(
     x: &SVector<T, N>,
     p: &SMatrix<T, N, N>,
 ) -> Result<(), FilterError> {
-    if !x.iter().all(|v| v.finite()) {
+    if !x.as_slice().iter().all(|v| v.finite()) {
         return Err(FilterError::NonFinite(Operand::State));
     }
     for i in 0..N {
@@ -101,7 +103,7 @@ pub(crate) fn posterior<T: Scalar, const N: usize>(
             return Err(FilterError::CovarianceLost { index: idx(i) });
         }
     }
-    if !p.iter().all(|v| v.finite()) {
+    if !p.as_slice().iter().all(|v| v.finite()) {
         return Err(FilterError::CovarianceLost { index: 0 });
     }
     Ok(())

@@ -348,21 +348,23 @@ impl<T: Scalar, const N: usize, F: CovarianceForm> Kalman<T, N, F> {
     }
 }
 
-/// F P F' + Q: the product F P in full, then only the upper triangle of
-/// (F P) F' + Q, mirrored, so the result is exactly symmetric.
+/// F P F' + Q: A = P F' (= (F P)' as P is symmetric) in full, then only the
+/// upper triangle of A' F' + Q, each entry a dot product of two contiguous
+/// columns (A's and F''s), mirrored so the result is exactly symmetric.
 #[inline]
 fn propagate<T: Scalar, const N: usize>(
     f: &SMatrix<T, N, N>,
     p: &SMatrix<T, N, N>,
     q: &SMatrix<T, N, N>,
 ) -> SMatrix<T, N, N> {
-    let fp = f * p;
+    let ft = f.transpose();
+    let a = p * ft;
     let mut out = *q;
     for j in 0..N {
         for i in 0..=j {
             let mut v = T::zero();
             for e in 0..N {
-                v += fp[(i, e)] * f[(j, e)];
+                v += a[(e, i)] * ft[(e, j)];
             }
             let v = v + q[(i, j)];
             out[(i, j)] = v;

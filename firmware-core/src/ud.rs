@@ -42,7 +42,10 @@ fn factor_ud<T: Scalar, const N: usize>(
     // rank-deficient Q bounded (common practice for a rank decision).
     let mut largest = T::zero();
     for j in 0..N {
-        largest = largest.max(p[(j, j)].abs());
+        let v = p[(j, j)].abs();
+        if v > largest {
+            largest = v;
+        }
     }
     let floor = T::EPSILON * T::of(4.0 * N as f64) * largest;
     let mut ud = SMatrix::<T, N, N>::zeros();
@@ -420,7 +423,7 @@ impl<T: Scalar, const N: usize> UdKalman<T, N> {
     }
 
     fn commit(&mut self, x: SVector<T, N>, ud: SMatrix<T, N, N>) -> Result<(), FilterError> {
-        if !x.iter().all(|v| v.finite()) {
+        if !x.as_slice().iter().all(|v| v.finite()) {
             return Err(FilterError::NonFinite(Operand::State));
         }
         for j in 0..N {
@@ -429,7 +432,7 @@ impl<T: Scalar, const N: usize> UdKalman<T, N> {
                 return Err(FilterError::CovarianceLost { index: idx(j) });
             }
         }
-        if !ud.iter().all(|v| v.finite()) {
+        if !ud.as_slice().iter().all(|v| v.finite()) {
             return Err(FilterError::CovarianceLost { index: 0 });
         }
         self.x = x;
