@@ -214,6 +214,25 @@ fn json_report_carries_every_figure() {
         r["series"][0]["relative_error"].as_array().unwrap().len(),
         400
     );
+    // The discretised Q of the continuous white-noise-acceleration model is
+    // q [[T^3/3, T^2/2], [T^2/2, T]] (Bar-Shalom, Li and Kirubarajan 2001,
+    // from memory), here q = 0.04, T = 0.02.
+    let (q, t) = (0.04, 0.02);
+    let qd = &r["matrices"]["q"];
+    let want = [
+        [q * t * t * t / 3.0, q * t * t / 2.0],
+        [q * t * t / 2.0, q * t],
+    ];
+    for i in 0..2 {
+        for j in 0..2 {
+            let got = num(&qd[i][j]);
+            assert!(
+                (got / want[i][j] - 1.0).abs() < 1e-12,
+                "Q[{i}][{j}] = {got}"
+            );
+        }
+    }
+    assert_eq!(r["matrices"]["r"][0][0], "magnetic strip");
     // Both noise figures were converted, with their steps.
     let conv = r["conversions"].as_array().unwrap();
     assert_eq!(conv.len(), 2);

@@ -7,7 +7,7 @@ mod text;
 use serde::Serialize;
 
 use crate::run::RunResult;
-use crate::spec::{ConversionRecord, Flash, Plan, StateInfo, Thresholds};
+use crate::spec::{ConversionRecord, Flash, ModelPlan, Plan, StateInfo, Thresholds};
 
 pub use svg::plot;
 pub use text::render;
@@ -37,12 +37,62 @@ pub struct Report<'a> {
     pub flash: &'a Flash,
     /// Noise conversions.
     pub conversions: &'a [ConversionRecord],
+    /// The filter's matrices as the spec (and its noise figures) made them.
+    pub matrices: Matrices,
     /// The run.
     pub run: &'a RunResult,
     /// Decimated relative error per variant (largest in each bucket).
     pub series: Vec<Series<'a>>,
     /// The disclaimer.
     pub note: &'static str,
+}
+
+/// The numbers the filter is given: F and Q (linear models) or the pose
+/// model's variances, and each channel's R, row-major.
+#[derive(Debug, Clone, Serialize)]
+pub struct Matrices {
+    /// Transition matrix (linear models).
+    pub f: Option<Vec<Vec<f64>>>,
+    /// Discrete process noise (linear models).
+    pub q: Option<Vec<Vec<f64>>>,
+    /// Pose model: speed, yaw-rate and heading-drift variances per step.
+    pub pose_variances: Option<[f64; 3]>,
+    /// Each channel's name and R.
+    pub r: Vec<(String, Vec<Vec<f64>>)>,
+}
+
+impl Matrices {
+    /// The matrices of a plan.
+    pub fn of(plan: &Plan) -> Self {
+        let rows = |m: &nalgebra::DMatrix<f64>| -> Vec<Vec<f64>> {
+            (0..m.nrows())
+                .map(|i| (0..m.ncols()).map(|j| m[(i, j)]).collect())
+                .collect()
+        };
+        let (f, q, pose_variances) = match &plan.model {
+            ModelPlan::Linear { f, q, .. } => (Some(rows(f)), Some(rows(q)), None),
+            ModelPlan::Pose {
+                speed_var,
+                yaw_rate_var,
+                heading_drift_var,
+                ..
+            } => (
+                None,
+                None,
+                Some([*speed_var, *yaw_rate_var, *heading_drift_var]),
+            ),
+        };
+        Self {
+            f,
+            q,
+            pose_variances,
+            r: plan
+                .channels
+                .iter()
+                .map(|c| (c.name.clone(), rows(&c.r)))
+                .collect(),
+        }
+    }
 }
 
 /// One variant's decimated series.
@@ -79,6 +129,7 @@ impl<'a> Report<'a> {
             thresholds: plan.thresholds,
             flash: &plan.flash,
             conversions: &plan.conversions,
+            matrices: Matrices::of(plan),
             run,
             series,
             note: NOT_A_SAFETY_CASE,

@@ -98,6 +98,31 @@ pub fn render(plan: &Plan, run: &RunResult) -> String {
         }
     }
 
+    let m = super::Matrices::of(plan);
+    let _ = writeln!(o, "\nFilter matrices (what the firmware is given)");
+    let fmt_rows = |rows: &[Vec<f64>]| -> String {
+        rows.iter()
+            .map(|r| r.iter().map(|v| sci(*v)).collect::<Vec<_>>().join(" "))
+            .collect::<Vec<_>>()
+            .join("; ")
+    };
+    if let (Some(f), Some(q)) = (&m.f, &m.q) {
+        let _ = writeln!(o, "  F = [{}]", fmt_rows(f));
+        let _ = writeln!(o, "  Q = [{}]", fmt_rows(q));
+    }
+    if let Some([sv, yv, hv]) = m.pose_variances {
+        let _ = writeln!(
+            o,
+            "  PlanarOdometry {{ speed_var: {}, yaw_rate_var: {}, heading_drift_var: {} }}",
+            sci(sv),
+            sci(yv),
+            sci(hv)
+        );
+    }
+    for (name, r) in &m.r {
+        let _ = writeln!(o, "  R ({name}) = [{}]", fmt_rows(r));
+    }
+
     let _ = writeln!(o, "\nReference (double-double, about 32 digits)");
     let diag: Vec<String> = run
         .reference
