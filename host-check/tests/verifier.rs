@@ -715,3 +715,26 @@ fn dyer_mcreynolds_report_matches_its_golden_file() {
         &String::from_utf8_lossy(&out.stdout),
     );
 }
+
+#[test]
+fn malformed_external_reference_exits_two_naming_the_line() {
+    let text = std::fs::read_to_string(data().join("random-walk.toml")).unwrap();
+    for (tag, rows) in [
+        ("time", "step,time_s,P\n1,0.1,0.618\n2,0.7,0.618\n"),
+        ("count", "step,time_s,P\n1,0.1,0.618,0.2\n"),
+        ("order", "step,time_s,P\n2,0.2,0.618\n1,0.1,0.618\n"),
+    ] {
+        let csv = scratch(&format!("ext-{tag}.csv"));
+        std::fs::write(&csv, rows).unwrap();
+        let spec = scratch(&format!("ext-{tag}.toml"));
+        std::fs::write(
+            &spec,
+            text.replace("random-walk-reference.csv", csv.to_str().unwrap()),
+        )
+        .unwrap();
+        let out = cairn(&["check", spec.to_str().unwrap()]);
+        let err = String::from_utf8_lossy(&out.stderr);
+        assert_eq!(out.status.code(), Some(2), "{tag}: {err}");
+        assert!(err.contains(&format!("ext-{tag}.csv:")), "{tag}: {err}");
+    }
+}

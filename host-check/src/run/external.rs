@@ -13,22 +13,25 @@ pub struct ExternalStream {
     lines: Lines<BufReader<File>>,
     line_no: usize,
     n: usize,
+    dt: f64,
     pending: Option<(u64, DMatrix<f64>)>,
     last_step: Option<u64>,
 }
 
 impl ExternalStream {
-    /// Opens the file for `n` states and reads the first row.
+    /// Opens the file for `n` states and a step of `dt` seconds, and reads
+    /// the first row.
     ///
     /// # Errors
     /// A message naming the file and line.
-    pub fn open(path: &Path, n: usize) -> Result<Self, String> {
+    pub fn open(path: &Path, n: usize, dt: f64) -> Result<Self, String> {
         let file = File::open(path).map_err(|e| format!("{}: cannot open: {e}", path.display()))?;
         let mut s = Self {
             path: path.to_path_buf(),
             lines: BufReader::new(file).lines(),
             line_no: 0,
             n,
+            dt,
             pending: None,
             last_step: None,
         };
@@ -57,6 +60,18 @@ impl ExternalStream {
                     self.line_no
                 ));
             };
+            let time = cells.get(1).and_then(|c| c.parse::<f64>().ok());
+            let expected = step as f64 * self.dt;
+            match time {
+                Some(t) if (t - expected).abs() <= 1e-6 * expected.abs().max(1.0) => {}
+                _ => {
+                    return Err(format!(
+                        "{}:{}: the time column must be step x dt = {expected} s",
+                        self.path.display(),
+                        self.line_no
+                    ));
+                }
+            }
             let values: Result<Vec<f64>, _> = cells[2.min(cells.len())..]
                 .iter()
                 .map(|c| c.parse::<f64>())

@@ -231,7 +231,7 @@ pub fn run(plan: &Plan, opts: RunOptions) -> Result<RunResult, RunError> {
     };
 
     let mut external = match &plan.external {
-        Some(e) => Some(ExternalStream::open(&e.path, n).map_err(RunError)?),
+        Some(e) => Some(ExternalStream::open(&e.path, n, dt).map_err(RunError)?),
         None => None,
     };
     let mut ext_rows = 0_u64;
