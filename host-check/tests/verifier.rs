@@ -738,3 +738,31 @@ fn malformed_external_reference_exits_two_naming_the_line() {
         assert!(err.contains(&format!("ext-{tag}.csv:")), "{tag}: {err}");
     }
 }
+
+#[test]
+fn f32_positions_far_from_the_origin_fail_the_state_check() {
+    // IEEE 754 binary32 resolves 20 km to 2^-9 m (1.95 mm) while each step
+    // adds about 4 mm: the f32 dead-reckoned state drifts many standard
+    // deviations from the f64 one. The same run at the origin stays well
+    // within one standard deviation (ulp 2^-19 m at 40 m). Common practice:
+    // keep firmware coordinates in a local frame.
+    let (code, far) = check_json(&data().join("far-rover.toml"), "far", &[]);
+    assert_eq!(code, 1);
+    let f = &variant(&far, "f32 joseph")["figures"];
+    assert!(num(&f["max_state_difference_sigma"]) > 3.0, "{f}");
+    assert!(f["failure"].is_null(), "no operation is refused: {f}");
+    let reasons = variant(&far, "f32 joseph")["verdict"]["reasons"].to_string();
+    assert!(reasons.contains("standard deviations"), "{reasons}");
+
+    let text = std::fs::read_to_string(data().join("far-rover.toml")).unwrap();
+    let near = scratch("near-rover.toml");
+    std::fs::write(
+        &near,
+        text.replace("x = [20000.0, 20000.0, 0.3]", "x = [0.0, 0.0, 0.3]"),
+    )
+    .unwrap();
+    let (code, near) = check_json(&near, "near", &[]);
+    assert_eq!(code, 0);
+    let n = &variant(&near, "f32 joseph")["figures"];
+    assert!(num(&n["max_state_difference_sigma"]) < 0.01, "{n}");
+}

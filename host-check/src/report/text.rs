@@ -227,13 +227,16 @@ pub fn render(plan: &Plan, run: &RunResult) -> String {
                 "-".into()
             }
         }),
-        ("state diff. vs f64 [sigma]".into(), |v| {
-            if v.figures.states_compared {
-                sci(v.figures.max_state_difference_sigma)
-            } else {
-                "-".into()
-            }
-        }),
+        (
+            format!("state diff. [sigma] (<= {})", th.max_state_difference_sigma),
+            |v| {
+                if v.figures.states_compared {
+                    sci(v.figures.max_state_difference_sigma)
+                } else {
+                    "-".into()
+                }
+            },
+        ),
         ("steady-state distance".into(), |v| {
             v.figures.steady_distance.map_or("-".into(), sci)
         }),

@@ -51,6 +51,12 @@ pub fn judge(t: &Tracker, th: &Thresholds) -> Verdict {
             t.max_gain_error, th.max_gain_error
         ));
     }
+    if t.states_compared && exceeds(t.max_state_difference_sigma, th.max_state_difference_sigma) {
+        reasons.push(format!(
+            "state differs from the f64 run by {:.2} standard deviations > {}",
+            t.max_state_difference_sigma, th.max_state_difference_sigma
+        ));
+    }
     if let (Some(limit), Some(d)) = (th.max_steady_distance, t.steady_distance)
         && exceeds(d, limit)
     {

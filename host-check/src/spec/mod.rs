@@ -211,6 +211,9 @@ pub struct Thresholds {
     /// Largest relative distance of the late covariance from the Riccati
     /// steady state, when one is checked.
     pub max_steady_distance: Option<f64>,
+    /// Largest state difference from the f64 Joseph run, in the reference's
+    /// standard deviations (judged when states are compared).
+    pub max_state_difference_sigma: f64,
 }
 
 impl Default for Thresholds {
@@ -220,6 +223,7 @@ impl Default for Thresholds {
             max_asymmetry: 1e-6,
             max_gain_error: 1e-2,
             max_steady_distance: None,
+            max_state_difference_sigma: 1.0,
         }
     }
 }

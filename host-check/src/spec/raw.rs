@@ -189,6 +189,8 @@ pub struct RawVerdict {
     pub max_gain_error: Option<Spanned<f64>>,
     /// Largest relative distance of the late-run covariance from the steady state.
     pub max_steady_distance: Option<Spanned<f64>>,
+    /// Largest state difference from the f64 run, in standard deviations.
+    pub max_state_difference: Option<Spanned<f64>>,
 }
 
 /// The variant to flash.

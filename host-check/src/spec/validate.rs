@@ -342,6 +342,10 @@ pub(super) fn plan(loc: &Locator<'_>, raw: RawSpec, base: Option<&Path>) -> R<Pl
         if let Some(t) = &v.max_gain_error {
             thresholds.max_gain_error = positive(loc, t, "verdict.max_gain_error")?;
         }
+        if let Some(t) = &v.max_state_difference {
+            thresholds.max_state_difference_sigma =
+                positive(loc, t, "verdict.max_state_difference")?;
+        }
         if let Some(t) = &v.max_steady_distance {
             thresholds.max_steady_distance = Some(positive(loc, t, "verdict.max_steady_distance")?);
         }
