@@ -128,8 +128,8 @@ fn target_f32_pose_run_matches_host_bit_for_bit() {
     // Cortex-M4F's FPv4-SP unit, IEEE 754-2008 binary32 with round to nearest
     // (Arm Cortex-M4 TRM, DDI 0439, FPU chapter). Equal bits are expected
     // because Rust never contracts a*b+c into a fused multiply-add (the
-    // M4's VMLA rounds twice, like separate VMUL and VADD), and sin/cos come
-    // from the `libm` crate's portable code on both machines.
+    // M4's VMLA rounds twice, like separate VMUL and VADD), and sin/cos are
+    // the core's own kernel, plain f32 arithmetic, on both machines.
     assert_eq!(target_p.len(), 9, "target printed {output}");
     for (i, (t, h)) in target_p.iter().zip(host.p.iter()).enumerate() {
         assert_eq!(
