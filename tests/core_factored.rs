@@ -248,3 +248,30 @@ fn noise_input_time_update_equals_the_full_q_one() {
     );
     assert!((a.state() - b.state()).norm() < 1e-12);
 }
+
+#[test]
+fn joseph_stays_positive_definite_where_its_expansion_does_not() {
+    // Dyer and McReynolds' example (via Grewal and Andrews) at d = 1e-2 in
+    // f32: the exact posterior's smallest eigenvalue is 1.66e-5 (f64
+    // textbook update below, an independent nalgebra computation). The
+    // factored Joseph order must keep it positive and close; the expanded
+    // form P - KB' - BK' + KSK' went indefinite here (-4.5e-5, measured).
+    let d = 1e-2_f32;
+    let p = covariance_form::<Joseph>(d).unwrap();
+    let h = dyer_h(d).map(f64::from);
+    let r = Matrix2::identity() * f64::from(d * d);
+    let s = h * h.transpose() + r;
+    let exact = Matrix3::identity() - h.transpose() * s.cholesky().unwrap().inverse() * h;
+    let (got, want) = (
+        p.symmetric_eigenvalues().min(),
+        exact.symmetric_eigenvalues().min(),
+    );
+    assert!(
+        (want - 1.66e-5).abs() < 1e-7,
+        "exact smallest eigenvalue {want}"
+    );
+    assert!(
+        got > 0.0 && (got - want).abs() < 0.05 * want,
+        "f32 Joseph smallest eigenvalue {got} vs {want}"
+    );
+}
