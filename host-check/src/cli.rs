@@ -18,8 +18,9 @@ pub const EXIT_FAIL: u8 = 1;
 pub const EXIT_BAD_INPUT: u8 = 2;
 
 const EXIT_CODES: &str = "Exit codes:
-  0  the variant to flash (default f32 joseph) passes
-  1  it fails (a numerical pass is not a safety case; see the report)
+  0  the variant to flash (default f32 joseph) passes, for the whole mission
+  1  it fails, or is projected to cross a limit within the mission (a
+     numerical pass is not a safety case; see the report)
   2  bad input: a malformed or inconsistent spec, an unreadable file, a bad option";
 
 /// Checks a Kalman filter's single-precision numerics before it is flashed:
@@ -113,6 +114,10 @@ pub struct Output {
     /// Never show a progress bar (it is hidden anyway when stderr is not a terminal).
     #[arg(long)]
     pub no_progress: bool,
+    /// The mission the filter must last, e.g. 30d, 12h, 90m or 3600s
+    /// (overrides the spec's [mission]; default: the horizon).
+    #[arg(long, value_name = "LENGTH")]
+    pub mission: Option<String>,
 }
 
 /// `cairn check`.
@@ -311,6 +316,9 @@ fn check(
         }
         plan.steps = plan.steps.min(((s * plan.step_hz).round() as u64).max(1));
     }
+    if let Some(m) = &out.mission {
+        plan.thresholds.mission_seconds = Some(parse_mission(m)?);
+    }
     let opts = RunOptions {
         progress: !out.no_progress,
         mode: mode.map(|m| match m {
@@ -321,11 +329,16 @@ fn check(
     let result = run::run(&plan, opts).map_err(bad)?;
     if out.quiet {
         println!(
-            "{}: flash {} {}; cheapest passing: {}",
+            "{}: flash {} {}; cheapest passing: {}; for the mission: {}",
             plan.title,
             result.flash,
             if result.flash_passes { "PASS" } else { "FAIL" },
-            result.cheapest_passing.as_deref().unwrap_or("none")
+            result.cheapest_passing.as_deref().unwrap_or("none"),
+            result
+                .mission
+                .as_ref()
+                .and_then(|m| m.verdict.choice.as_deref())
+                .unwrap_or("none")
         );
     } else {
         print!("{}", report::render(&plan, &result));
@@ -345,6 +358,30 @@ fn check(
     } else {
         EXIT_FAIL
     })
+}
+
+/// A mission length: a positive number with a unit suffix d, h, m or s.
+fn parse_mission(text: &str) -> Result<f64, Failure> {
+    let t = text.trim();
+    let (num, scale) = match t.char_indices().last() {
+        Some((i, 'd')) => (&t[..i], 86_400.0),
+        Some((i, 'h')) => (&t[..i], 3600.0),
+        Some((i, 'm')) => (&t[..i], 60.0),
+        Some((i, 's')) => (&t[..i], 1.0),
+        _ => {
+            return Err(bad(Message(format!(
+                "--mission `{text}`: give a length with a unit, e.g. 30d, 12h, 90m or 3600s"
+            ))));
+        }
+    };
+    match num.trim().parse::<f64>() {
+        Ok(v) if v.is_finite() && v > 0.0 && v * scale <= crate::spec::MAX_MISSION_S => {
+            Ok(v * scale)
+        }
+        _ => Err(bad(Message(format!(
+            "--mission `{text}`: the length must be a positive number up to 100 years, e.g. 30d"
+        )))),
+    }
 }
 
 fn write(path: &Path, text: &str) -> Result<(), Failure> {

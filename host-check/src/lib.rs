@@ -11,6 +11,7 @@
 //! | [`consistency`] | Monte Carlo NEES/NIS against chi-square intervals   |
 //! | [`constants`] | the spec's matrices as `const` arrays for firmware    |
 //! | [`demo`]    | the built-in demo spec                                       |
+//! | [`mission`] | growth over the mission, constant-gain transient, what to flash |
 //! | [`numeric`] | double-double, Van Loan, Riccati, noise figures              |
 
 pub mod cli;
@@ -18,6 +19,7 @@ pub mod consistency;
 pub mod constants;
 pub mod cost;
 pub mod demo;
+pub mod mission;
 pub mod numeric;
 pub mod report;
 pub mod run;

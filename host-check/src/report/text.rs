@@ -29,6 +29,110 @@ fn duration(s: f64) -> String {
     }
 }
 
+/// The mission section: growth fits, crossing times, the constant gain.
+fn mission(o: &mut String, m: &crate::mission::MissionResult, limit: f64) {
+    use crate::mission::duration_words;
+    let _ = writeln!(
+        o,
+        "\nMission: {}{} ({:.3e} steps); error limit {}",
+        duration_words(m.seconds),
+        if m.is_horizon {
+            " (the horizon; state one with [mission] or --mission)"
+        } else {
+            ""
+        },
+        m.steps,
+        sci(limit)
+    );
+    let _ = writeln!(
+        o,
+        "  {:<18} {:<12} {:>10} {:>10} {:>8} {:>10} {:>12}  mission",
+        "variant", "growth", "a", "b", "R^2", "at end", "crossing"
+    );
+    for v in &m.variants {
+        let (g, a, b, r2) = match &v.fit {
+            Some(f) => (
+                f.growth.name(),
+                sci(f.a),
+                sci(f.b),
+                format!("{:.3}", f.r_squared),
+            ),
+            None => ("-", "-".into(), "-".into(), "-".into()),
+        };
+        let g = if v.level.is_some() { "level*" } else { g };
+        let _ = writeln!(
+            o,
+            "  {:<18} {:<12} {:>10} {:>10} {:>8} {:>10} {:>12}  {}",
+            v.name,
+            g,
+            a,
+            b,
+            r2,
+            v.projected_error.map_or("-".into(), sci),
+            v.crossing.trim_start_matches("after "),
+            if v.passes_mission { "PASS" } else { "FAIL" }
+        );
+    }
+    let _ = writeln!(
+        o,
+        "  (fits: ordinary least squares of the per-bucket largest error on a, a + b k or a + b sqrt(k), \
+k in steps, chosen by Schwarz's criterion; the first 10% of the horizon is left out)"
+    );
+    if let Some(why) = m.variants.iter().find_map(|v| v.level.as_ref()) {
+        let _ = writeln!(o, "  * {why}.");
+    }
+    match (&m.constant_gain, &m.constant_gain_note) {
+        (Some(cg), _) => {
+            let _ = writeln!(
+                o,
+                "\nConstant gain (cairn-core SteadyGain with the Riccati gain; closed-loop radius {:.4})",
+                cg.closed_loop_radius
+            );
+            let _ = writeln!(
+                o,
+                "  transient: covariance up to {} above the optimal (largest generalised eigenvalue - 1; trace {}) at t = {}",
+                sci(cg.max_excess),
+                sci(cg.max_trace_excess),
+                duration_words(cg.max_excess_time_s)
+            );
+            let _ = writeln!(
+                o,
+                "  within {} of the optimal covariance {}",
+                sci(cg.threshold),
+                cg.settle_time_s.map_or_else(
+                    || format!("not within {} measurement intervals", cg.intervals),
+                    |s| format!("after {}", duration_words(s))
+                )
+            );
+            for l in &cg.lanes {
+                let _ = writeln!(
+                    o,
+                    "  {:<18} {} steps; state differs from the f64 run by {} standard deviations{}",
+                    l.name,
+                    l.steps,
+                    sci(l.max_state_difference_sigma),
+                    l.refused
+                        .as_ref()
+                        .map_or(String::new(), |r| format!("; REFUSED at {r}"))
+                );
+            }
+            if let Some(n) = &cg.lanes_note {
+                let _ = writeln!(o, "  {n}");
+            }
+        }
+        (None, Some(n)) => {
+            let _ = writeln!(o, "\n{n}");
+        }
+        (None, None) => {}
+    }
+    if !m.verdict.passed_over.is_empty() {
+        let _ = writeln!(o, "\nPassed over (cheapest first)");
+        for p in &m.verdict.passed_over {
+            let _ = writeln!(o, "  {p}");
+        }
+    }
+}
+
 /// The report as text (plain ASCII, fits 100 columns for six variants).
 pub fn render(plan: &Plan, run: &RunResult) -> String {
     let mut o = String::new();
@@ -295,17 +399,47 @@ pub fn render(plan: &Plan, run: &RunResult) -> String {
 first order, but no covariance form recovers information lost when S = HPH' + R is rounded \
 (cond(S) x eps near 1 or above; factored forms such as U-D delay it)."
     );
+    if let Some(m) = &run.mission {
+        mission(&mut o, m, plan.thresholds.max_relative_error);
+    }
     let _ = writeln!(
         o,
-        "\nFlash {}: {}",
+        "\nFlash {}: {}{}",
         run.flash,
-        if run.flash_passes { "PASS" } else { "FAIL" }
+        if run.flash_passes { "PASS" } else { "FAIL" },
+        match (&run.mission, run.flash_passes_horizon) {
+            (Some(m), true) if !m.is_horizon && !run.flash_passes =>
+                " (passes the horizon, not the mission)",
+            (Some(m), _) if !m.is_horizon => " (for the mission)",
+            _ => "",
+        }
     );
     let _ = writeln!(
         o,
-        "Cheapest variant that passes: {}",
+        "Cheapest variant that passes the horizon: {}",
         run.cheapest_passing.as_deref().unwrap_or("none")
     );
+    if let Some(m) = &run.mission {
+        let v = &m.verdict;
+        match &v.choice {
+            Some(c) => {
+                let _ = writeln!(
+                    o,
+                    "What to flash for the mission: {c}; {}",
+                    match v.cycles_per_step {
+                        Some(cy) => format!("about {cy:.0} cycles per step ({})", v.cycles_note),
+                        None => v.cycles_note.clone(),
+                    }
+                );
+            }
+            None => {
+                let _ = writeln!(
+                    o,
+                    "What to flash for the mission: nothing passes (change the model, the thresholds or the mission)"
+                );
+            }
+        }
+    }
     let _ = writeln!(o, "\n{NOT_A_SAFETY_CASE}");
     o
 }

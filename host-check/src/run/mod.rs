@@ -4,7 +4,7 @@
 mod external;
 pub mod lane;
 pub mod metrics;
-mod synth;
+pub(crate) mod synth;
 pub mod variants;
 mod verdict;
 
@@ -136,10 +136,15 @@ pub struct RunResult {
     pub series_time: Vec<f64>,
     /// The variant to flash.
     pub flash: String,
-    /// `true` when it passes.
+    /// `true` when it passes over the horizon and is not projected to
+    /// cross the error limit within the mission.
     pub flash_passes: bool,
-    /// The cheapest variant that passes, if any.
+    /// `true` when it passes over the horizon.
+    pub flash_passes_horizon: bool,
+    /// The cheapest variant that passes over the horizon, if any.
     pub cheapest_passing: Option<String>,
+    /// The mission-length verdict (filled in once the run is over).
+    pub mission: Option<crate::mission::MissionResult>,
 }
 
 struct Running {
@@ -477,8 +482,9 @@ pub fn run(plan: &Plan, opts: RunOptions) -> Result<RunResult, RunError> {
     // Steady state.
     let mut steady = None;
     let mut steady_note = steady_note;
-    if let Some((fl, hl, ql, rl, every)) = steady_setup {
-        match dare::solve(&fl, &hl, &ql, &rl) {
+    if let Some((fl, hl, ql, rl, every)) = &steady_setup {
+        let every = *every;
+        match dare::solve(fl, hl, ql, rl) {
             Ok(s) => {
                 let sn = s.posterior.norm();
                 for r in lanes.iter_mut() {
@@ -521,7 +527,7 @@ pub fn run(plan: &Plan, opts: RunOptions) -> Result<RunResult, RunError> {
         });
     }
     let flash = format!("{} {}", plan.flash.precision.name(), plan.flash.form);
-    let flash_passes = variants_out
+    let flash_passes_horizon = variants_out
         .iter()
         .any(|v| v.name == flash && v.verdict.passes);
     let cheapest_passing = variants_out
@@ -539,7 +545,8 @@ pub fn run(plan: &Plan, opts: RunOptions) -> Result<RunResult, RunError> {
         .map(|b| (b as f64 * steps as f64 / BUCKETS as f64).ceil() * dt)
         .collect();
     let pr = reference.covariance();
-    Ok(RunResult {
+    let lifted = steady_setup.filter(|_| steady.is_some());
+    let mut result = RunResult {
         steps,
         dt,
         mode,
@@ -556,9 +563,26 @@ pub fn run(plan: &Plan, opts: RunOptions) -> Result<RunResult, RunError> {
         external,
         series_time,
         flash,
-        flash_passes,
+        flash_passes: flash_passes_horizon,
+        flash_passes_horizon,
         cheapest_passing,
-    })
+        mission: None,
+    };
+    let mission = crate::mission::analyze(
+        &crate::mission::MissionInputs {
+            plan,
+            lifted: lifted.as_ref(),
+            lifted_note: result.steady_note.as_deref(),
+            cycles: &[],
+        },
+        &result,
+    );
+    result.flash_passes = mission
+        .variants
+        .iter()
+        .any(|v| v.name == result.flash && v.passes_mission);
+    result.mission = Some(mission);
+    Ok(result)
 }
 
 fn stop(r: &mut Running, k: u64, t: f64, op: &str, err: &str) {
@@ -570,7 +594,9 @@ fn stop(r: &mut Running, k: u64, t: f64, op: &str, err: &str) {
     });
 }
 
-type Lifted = (DMatrix<f64>, DMatrix<f64>, DMatrix<f64>, DMatrix<f64>, u64);
+/// The LTI model between updates: (F^m, H stacked, sum F^i Q F^i', R
+/// block diagonal, m steps per update).
+pub type Lifted = (DMatrix<f64>, DMatrix<f64>, DMatrix<f64>, DMatrix<f64>, u64);
 
 /// The lifted LTI model between updates, when the spec has one: a linear
 /// model whose channels all update together every m steps without dropouts.

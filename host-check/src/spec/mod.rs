@@ -13,6 +13,7 @@ use serde::Serialize;
 
 pub use error::{Locator, SpecError};
 pub use figures::{ConversionRecord, convert_standalone};
+pub use validate::MAX_MISSION_S;
 
 /// One state of the model.
 #[derive(Debug, Clone, Serialize)]
@@ -214,6 +215,12 @@ pub struct Thresholds {
     /// Largest state difference from the f64 Joseph run, in the reference's
     /// standard deviations (judged when states are compared).
     pub max_state_difference_sigma: f64,
+    /// The mission the thresholds must hold for, s (`None`: the horizon).
+    pub mission_seconds: Option<f64>,
+    /// Largest accepted relative excess of the constant-gain filter's
+    /// covariance over the optimal one during its transient (`None`: the
+    /// largest relative covariance error applies).
+    pub max_transient_excess: Option<f64>,
 }
 
 impl Default for Thresholds {
@@ -224,6 +231,8 @@ impl Default for Thresholds {
             max_gain_error: 1e-2,
             max_steady_distance: None,
             max_state_difference_sigma: 1.0,
+            mission_seconds: None,
+            max_transient_excess: None,
         }
     }
 }

@@ -38,6 +38,21 @@ pub struct RawSpec {
     /// An external reference trajectory.
     #[serde(default)]
     pub reference: Option<Spanned<RawReference>>,
+    /// How long the filter must run on the target (default: the horizon).
+    #[serde(default)]
+    pub mission: Option<Spanned<RawMission>>,
+}
+
+/// The mission length: exactly one of the fields.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawMission {
+    /// Duration, s.
+    pub seconds: Option<Spanned<f64>>,
+    /// Duration, h.
+    pub hours: Option<Spanned<f64>>,
+    /// Duration, days.
+    pub days: Option<Spanned<f64>>,
 }
 
 /// One state: its name and unit.
@@ -191,6 +206,9 @@ pub struct RawVerdict {
     pub max_steady_distance: Option<Spanned<f64>>,
     /// Largest state difference from the f64 run, in standard deviations.
     pub max_state_difference: Option<Spanned<f64>>,
+    /// Largest accepted relative excess of a constant-gain filter's
+    /// covariance over the optimal one during its transient.
+    pub max_transient_excess: Option<Spanned<f64>>,
 }
 
 /// The variant to flash.

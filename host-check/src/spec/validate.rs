@@ -349,6 +349,13 @@ pub(super) fn plan(loc: &Locator<'_>, raw: RawSpec, base: Option<&Path>) -> R<Pl
         if let Some(t) = &v.max_steady_distance {
             thresholds.max_steady_distance = Some(positive(loc, t, "verdict.max_steady_distance")?);
         }
+        if let Some(t) = &v.max_transient_excess {
+            thresholds.max_transient_excess =
+                Some(positive(loc, t, "verdict.max_transient_excess")?);
+        }
+    }
+    if let Some(m) = raw.mission.as_ref() {
+        thresholds.mission_seconds = Some(mission(loc, m)?);
     }
 
     // Variant to flash.
@@ -429,6 +436,33 @@ pub(super) fn plan(loc: &Locator<'_>, raw: RawSpec, base: Option<&Path>) -> R<Pl
         conversions,
         seed,
     })
+}
+
+/// Longest mission, s (100 years).
+pub const MAX_MISSION_S: f64 = 100.0 * 365.25 * 86_400.0;
+
+fn mission(loc: &Locator<'_>, m: &Spanned<super::raw::RawMission>) -> R<f64> {
+    let r = m.get_ref();
+    let s = match (&r.seconds, &r.hours, &r.days) {
+        (Some(s), None, None) => positive(loc, s, "mission.seconds")?,
+        (None, Some(h), None) => positive(loc, h, "mission.hours")? * 3600.0,
+        (None, None, Some(d)) => positive(loc, d, "mission.days")? * 86_400.0,
+        _ => {
+            return Err(loc.error(
+                m.span(),
+                "mission",
+                "give exactly one of `seconds`, `hours` or `days`",
+            ));
+        }
+    };
+    if s > MAX_MISSION_S {
+        return Err(loc.error(
+            m.span(),
+            "mission",
+            format!("a mission of {s:e} s is longer than 100 years"),
+        ));
+    }
+    Ok(s)
 }
 
 fn horizon(loc: &Locator<'_>, raw: &RawSpec, step_hz: f64) -> R<u64> {

@@ -1,0 +1,392 @@
+//! The mission-length verdict: how each variant's error grows, where it
+//! would stand at the end of the mission, the constant-gain option's
+//! transient loss, and the cheapest form and precision that passes.
+
+pub mod fit;
+pub mod gain;
+
+use serde::Serialize;
+
+use crate::run::{Lifted, RunResult, SteadyResult};
+use crate::spec::{ModelPlan, Plan};
+pub use fit::{Fit, Growth};
+pub use gain::{ConstantGain, GainLaneResult};
+
+/// The reference counts as steady when its last posterior is this close
+/// (relative, Frobenius) to the Riccati solution.
+pub const STEADY_TOLERANCE: f64 = 1e-8;
+/// Share of the plot buckets skipped at the start before fitting (the
+/// start-up transient is not growth).
+const SKIP_SHARE: f64 = 0.1;
+/// A series is flat when its change over the last half is within this share
+/// of its mean (or of the threshold, whichever is larger).
+const FLAT_TOLERANCE: f64 = 0.05;
+/// Largest number of steps the core's constant-gain filter is run for.
+const MAX_GAIN_STEPS: u64 = 2_000_000;
+
+/// One variant over the mission.
+#[derive(Debug, Clone, Serialize)]
+pub struct VariantMission {
+    /// Variant name.
+    pub name: String,
+    /// The growth model fitted to its decimated error series (none when it
+    /// stopped early or had too few points).
+    pub fit: Option<Fit>,
+    /// Why the error is taken as level and the horizon as enough, if it is.
+    pub level: Option<String>,
+    /// Its relative covariance error projected to the end of the mission.
+    pub projected_error: Option<f64>,
+    /// When its relative error would cross the threshold, s from the start
+    /// (`None`: never).
+    pub crossing_s: Option<f64>,
+    /// The crossing in words ("never", "after 3.2 days", "within the horizon").
+    pub crossing: String,
+    /// `true` when it passes over the horizon and is not projected to cross
+    /// the threshold within the mission.
+    pub passes_mission: bool,
+}
+
+/// The final verdict: what to flash.
+#[derive(Debug, Clone, Serialize)]
+pub struct FinalVerdict {
+    /// The cheapest variant that passes for the whole mission, if any.
+    pub choice: Option<String>,
+    /// Order tried, cheapest first.
+    pub order: Vec<String>,
+    /// Estimated cycles per filter step of the choice, when a cost figure
+    /// applies.
+    pub cycles_per_step: Option<f64>,
+    /// Where the cycles came from, or how to get them.
+    pub cycles_note: String,
+    /// Why cheaper options were passed over.
+    pub passed_over: Vec<String>,
+}
+
+/// The whole mission analysis.
+#[derive(Debug, Clone, Serialize)]
+pub struct MissionResult {
+    /// Mission length, s.
+    pub seconds: f64,
+    /// Mission length in filter steps.
+    pub steps: f64,
+    /// `true` when no mission was stated (the horizon is the mission).
+    pub is_horizon: bool,
+    /// Per variant, in the run's order.
+    pub variants: Vec<VariantMission>,
+    /// The constant-gain option, when offered.
+    pub constant_gain: Option<ConstantGain>,
+    /// Why the constant-gain option is not offered, or a caveat.
+    pub constant_gain_note: Option<String>,
+    /// The final verdict.
+    pub verdict: FinalVerdict,
+}
+
+/// "after 3.2 days" and so on.
+pub fn duration_words(s: f64) -> String {
+    if !s.is_finite() {
+        "never".into()
+    } else if s >= 2.0 * 86_400.0 {
+        format!("{:.1} days", s / 86_400.0)
+    } else if s >= 2.0 * 3600.0 {
+        format!("{:.1} h", s / 3600.0)
+    } else if s >= 120.0 {
+        format!("{:.1} min", s / 60.0)
+    } else {
+        format!("{s:.3} s")
+    }
+}
+
+/// Cost order of the final verdict: constant gain, conventional, Joseph,
+/// U-D, every f32 form before any f64 one (f64 is software arithmetic on a
+/// Cortex-M4F, about 75x the f32 cost: REFERENCES.md, measured here).
+pub fn cost_order() -> Vec<String> {
+    let mut v = Vec::new();
+    for p in ["f32", "f64"] {
+        for f in ["constant gain", "conventional", "joseph", "u-d"] {
+            v.push(format!("{p} {f}"));
+        }
+    }
+    v
+}
+
+fn variant_mission(
+    v: &crate::run::VariantResult,
+    run: &RunResult,
+    mission_steps: f64,
+    limit: f64,
+    steady_reason: Option<&str>,
+) -> VariantMission {
+    let dt = run.dt;
+    let steps: Vec<f64> = run.series_time.iter().map(|t| (t / dt).round()).collect();
+    let series = &v.figures.series;
+    let skip = (series.len() as f64 * SKIP_SHARE) as usize;
+    let stopped = v.figures.failure.is_some();
+    let fit = if stopped {
+        None
+    } else {
+        fit::fit(&steps[skip..], &series[skip..])
+    };
+    let flat = !stopped && fit::flat_last_half(&steps, series, FLAT_TOLERANCE, limit * 1e-3);
+    let level = match (steady_reason, fit) {
+        _ if stopped => None,
+        (Some(why), _) if flat => Some(why.to_string()),
+        (_, Some(f)) if flat && f.growth == Growth::Level => Some(
+            "error is level: flat over the last half of the horizon and best fitted by a \
+             constant; no growth mechanism seen"
+                .to_string(),
+        ),
+        _ => None,
+    };
+    let observed = v.figures.max_relative_error;
+    // Where the error first exceeded the threshold within the horizon.
+    let first_over = series
+        .iter()
+        .zip(&run.series_time)
+        .find(|(e, _)| e.is_finite() && **e > limit)
+        .map(|(_, t)| *t);
+    let (projected_error, crossing_s) = if !v.verdict.passes {
+        let at = first_over.or(v.figures.failure.as_ref().map(|f| f.time_s));
+        (None, at.or(Some(0.0)))
+    } else if level.is_some() {
+        (Some(observed), None)
+    } else if let Some(f) = fit {
+        let at_end = f.at(mission_steps).max(observed);
+        let crossing = f
+            .crossing(limit)
+            .map(|k| k.max(run.steps as f64) * dt)
+            .filter(|_| observed <= limit);
+        (Some(at_end), crossing)
+    } else {
+        (Some(observed), None)
+    };
+    let mission_s = mission_steps * dt;
+    let crossing = match crossing_s {
+        _ if !v.verdict.passes => "fails within the horizon".to_string(),
+        None => "never".to_string(),
+        Some(s) => format!("after {}", duration_words(s)),
+    };
+    let passes_mission = v.verdict.passes && crossing_s.is_none_or(|s| s > mission_s);
+    VariantMission {
+        name: v.name.clone(),
+        fit,
+        level,
+        projected_error,
+        crossing_s,
+        crossing,
+        passes_mission,
+    }
+}
+
+/// Why the reference's steady state justifies stopping early, if it does.
+fn steady_reason(steady: Option<&SteadyResult>) -> Option<String> {
+    let s = steady?;
+    let d = s.reference_distance?;
+    (d <= STEADY_TOLERANCE).then(|| {
+        format!(
+            "error is level: no growth mechanism. The model is time-invariant and the reference \
+             sits on the Riccati steady state (relative distance {d:.1e}), so every later step \
+             repeats the same arithmetic on the same covariance: rounding is re-injected at a \
+             fixed level and the stable closed loop forgets it; the horizon run is enough"
+        )
+    })
+}
+
+/// Inputs of the mission analysis besides the run.
+pub struct MissionInputs<'a> {
+    /// The spec.
+    pub plan: &'a Plan,
+    /// The lifted LTI model, when the schedule has one.
+    pub lifted: Option<&'a Lifted>,
+    /// Why there is none.
+    pub lifted_note: Option<&'a str>,
+    /// Cycles per step by variant name, when a cost figure applies.
+    pub cycles: &'a [(String, f64)],
+}
+
+/// Analyses a finished run for the mission the spec (or the command line)
+/// states.
+pub fn analyze(inputs: &MissionInputs<'_>, run: &RunResult) -> MissionResult {
+    let plan = inputs.plan;
+    let limit = plan.thresholds.max_relative_error;
+    let horizon_s = run.steps as f64 * run.dt;
+    let (seconds, is_horizon) = match plan.thresholds.mission_seconds {
+        Some(s) => (s, false),
+        None => (horizon_s, true),
+    };
+    let mission_steps = (seconds * plan.step_hz).round().max(1.0);
+    let reason = steady_reason(run.steady.as_ref());
+    let variants: Vec<VariantMission> = run
+        .variants
+        .iter()
+        .map(|v| variant_mission(v, run, mission_steps, limit, reason.as_deref()))
+        .collect();
+
+    // The constant-gain option.
+    let (constant_gain, constant_gain_note) = match (inputs.lifted, &run.steady) {
+        (Some(lifted), Some(steady)) => constant_gain(plan, run, lifted, steady),
+        (None, _) => (
+            None,
+            Some(format!(
+                "constant gain not offered: {}",
+                inputs
+                    .lifted_note
+                    .unwrap_or("the schedule is not time-invariant")
+                    .trim_start_matches("no steady state: ")
+            )),
+        ),
+        (Some(_), None) => (
+            None,
+            Some(format!(
+                "constant gain not offered: {}",
+                run.steady_note
+                    .as_deref()
+                    .unwrap_or("the Riccati equation has no steady state")
+            )),
+        ),
+    };
+
+    // The final verdict.
+    let order = cost_order();
+    let mut passed_over = Vec::new();
+    let mut choice = None;
+    for name in &order {
+        let (passes, why) = if name.ends_with("constant gain") {
+            constant_gain_passes(name, constant_gain.as_ref(), plan)
+        } else {
+            match variants.iter().find(|v| &v.name == name) {
+                Some(v) if v.passes_mission => (true, String::new()),
+                Some(v) if !v.passes_mission && run_passes(run, name) => (
+                    false,
+                    format!("projected to cross the error limit {}", v.crossing),
+                ),
+                Some(_) => (false, "fails over the horizon".to_string()),
+                None => (false, "not run".to_string()),
+            }
+        };
+        if passes {
+            choice = Some(name.clone());
+            break;
+        }
+        passed_over.push(format!("{name}: {why}"));
+    }
+    let cycles_per_step = choice
+        .as_ref()
+        .and_then(|c| inputs.cycles.iter().find(|(n, _)| n == c).map(|(_, v)| *v));
+    let cycles_note = match (&choice, cycles_per_step) {
+        (Some(_), Some(_)) => "from `cairn cost` on this spec (Cortex-M4F, table-weighted)".into(),
+        _ => format!("run `cairn cost --spec {}` for cycles", plan.file),
+    };
+    MissionResult {
+        seconds,
+        steps: mission_steps,
+        is_horizon,
+        variants,
+        constant_gain,
+        constant_gain_note,
+        verdict: FinalVerdict {
+            choice,
+            order,
+            cycles_per_step,
+            cycles_note,
+            passed_over,
+        },
+    }
+}
+
+fn run_passes(run: &RunResult, name: &str) -> bool {
+    run.variants
+        .iter()
+        .any(|v| v.name == name && v.verdict.passes)
+}
+
+fn constant_gain_passes(name: &str, cg: Option<&ConstantGain>, plan: &Plan) -> (bool, String) {
+    let Some(cg) = cg else {
+        return (false, "not offered for this schedule".into());
+    };
+    let Some(lane) = cg.lanes.iter().find(|l| l.name == name) else {
+        return (
+            false,
+            cg.lanes_note
+                .clone()
+                .unwrap_or_else(|| "the core's filter was not run".into()),
+        );
+    };
+    if let Some(r) = &lane.refused {
+        return (false, format!("refused at {r}"));
+    }
+    if cg.closed_loop_radius >= 1.0 {
+        return (false, "its closed loop is not stable".into());
+    }
+    let sigma = plan.thresholds.max_state_difference_sigma;
+    if lane.max_state_difference_sigma > sigma {
+        return (
+            false,
+            format!(
+                "its state differs from the f64 constant-gain run by {:.2} standard deviations > {sigma}",
+                lane.max_state_difference_sigma
+            ),
+        );
+    }
+    let limit = plan
+        .thresholds
+        .max_transient_excess
+        .unwrap_or(plan.thresholds.max_relative_error);
+    if cg.max_excess <= limit {
+        (true, String::new())
+    } else {
+        (
+            false,
+            format!(
+                "its transient raises the covariance up to {:.3e} (relative) above the optimal \
+                 one > {limit:.1e} (set [verdict] max_transient_excess to accept more)",
+                cg.max_excess
+            ),
+        )
+    }
+}
+
+fn constant_gain(
+    plan: &Plan,
+    run: &RunResult,
+    lifted: &Lifted,
+    steady: &SteadyResult,
+) -> (Option<ConstantGain>, Option<String>) {
+    let ModelPlan::Linear { f, q, .. } = &plan.model else {
+        return (
+            None,
+            Some("constant gain not offered: nonlinear model".into()),
+        );
+    };
+    let m = |rows: &Vec<Vec<f64>>| {
+        nalgebra::DMatrix::from_fn(rows.len(), rows.first().map_or(0, Vec::len), |i, j| {
+            rows[i][j]
+        })
+    };
+    let (k, prior, posterior) = (m(&steady.gain), m(&steady.prior), m(&steady.posterior));
+    let every = lifted.4;
+    let horizon_intervals = (run.steps / every).max(1) as usize;
+    let mut cg = match gain::transient(
+        lifted,
+        &k,
+        &plan.p0,
+        horizon_intervals,
+        run.dt,
+        plan.thresholds.max_relative_error,
+    ) {
+        Ok(c) => c,
+        Err(e) => return (None, Some(format!("constant gain not offered: {e}"))),
+    };
+    let sched = gain::GainSchedule {
+        f,
+        q,
+        x0: &plan.x0,
+        p0: &plan.p0,
+        steps: run.steps.min(MAX_GAIN_STEPS),
+        seed: plan.seed,
+    };
+    match gain::run_lanes(&sched, lifted, &k, &prior, &posterior) {
+        Ok(l) => cg.lanes = l,
+        Err(e) => cg.lanes_note = Some(e),
+    }
+    (Some(cg), None)
+}
