@@ -85,6 +85,10 @@ pub struct MissionResult {
 pub fn duration_words(s: f64) -> String {
     if !s.is_finite() {
         "never".into()
+    } else if s >= 1000.0 * 31_557_600.0 {
+        format!("{:.1e} years", s / 31_557_600.0)
+    } else if s >= 2.0 * 31_557_600.0 {
+        format!("{:.0} years", s / 31_557_600.0)
     } else if s >= 2.0 * 86_400.0 {
         format!("{:.1} days", s / 86_400.0)
     } else if s >= 2.0 * 3600.0 {

@@ -1,5 +1,6 @@
 //! A hand-written SVG plot: the relative covariance error of each variant
-//! against time, on a log scale, one line per variant.
+//! against time, on a log scale, one line per variant, with each variant's
+//! fitted growth extrapolated to the end of the mission (dashed).
 
 use std::fmt::Write;
 
@@ -21,6 +22,30 @@ fn esc(s: &str) -> String {
         .replace('>', "&gt;")
 }
 
+/// A variant's fitted error from the end of the horizon to the end of the
+/// mission (level: its largest observed value), as (time, error) points.
+fn extrapolation(
+    vm: &crate::mission::VariantMission,
+    run: &RunResult,
+    t0: f64,
+    t1: f64,
+) -> Vec<(f64, f64)> {
+    let Some(level) = vm.projected_error else {
+        return Vec::new();
+    };
+    let (l0, l1) = (t0.log10(), t1.log10());
+    (0..=40)
+        .map(|i| {
+            let t = 10f64.powf(l0 + (l1 - l0) * f64::from(i) / 40.0);
+            let e = match (&vm.level, &vm.fit) {
+                (None, Some(f)) => f.at(t / run.dt).max(f64::MIN_POSITIVE),
+                _ => level,
+            };
+            (t, e)
+        })
+        .collect()
+}
+
 /// The SVG text of the drift plot.
 pub fn plot(title: &str, run: &RunResult, threshold: f64) -> String {
     // Decades covered: from the smallest positive value to the largest.
@@ -34,20 +59,46 @@ pub fn plot(title: &str, run: &RunResult, threshold: f64) -> String {
             }
         }
     }
+    let mission = run.mission.as_ref();
+    for e in mission
+        .iter()
+        .flat_map(|m| m.variants.iter().filter_map(|v| v.projected_error))
+    {
+        if e.is_finite() && e > 0.0 {
+            hi = hi.max(e);
+        }
+    }
     if !lo.is_finite() {
         lo = threshold * 1e-6;
     }
     let dlo = lo.log10().floor().max(-20.0);
     let dhi = hi.log10().ceil().max(dlo + 1.0);
-    let t_end = run
+    let t_horizon = run
         .series_time
         .last()
         .copied()
         .unwrap_or(1.0)
         .max(f64::MIN_POSITIVE);
+    // A mission much longer than the horizon gets a log time axis, so the
+    // horizon's data and the extrapolation both show.
+    let t_end = mission.map_or(t_horizon, |m| m.seconds.max(t_horizon));
+    let t_first = run
+        .series_time
+        .first()
+        .copied()
+        .unwrap_or(t_horizon)
+        .max(f64::MIN_POSITIVE);
+    let log_time = t_end > 2.0 * t_horizon && t_first < t_horizon;
     let pw = WIDTH - LEFT - RIGHT;
     let ph = HEIGHT - TOP - BOTTOM;
-    let x_of = |t: f64| LEFT + pw * (t / t_end);
+    let (l0, l1) = (t_first.log10(), t_end.log10());
+    let x_of = |t: f64| {
+        if log_time {
+            LEFT + pw * ((t.max(t_first).log10() - l0) / (l1 - l0))
+        } else {
+            LEFT + pw * (t / t_end)
+        }
+    };
     let y_of = |e: f64| TOP + ph * (dhi - e.log10().clamp(dlo, dhi)) / (dhi - dlo);
 
     let mut s = String::new();
@@ -74,19 +125,45 @@ pub fn plot(title: &str, run: &RunResult, threshold: f64) -> String {
         );
         d += 1.0;
     }
-    for i in 0..=5 {
-        let t = t_end * f64::from(i) / 5.0;
-        let x = x_of(t);
+    let ticks: Vec<(f64, String)> = if log_time {
+        [
+            (1.0, "1 s"),
+            (10.0, "10 s"),
+            (60.0, "1 min"),
+            (600.0, "10 min"),
+            (3600.0, "1 h"),
+            (6.0 * 3600.0, "6 h"),
+            (86_400.0, "1 d"),
+            (864_000.0, "10 d"),
+            (8_640_000.0, "100 d"),
+            (31_557_600.0, "1 y"),
+            (315_576_000.0, "10 y"),
+        ]
+        .iter()
+        .filter(|(t, _)| *t >= t_first && *t <= t_end)
+        .map(|(t, l)| (*t, (*l).to_string()))
+        .collect()
+    } else {
+        (0..=5)
+            .map(|i| {
+                let t = t_end * f64::from(i) / 5.0;
+                let label = if t_end >= 600.0 {
+                    format!("{:.0}", t / 60.0)
+                } else {
+                    format!("{t:.3}")
+                };
+                (t, label)
+            })
+            .collect()
+    };
+    for (t, label) in &ticks {
+        let x = x_of(*t);
         let _ = writeln!(
             s,
             r##"<line x1="{x:.1}" y1="{TOP}" x2="{x:.1}" y2="{:.1}" stroke="#eee"/><text x="{x:.1}" y="{:.1}" text-anchor="middle">{}</text>"##,
             TOP + ph,
             TOP + ph + 18.0,
-            if t_end >= 600.0 {
-                format!("{:.0}", t / 60.0)
-            } else {
-                format!("{t:.3}")
-            }
+            label
         );
     }
     let _ = writeln!(
@@ -94,8 +171,29 @@ pub fn plot(title: &str, run: &RunResult, threshold: f64) -> String {
         r#"<text x="{:.1}" y="{:.1}" text-anchor="middle">time [{}]</text>"#,
         LEFT + pw / 2.0,
         HEIGHT - 16.0,
-        if t_end >= 600.0 { "min" } else { "s" }
+        if log_time {
+            "log scale; dashed beyond the horizon: fitted growth"
+        } else if t_end >= 600.0 {
+            "min"
+        } else {
+            "s"
+        }
     );
+    if let Some(m) = mission
+        && t_end > t_horizon
+    {
+        let xh = x_of(t_horizon);
+        let _ = writeln!(
+            s,
+            r##"<line x1="{xh:.1}" y1="{TOP}" x2="{xh:.1}" y2="{:.1}" stroke="#999"/><text x="{:.1}" y="{:.1}" font-size="10">horizon</text><text x="{:.1}" y="{:.1}" font-size="10" text-anchor="end">mission end ({})</text>"##,
+            TOP + ph,
+            xh + 3.0,
+            TOP + 12.0,
+            LEFT + pw - 3.0,
+            TOP + 12.0,
+            esc(&crate::mission::duration_words(m.seconds))
+        );
+    }
     // Threshold.
     let yt = y_of(threshold);
     let _ = writeln!(
@@ -125,6 +223,31 @@ pub fn plot(title: &str, run: &RunResult, threshold: f64) -> String {
                 r#"<polyline fill="none" stroke="{colour}" stroke-width="1.6"{dash} points="{}"/>"#,
                 pts.trim_end()
             );
+        }
+        if let Some(vm) = mission.and_then(|m| m.variants.get(i))
+            && t_end > t_horizon
+        {
+            let ext = extrapolation(vm, run, t_horizon, t_end);
+            let mut pts = String::new();
+            for (t, e) in ext {
+                if e.is_finite() && e > 0.0 {
+                    let _ = write!(pts, "{:.1},{:.1} ", x_of(t), y_of(e));
+                }
+            }
+            if !pts.is_empty() {
+                let _ = writeln!(
+                    s,
+                    r#"<polyline fill="none" stroke="{colour}" stroke-width="1.2" stroke-dasharray="7 4" opacity="0.8" points="{}"/>"#,
+                    pts.trim_end()
+                );
+            }
+            if let Some(tc) = vm.crossing_s.filter(|t| *t > t_horizon && *t <= t_end) {
+                let _ = writeln!(
+                    s,
+                    r#"<circle cx="{:.1}" cy="{yt:.1}" r="4" fill="none" stroke="{colour}" stroke-width="1.6"/>"#,
+                    x_of(tc)
+                );
+            }
         }
         let ly = TOP + 16.0 + 20.0 * i as f64;
         let lx = WIDTH - RIGHT + 50.0;

@@ -78,6 +78,16 @@ fn mission(o: &mut String, m: &crate::mission::MissionResult, limit: f64) {
         "  (fits: ordinary least squares of the per-bucket largest error on a, a + b k or a + b sqrt(k), \
 k in steps, chosen by Schwarz's criterion; the first 10% of the horizon is left out)"
     );
+    if m.variants
+        .iter()
+        .any(|v| v.level.is_none() && v.fit.is_some_and(|f| f.r_squared < 0.5))
+    {
+        let _ = writeln!(
+            o,
+            "  (R^2 below 0.5: the bucket maxima scatter more than they trend; the projection \
+takes the fitted trend as it stands, the end value is never below the largest error seen)"
+        );
+    }
     if let Some(why) = m.variants.iter().find_map(|v| v.level.as_ref()) {
         let _ = writeln!(o, "  * {why}.");
     }
