@@ -423,7 +423,7 @@ impl<T: Scalar, const N: usize> UdKalman<T, N> {
     }
 
     fn commit(&mut self, x: SVector<T, N>, ud: SMatrix<T, N, N>) -> Result<(), FilterError> {
-        if !x.as_slice().iter().all(|v| v.finite()) {
+        if !check::all_finite(x.as_slice()) {
             return Err(FilterError::NonFinite(Operand::State));
         }
         for j in 0..N {
@@ -432,7 +432,7 @@ impl<T: Scalar, const N: usize> UdKalman<T, N> {
                 return Err(FilterError::CovarianceLost { index: idx(j) });
             }
         }
-        if !ud.as_slice().iter().all(|v| v.finite()) {
+        if !check::all_finite(ud.as_slice()) {
             return Err(FilterError::CovarianceLost { index: 0 });
         }
         self.x = x;
