@@ -34,7 +34,8 @@ pub struct VariantMission {
     pub fit: Option<Fit>,
     /// Why the error is taken as level and the horizon as enough, if it is.
     pub level: Option<String>,
-    /// Its relative covariance error projected to the end of the mission.
+    /// Its relative covariance error projected to the end of the mission
+    /// (never below the largest over the last half of the horizon).
     pub projected_error: Option<f64>,
     /// When its relative error would cross the threshold, s from the start
     /// (`None`: never).
@@ -141,7 +142,19 @@ fn variant_mission(
         ),
         _ => None,
     };
-    let observed = v.figures.max_relative_error;
+    // The level the error holds late in the run: the largest value over
+    // the last half of the horizon (the start-up is judged by the horizon
+    // verdict already).
+    let observed = series[series.len() / 2..]
+        .iter()
+        .copied()
+        .filter(|e| e.is_finite())
+        .fold(f64::NAN, f64::max);
+    let observed = if observed.is_nan() {
+        v.figures.max_relative_error
+    } else {
+        observed
+    };
     // Where the error first exceeded the threshold within the horizon.
     let first_over = series
         .iter()

@@ -6,10 +6,10 @@ use std::fmt::Write;
 
 use crate::run::RunResult;
 
-const WIDTH: f64 = 900.0;
+const WIDTH: f64 = 960.0;
 const HEIGHT: f64 = 480.0;
 const LEFT: f64 = 80.0;
-const RIGHT: f64 = 190.0;
+const RIGHT: f64 = 230.0;
 const TOP: f64 = 40.0;
 const BOTTOM: f64 = 60.0;
 const COLOURS: [&str; 8] = [
@@ -37,8 +37,9 @@ fn extrapolation(
     (0..=40)
         .map(|i| {
             let t = 10f64.powf(l0 + (l1 - l0) * f64::from(i) / 40.0);
+            // A shrinking fit is drawn as the largest error seen: no growth.
             let e = match (&vm.level, &vm.fit) {
-                (None, Some(f)) => f.at(t / run.dt).max(f64::MIN_POSITIVE),
+                (None, Some(f)) if f.b > 0.0 => f.at(t / run.dt).max(f64::MIN_POSITIVE),
                 _ => level,
             };
             (t, e)
@@ -250,8 +251,12 @@ pub fn plot(title: &str, run: &RunResult, threshold: f64) -> String {
             }
         }
         let ly = TOP + 16.0 + 20.0 * i as f64;
-        let lx = WIDTH - RIGHT + 50.0;
-        let mark = if v.verdict.passes { "pass" } else { "FAIL" };
+        let lx = WIDTH - RIGHT + 48.0;
+        let passes = match mission.and_then(|m| m.variants.get(i)) {
+            Some(vm) => vm.passes_mission,
+            None => v.verdict.passes,
+        };
+        let mark = if passes { "pass" } else { "FAIL" };
         let _ = writeln!(
             s,
             r#"<line x1="{lx}" y1="{ly}" x2="{:.1}" y2="{ly}" stroke="{colour}" stroke-width="2"{dash}/><text x="{:.1}" y="{:.1}">{} ({mark})</text>"#,
