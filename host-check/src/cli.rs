@@ -118,6 +118,11 @@ pub struct Output {
     /// (overrides the spec's [mission]; default: the horizon).
     #[arg(long, value_name = "LENGTH")]
     pub mission: Option<String>,
+    /// Also estimate the chosen variant's cycles per step: builds
+    /// on-target's cost probe and traces it under QEMU, as `cairn cost
+    /// --spec` does (slow; f32 conventional and Joseph only).
+    #[arg(long)]
+    pub cycles: bool,
 }
 
 /// `cairn check`.
@@ -326,7 +331,35 @@ fn check(
             ModeArg::EndToEnd => Mode::EndToEnd,
         }),
     };
-    let result = run::run(&plan, opts).map_err(bad)?;
+    let mut result = run::run(&plan, opts).map_err(bad)?;
+    if out.cycles
+        && let Some(m) = result.mission.as_mut()
+    {
+        let estimate = match m
+            .verdict
+            .choice
+            .as_deref()
+            .and_then(crate::mission::probe_form)
+        {
+            Some(form) => {
+                let mut priced = plan.clone();
+                priced.flash.form = form.to_string();
+                let wanted = crate::cost::plan_probes(&priced);
+                let config = crate::cost::CostConfig {
+                    rates: wanted.rates,
+                    demo_rates: false,
+                    sizes: wanted.sizes,
+                    ..crate::cost::CostConfig::default()
+                };
+                crate::cost::estimate(&config).map_err(|e| format!("no cycle estimate: {e}"))
+            }
+            None => Err(format!(
+                "no cycle estimate: the cost probes price f32 conventional and Joseph only, not {}",
+                m.verdict.choice.as_deref().unwrap_or("nothing")
+            )),
+        };
+        crate::mission::attach_cycles(m, estimate.as_ref().map_err(Clone::clone), plan.step_hz);
+    }
     if out.quiet {
         println!(
             "{}: flash {} {}; cheapest passing: {}; for the mission: {}",

@@ -216,8 +216,6 @@ pub struct MissionInputs<'a> {
     pub lifted: Option<&'a Lifted>,
     /// Why there is none.
     pub lifted_note: Option<&'a str>,
-    /// Cycles per step by variant name, when a cost figure applies.
-    pub cycles: &'a [(String, f64)],
 }
 
 /// Analyses a finished run for the mission the spec (or the command line)
@@ -286,13 +284,11 @@ pub fn analyze(inputs: &MissionInputs<'_>, run: &RunResult) -> MissionResult {
         }
         passed_over.push(format!("{name}: {why}"));
     }
-    let cycles_per_step = choice
-        .as_ref()
-        .and_then(|c| inputs.cycles.iter().find(|(n, _)| n == c).map(|(_, v)| *v));
-    let cycles_note = match (&choice, cycles_per_step) {
-        (Some(_), Some(_)) => "from `cairn cost` on this spec (Cortex-M4F, table-weighted)".into(),
-        _ => format!("run `cairn cost --spec {}` for cycles", plan.file),
-    };
+    let cycles_per_step = None;
+    let cycles_note = format!(
+        "run `cairn cost --spec {}` (or `cairn check --cycles`) for cycles",
+        plan.file
+    );
     MissionResult {
         seconds,
         steps: mission_steps,
@@ -307,6 +303,52 @@ pub fn analyze(inputs: &MissionInputs<'_>, run: &RunResult) -> MissionResult {
             cycles_note,
             passed_over,
         },
+    }
+}
+
+/// The cost probes' form for a variant name, when they price it (f32
+/// conventional and Joseph only).
+pub fn probe_form(name: &str) -> Option<&'static str> {
+    match name {
+        "f32 conventional" => Some("conventional"),
+        "f32 joseph" => Some("joseph"),
+        _ => None,
+    }
+}
+
+/// Cycles per filter step from a cost report whose probes and rates came
+/// from this spec ([`crate::cost::plan_probes`]): the sum over operations
+/// of rate x Cortex-M4F cycles per call, over the step rate.
+pub fn cycles_per_step(report: &crate::cost::CostReport, step_hz: f64) -> Option<f64> {
+    let per_s: f64 = report
+        .operations
+        .iter()
+        .filter_map(|o| o.rate_hz.map(|r| r * o.m4_cycles))
+        .sum();
+    (per_s > 0.0 && step_hz > 0.0).then(|| per_s / step_hz)
+}
+
+/// Puts a cost estimate into the verdict (or says why none applies).
+pub fn attach_cycles(
+    m: &mut MissionResult,
+    report: Result<&crate::cost::CostReport, String>,
+    step_hz: f64,
+) {
+    let v = &mut m.verdict;
+    match report {
+        Ok(r) => match cycles_per_step(r, step_hz) {
+            Some(c) => {
+                v.cycles_per_step = Some(c);
+                v.cycles_note = format!(
+                    "Cortex-M4F at zero wait states, from QEMU's executed instructions weighted by \
+                     the published cycle table; {:.3}% of a {} MHz core",
+                    100.0 * c * step_hz / (r.clock_mhz * 1e6),
+                    r.clock_mhz
+                );
+            }
+            None => v.cycles_note = "the cost report priced no operation at a rate".into(),
+        },
+        Err(e) => v.cycles_note = e,
     }
 }
 
@@ -406,4 +448,58 @@ fn constant_gain(
         Err(e) => cg.lanes_note = Some(e),
     }
     (Some(cg), None)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::cost::{CostReport, OperationCost};
+
+    fn op(name: &str, cycles: f64, rate_hz: Option<f64>) -> OperationCost {
+        OperationCost {
+            name: name.into(),
+            calls: 10,
+            instructions: cycles,
+            m4_cycles: cycles,
+            m7_cycles: cycles,
+            fp_total: crate::cost::estimate::FpOps::default(),
+            bound: 0.0,
+            rate_hz,
+            hot: Vec::new(),
+            callees: Vec::new(),
+            soft_share: 0.0,
+            mix: [0.0; 6],
+        }
+    }
+
+    #[test]
+    fn cycles_per_step_weights_each_operation_by_its_rate() {
+        // A predict of 300 cycles every 50 Hz step and an update of 120
+        // cycles at 10 Hz: 300 + 120 x 10/50 = 324 cycles per step
+        // (arithmetic); an operation without a rate is left out.
+        let report = CostReport {
+            elf: "probe.elf".into(),
+            clock_mhz: 100.0,
+            operations: vec![
+                op("linear2_predict", 300.0, Some(50.0)),
+                op("linear2_update1_joseph", 120.0, Some(10.0)),
+                op("pose_predict", 5000.0, None),
+            ],
+            warnings: Vec::new(),
+        };
+        let c = cycles_per_step(&report, 50.0).expect("priced");
+        assert!((c - 324.0).abs() < 1e-9, "{c}");
+        assert_eq!(probe_form("f32 joseph"), Some("joseph"));
+        assert_eq!(probe_form("f32 u-d"), None);
+        assert_eq!(probe_form("f64 conventional"), None);
+    }
+
+    #[test]
+    fn the_cost_order_puts_every_f32_form_first() {
+        let order = cost_order();
+        assert_eq!(order[0], "f32 constant gain");
+        assert_eq!(order[3], "f32 u-d");
+        assert_eq!(order[4], "f64 constant gain");
+        assert_eq!(order.len(), 8);
+    }
 }

@@ -573,7 +573,6 @@ pub fn run(plan: &Plan, opts: RunOptions) -> Result<RunResult, RunError> {
             plan,
             lifted: lifted.as_ref(),
             lifted_note: result.steady_note.as_deref(),
-            cycles: &[],
         },
         &result,
     );
