@@ -115,7 +115,7 @@ pub struct Output {
     #[arg(long)]
     pub no_progress: bool,
     /// The mission the filter must last, e.g. 30d, 12h, 90m or 3600s
-    /// (overrides the spec's [mission]; default: the horizon).
+    /// (overrides the spec's mission table; default: the horizon).
     #[arg(long, value_name = "LENGTH")]
     pub mission: Option<String>,
     /// Also estimate the chosen variant's cycles per step: builds

@@ -87,7 +87,7 @@ fn largest_generalised(a: &DMatrix<f64>, b: &DMatrix<f64>) -> Option<f64> {
 /// for the other (the Joseph expression holds for any gain: e.g. Grewal &
 /// Andrews, *Kalman Filtering: Theory and Practice*; common practice).
 /// Runs the horizon's intervals at least, then on until the excess has
-/// settled within the threshold, at most [`MAX_INTERVALS`].
+/// settled within the threshold, at most 200 000 intervals.
 ///
 /// # Errors
 /// A message when the optimal covariance stops being positive definite or
