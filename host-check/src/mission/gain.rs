@@ -59,6 +59,15 @@ pub struct GainLaneResult {
     /// Largest state difference from the f64 constant-gain run, in steady
     /// posterior standard deviations (largest over states).
     pub max_state_difference_sigma: f64,
+    /// The same, largest in each of the run's plot buckets.
+    #[serde(skip)]
+    pub state_series: Vec<f64>,
+    /// Time of each bucket's end, s.
+    #[serde(skip)]
+    pub series_time: Vec<f64>,
+    /// When the state difference is projected to cross its threshold, s
+    /// (`None`: never; filled in by the mission analysis).
+    pub crossing_s: Option<f64>,
 }
 
 fn rows(m: &DMatrix<f64>) -> Vec<Vec<f64>> {
@@ -259,6 +268,8 @@ pub struct GainSchedule<'a> {
     pub steps: u64,
     /// Seed of the synthetic noise.
     pub seed: u64,
+    /// Filter step rate, Hz.
+    pub step_hz: f64,
 }
 
 /// Runs the core's `SteadyGain` in f32 and f64 on a seeded simulation of
@@ -295,6 +306,9 @@ pub fn run_lanes(
     }
     let mut refused: Vec<Option<String>> = vec![None; lanes.len()];
     let mut max_sigma = vec![0.0_f64; lanes.len()];
+    let buckets = crate::run::metrics::BUCKETS;
+    let mut series = vec![vec![f64::NAN; buckets]; lanes.len()];
+    let dt_step = 1.0 / sched.step_hz;
     let sd: Vec<f64> = (0..n).map(|i| steady_posterior[(i, i)].sqrt()).collect();
     let mut noise = Noise::new(sched.seed ^ 0x5EED_C0A5_7A27_0001);
     let mut truth = DVector::from_column_slice(sched.x0) + noise.correlated(&sqrt_factor(sched.p0));
@@ -302,6 +316,7 @@ pub fn run_lanes(
     let rf = sqrt_factor(r);
     let (mut x, mut x_ref) = (vec![0.0; n], vec![0.0; n]);
     for k in 1..=sched.steps {
+        let bucket = (((k - 1) as u128 * buckets as u128) / u128::from(sched.steps)) as usize;
         truth = sched.f * &truth + noise.correlated(&qf);
         let measure = k % every == 0;
         let z: Vec<f64> = if measure {
@@ -331,10 +346,16 @@ pub fn run_lanes(
         for (i, (_, lane)) in lanes.iter().enumerate() {
             if let Ok(lane) = lane {
                 lane.state(&mut x);
+                let mut step = 0.0_f64;
                 for j in 0..n {
                     if sd[j] > 0.0 {
-                        max_sigma[i] = max_sigma[i].max((x[j] - x_ref[j]).abs() / sd[j]);
+                        step = step.max((x[j] - x_ref[j]).abs() / sd[j]);
                     }
+                }
+                max_sigma[i] = max_sigma[i].max(step);
+                let b = &mut series[i][bucket.min(buckets - 1)];
+                if b.is_nan() || step > *b {
+                    *b = step;
                 }
             }
         }
@@ -350,6 +371,11 @@ pub fn run_lanes(
                 Err(e) => Some(format!("start: {e}")),
             },
             max_state_difference_sigma: max_sigma[i],
+            state_series: std::mem::take(&mut series[i]),
+            series_time: (1..=buckets)
+                .map(|b| (b as f64 * sched.steps as f64 / buckets as f64).ceil() * dt_step)
+                .collect(),
+            crossing_s: None,
         })
         .collect())
 }

@@ -37,8 +37,13 @@ pub struct VariantMission {
     /// Its relative covariance error projected to the end of the mission
     /// (never below the largest over the last half of the horizon).
     pub projected_error: Option<f64>,
-    /// When its relative error would cross the threshold, s from the start
-    /// (`None`: never).
+    /// The growth model fitted to its state difference from the f64 run
+    /// (in standard deviations), when states are compared.
+    pub state_fit: Option<Fit>,
+    /// That difference projected to the end of the mission.
+    pub projected_state_sigma: Option<f64>,
+    /// When its relative error or its state difference would cross its
+    /// threshold, s from the start, whichever comes first (`None`: never).
     pub crossing_s: Option<f64>,
     /// The crossing in words ("never", "after 3.2 days", "within the horizon").
     pub crossing: String,
@@ -72,6 +77,8 @@ pub struct MissionResult {
     pub steps: f64,
     /// `true` when no mission was stated (the horizon is the mission).
     pub is_horizon: bool,
+    /// The horizon the projections start from, s.
+    pub horizon_seconds: f64,
     /// Per variant, in the run's order.
     pub variants: Vec<VariantMission>,
     /// The constant-gain option, when offered.
@@ -114,80 +121,155 @@ pub fn cost_order() -> Vec<String> {
     v
 }
 
-fn variant_mission(
-    v: &crate::run::VariantResult,
-    run: &RunResult,
-    mission_steps: f64,
+/// A fitted series projected to the mission: (fit, value at the end,
+/// crossing step).
+struct Projection {
+    fit: Option<Fit>,
+    flat_level: bool,
+    at_end: f64,
+    crossing_step: Option<f64>,
+}
+
+/// Fits `series` (bucket maxima at `steps`), skipping the start-up share,
+/// and projects it: the end value is never below the largest value over the
+/// last half of the horizon; a level (forced or fitted on a flat last half)
+/// never crosses.
+fn project(
+    steps: &[f64],
+    series: &[f64],
     limit: f64,
-    steady_reason: Option<&str>,
-) -> VariantMission {
-    let dt = run.dt;
-    let steps: Vec<f64> = run.series_time.iter().map(|t| (t / dt).round()).collect();
-    let series = &v.figures.series;
+    mission_steps: f64,
+    run_steps: f64,
+    level_forced: bool,
+) -> Projection {
     let skip = (series.len() as f64 * SKIP_SHARE) as usize;
-    let stopped = v.figures.failure.is_some();
-    let fit = if stopped {
-        None
-    } else {
-        fit::fit(&steps[skip..], &series[skip..])
-    };
-    let flat = !stopped && fit::flat_last_half(&steps, series, FLAT_TOLERANCE, limit * 1e-3);
-    let level = match (steady_reason, fit) {
-        _ if stopped => None,
-        (Some(why), _) if flat => Some(why.to_string()),
-        (_, Some(f)) if flat && f.growth == Growth::Level => Some(
-            "error is level: flat over the last half of the horizon and best fitted by a \
-             constant; no growth mechanism seen"
-                .to_string(),
-        ),
-        _ => None,
-    };
-    // The level the error holds late in the run: the largest value over
-    // the last half of the horizon (the start-up is judged by the horizon
-    // verdict already).
-    let observed = series[series.len() / 2..]
+    let fit = fit::fit(&steps[skip..], &series[skip..]);
+    let flat = fit::flat_last_half(steps, series, FLAT_TOLERANCE, limit * 1e-3);
+    let late = series[series.len() / 2..]
         .iter()
         .copied()
         .filter(|e| e.is_finite())
         .fold(f64::NAN, f64::max);
-    let observed = if observed.is_nan() {
-        v.figures.max_relative_error
-    } else {
-        observed
+    let late = if late.is_nan() { 0.0 } else { late };
+    let flat_level = flat && fit.is_some_and(|f| f.growth == Growth::Level);
+    match fit {
+        Some(f) if !(flat_level || level_forced && flat) => Projection {
+            fit,
+            flat_level,
+            at_end: f.at(mission_steps).max(late),
+            crossing_step: f.crossing(limit).map(|k| k.max(run_steps)),
+        },
+        _ => Projection {
+            fit,
+            flat_level,
+            at_end: late,
+            crossing_step: None,
+        },
+    }
+}
+
+fn variant_mission(
+    v: &crate::run::VariantResult,
+    run: &RunResult,
+    mission_steps: f64,
+    thresholds: &crate::spec::Thresholds,
+    steady_reason: Option<&str>,
+) -> VariantMission {
+    let limit = thresholds.max_relative_error;
+    let dt = run.dt;
+    let steps: Vec<f64> = run.series_time.iter().map(|t| (t / dt).round()).collect();
+    let stopped = v.figures.failure.is_some();
+    let run_steps = run.steps as f64;
+    let cov = (!stopped).then(|| {
+        project(
+            &steps,
+            &v.figures.series,
+            limit,
+            mission_steps,
+            run_steps,
+            steady_reason.is_some(),
+        )
+    });
+    let state = (!stopped && v.figures.states_compared).then(|| {
+        project(
+            &steps,
+            &v.figures.state_series,
+            thresholds.max_state_difference_sigma,
+            mission_steps,
+            run_steps,
+            false,
+        )
+    });
+    let level = match &cov {
+        Some(p) if p.crossing_step.is_none() && p.fit.is_some() => {
+            steady_reason.map(str::to_string).or_else(|| {
+                p.flat_level.then(|| {
+                    "covariance error is level: flat over the last half of the horizon and best \
+                     fitted by a constant; no growth mechanism seen"
+                        .to_string()
+                })
+            })
+        }
+        _ => None,
     };
-    // Where the error first exceeded the threshold within the horizon.
-    let first_over = series
-        .iter()
-        .zip(&run.series_time)
-        .find(|(e, _)| e.is_finite() && **e > limit)
-        .map(|(_, t)| *t);
-    let (projected_error, crossing_s) = if !v.verdict.passes {
-        let at = first_over.or(v.figures.failure.as_ref().map(|f| f.time_s));
-        (None, at.or(Some(0.0)))
-    } else if level.is_some() {
-        (Some(observed), None)
-    } else if let Some(f) = fit {
-        let at_end = f.at(mission_steps).max(observed);
-        let crossing = f
-            .crossing(limit)
-            .map(|k| k.max(run.steps as f64) * dt)
-            .filter(|_| observed <= limit);
-        (Some(at_end), crossing)
+    // Where the error first exceeded a threshold within the horizon.
+    let first_over = |series: &[f64], lim: f64| {
+        series
+            .iter()
+            .zip(&run.series_time)
+            .find(|(e, _)| e.is_finite() && **e > lim)
+            .map(|(_, t)| *t)
+    };
+    let (crossing_s, crossing_what) = if v.verdict.passes {
+        let c = cov
+            .as_ref()
+            .and_then(|p| p.crossing_step)
+            .map(|k| (k * dt, "covariance"));
+        let s = state
+            .as_ref()
+            .and_then(|p| p.crossing_step)
+            .map(|k| (k * dt, "state"));
+        match (c, s) {
+            (Some(a), Some(b)) => Some(if a.0 <= b.0 { a } else { b }),
+            (a, b) => a.or(b),
+        }
+        .map_or((None, ""), |(t, w)| (Some(t), w))
     } else {
-        (Some(observed), None)
+        let at = first_over(&v.figures.series, limit)
+            .or_else(|| {
+                first_over(
+                    &v.figures.state_series,
+                    thresholds.max_state_difference_sigma,
+                )
+            })
+            .or(v.figures.failure.as_ref().map(|f| f.time_s));
+        (at.or(Some(0.0)), "")
     };
     let mission_s = mission_steps * dt;
     let crossing = match crossing_s {
         _ if !v.verdict.passes => "fails within the horizon".to_string(),
         None => "never".to_string(),
+        Some(s) if crossing_what == "state" => {
+            format!("after {} (state)", duration_words(s))
+        }
         Some(s) => format!("after {}", duration_words(s)),
     };
     let passes_mission = v.verdict.passes && crossing_s.is_none_or(|s| s > mission_s);
     VariantMission {
         name: v.name.clone(),
-        fit,
+        fit: cov.as_ref().and_then(|p| p.fit),
         level,
-        projected_error,
+        projected_error: v
+            .verdict
+            .passes
+            .then(|| cov.as_ref().map(|p| p.at_end))
+            .flatten(),
+        state_fit: state.as_ref().and_then(|p| p.fit),
+        projected_state_sigma: v
+            .verdict
+            .passes
+            .then(|| state.as_ref().map(|p| p.at_end))
+            .flatten(),
         crossing_s,
         crossing,
         passes_mission,
@@ -200,10 +282,12 @@ fn steady_reason(steady: Option<&SteadyResult>) -> Option<String> {
     let d = s.reference_distance?;
     (d <= STEADY_TOLERANCE).then(|| {
         format!(
-            "error is level: no growth mechanism. The model is time-invariant and the reference \
-             sits on the Riccati steady state (relative distance {d:.1e}), so every later step \
-             repeats the same arithmetic on the same covariance: rounding is re-injected at a \
-             fixed level and the stable closed loop forgets it; the horizon run is enough"
+            "covariance error is level: no growth mechanism. The model is time-invariant and the \
+             reference sits on the Riccati steady state (relative distance {d:.1e}), so every \
+             later step repeats the same arithmetic on the same covariance: rounding is \
+             re-injected at a fixed level and the stable closed loop forgets it; the horizon run \
+             is enough for the covariance (the state difference, which follows the trajectory, \
+             is fitted on its own)"
         )
     })
 }
@@ -222,7 +306,6 @@ pub struct MissionInputs<'a> {
 /// states.
 pub fn analyze(inputs: &MissionInputs<'_>, run: &RunResult) -> MissionResult {
     let plan = inputs.plan;
-    let limit = plan.thresholds.max_relative_error;
     let horizon_s = run.steps as f64 * run.dt;
     let (seconds, is_horizon) = match plan.thresholds.mission_seconds {
         Some(s) => (s, false),
@@ -233,7 +316,7 @@ pub fn analyze(inputs: &MissionInputs<'_>, run: &RunResult) -> MissionResult {
     let variants: Vec<VariantMission> = run
         .variants
         .iter()
-        .map(|v| variant_mission(v, run, mission_steps, limit, reason.as_deref()))
+        .map(|v| variant_mission(v, run, mission_steps, &plan.thresholds, reason.as_deref()))
         .collect();
 
     // The constant-gain option.
@@ -266,14 +349,13 @@ pub fn analyze(inputs: &MissionInputs<'_>, run: &RunResult) -> MissionResult {
     let mut choice = None;
     for name in &order {
         let (passes, why) = if name.ends_with("constant gain") {
-            constant_gain_passes(name, constant_gain.as_ref(), plan)
+            constant_gain_passes(name, constant_gain.as_ref(), plan, seconds)
         } else {
             match variants.iter().find(|v| &v.name == name) {
                 Some(v) if v.passes_mission => (true, String::new()),
-                Some(v) if !v.passes_mission && run_passes(run, name) => (
-                    false,
-                    format!("projected to cross the error limit {}", v.crossing),
-                ),
+                Some(v) if !v.passes_mission && run_passes(run, name) => {
+                    (false, format!("projected to cross a limit {}", v.crossing))
+                }
                 Some(_) => (false, "fails over the horizon".to_string()),
                 None => (false, "not run".to_string()),
             }
@@ -293,6 +375,7 @@ pub fn analyze(inputs: &MissionInputs<'_>, run: &RunResult) -> MissionResult {
         seconds,
         steps: mission_steps,
         is_horizon,
+        horizon_seconds: horizon_s,
         variants,
         constant_gain,
         constant_gain_note,
@@ -358,7 +441,12 @@ fn run_passes(run: &RunResult, name: &str) -> bool {
         .any(|v| v.name == name && v.verdict.passes)
 }
 
-fn constant_gain_passes(name: &str, cg: Option<&ConstantGain>, plan: &Plan) -> (bool, String) {
+fn constant_gain_passes(
+    name: &str,
+    cg: Option<&ConstantGain>,
+    plan: &Plan,
+    mission_s: f64,
+) -> (bool, String) {
     let Some(cg) = cg else {
         return (false, "not offered for this schedule".into());
     };
@@ -377,6 +465,16 @@ fn constant_gain_passes(name: &str, cg: Option<&ConstantGain>, plan: &Plan) -> (
         return (false, "its closed loop is not stable".into());
     }
     let sigma = plan.thresholds.max_state_difference_sigma;
+    if let Some(t) = lane.crossing_s.filter(|t| *t <= mission_s) {
+        return (
+            false,
+            format!(
+                "its state is projected to differ from the f64 constant-gain run by more than \
+                 {sigma} standard deviations after {}",
+                duration_words(t)
+            ),
+        );
+    }
     if lane.max_state_difference_sigma > sigma {
         return (
             false,
@@ -442,9 +540,31 @@ fn constant_gain(
         p0: &plan.p0,
         steps: run.steps.min(MAX_GAIN_STEPS),
         seed: plan.seed,
+        step_hz: plan.step_hz,
     };
+    let mission_steps = (plan.thresholds.mission_seconds.unwrap_or(0.0) * plan.step_hz)
+        .max(run.steps as f64)
+        .round();
     match gain::run_lanes(&sched, lifted, &k, &prior, &posterior) {
-        Ok(l) => cg.lanes = l,
+        Ok(mut lanes) => {
+            for l in &mut lanes {
+                let steps: Vec<f64> = l
+                    .series_time
+                    .iter()
+                    .map(|t| (t * plan.step_hz).round())
+                    .collect();
+                let p = project(
+                    &steps,
+                    &l.state_series,
+                    plan.thresholds.max_state_difference_sigma,
+                    mission_steps,
+                    l.steps as f64,
+                    false,
+                );
+                l.crossing_s = p.crossing_step.map(|k| k / plan.step_hz);
+            }
+            cg.lanes = lanes;
+        }
         Err(e) => cg.lanes_note = Some(e),
     }
     (Some(cg), None)

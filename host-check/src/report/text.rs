@@ -44,10 +44,19 @@ fn mission(o: &mut String, m: &crate::mission::MissionResult, limit: f64) {
         m.steps,
         sci(limit)
     );
+    let horizon_s = m.horizon_seconds;
+    if m.seconds > 100.0 * horizon_s {
+        let _ = writeln!(
+            o,
+            "  The mission is {:.0} times the horizon: a projection assumes the growth seen goes on, \
+and misses growth that starts later; confirm it with a longer horizon.",
+            m.seconds / horizon_s
+        );
+    }
     let _ = writeln!(
         o,
-        "  {:<18} {:<12} {:>10} {:>10} {:>8} {:>10} {:>12}  mission",
-        "variant", "growth", "a", "b", "R^2", "at end", "crossing"
+        "  {:<18} {:<12} {:>10} {:>10} {:>6} {:>10} {:>10} {:>14}  mission",
+        "variant", "growth", "a", "b", "R^2", "at end", "state sd", "crossing"
     );
     for v in &m.variants {
         let (g, a, b, r2) = match &v.fit {
@@ -62,13 +71,14 @@ fn mission(o: &mut String, m: &crate::mission::MissionResult, limit: f64) {
         let g = if v.level.is_some() { "level*" } else { g };
         let _ = writeln!(
             o,
-            "  {:<18} {:<12} {:>10} {:>10} {:>8} {:>10} {:>12}  {}",
+            "  {:<18} {:<12} {:>10} {:>10} {:>6} {:>10} {:>10} {:>14}  {}",
             v.name,
             g,
             a,
             b,
             r2,
             v.projected_error.map_or("-".into(), sci),
+            v.projected_state_sigma.map_or("-".into(), sci),
             v.crossing.trim_start_matches("after "),
             if v.passes_mission { "PASS" } else { "FAIL" }
         );
@@ -76,7 +86,8 @@ fn mission(o: &mut String, m: &crate::mission::MissionResult, limit: f64) {
     let _ = writeln!(
         o,
         "  (fits: ordinary least squares of the per-bucket largest error on a, a + b k or a + b sqrt(k), \
-k in steps, chosen by Schwarz's criterion; the first 10% of the horizon is left out)"
+k in steps, chosen by Schwarz's criterion; the first 10% of the horizon is left out; 'state sd' is the \
+state difference from the f64 run in standard deviations, projected the same way)"
     );
     if m.variants
         .iter()
@@ -117,10 +128,14 @@ takes the fitted trend as it stands, the end value is never below the largest er
             for l in &cg.lanes {
                 let _ = writeln!(
                     o,
-                    "  {:<18} {} steps; state differs from the f64 run by {} standard deviations{}",
+                    "  {:<18} {} steps; state differs from the f64 run by {} standard deviations{}{}",
                     l.name,
                     l.steps,
                     sci(l.max_state_difference_sigma),
+                    l.crossing_s.map_or(String::new(), |t| format!(
+                        "; projected past the limit after {}",
+                        duration_words(t)
+                    )),
                     l.refused
                         .as_ref()
                         .map_or(String::new(), |r| format!("; REFUSED at {r}"))

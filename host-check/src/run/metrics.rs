@@ -67,6 +67,10 @@ pub struct Tracker {
     /// Decimated relative error: the largest in each bucket.
     #[serde(skip)]
     pub series: Vec<f64>,
+    /// Decimated state difference from the f64 run in standard
+    /// deviations: the largest in each bucket (NaN where not compared).
+    #[serde(skip)]
+    pub state_series: Vec<f64>,
 }
 
 impl Tracker {
@@ -93,6 +97,18 @@ impl Tracker {
             steady_distance: None,
             last_posterior: None,
             series: vec![f64::NAN; BUCKETS],
+            state_series: vec![f64::NAN; BUCKETS],
+        }
+    }
+
+    /// Records a step's state difference in standard deviations.
+    pub fn state_difference(&mut self, bucket: usize, sigma: f64) {
+        if sigma > self.max_state_difference_sigma || sigma.is_nan() {
+            self.max_state_difference_sigma = if sigma.is_nan() { f64::INFINITY } else { sigma };
+        }
+        let b = &mut self.state_series[bucket.min(BUCKETS - 1)];
+        if b.is_nan() || sigma > *b {
+            *b = sigma;
         }
     }
 

@@ -452,15 +452,17 @@ pub fn run(plan: &Plan, opts: RunOptions) -> Result<RunResult, RunError> {
                 if pose_model.is_some() {
                     dx[2] = wrap_angle(dx[2]);
                 }
+                let mut step_sigma = 0.0_f64;
                 for i in 0..n {
                     let d = dx[i].abs();
                     let t = &mut r.tracker;
                     t.max_state_difference[i] = t.max_state_difference[i].max(d);
                     let sd = pr[(i, i)].sqrt();
                     if sd > 0.0 {
-                        t.max_state_difference_sigma = t.max_state_difference_sigma.max(d / sd);
+                        step_sigma = step_sigma.max(d / sd);
                     }
                 }
+                r.tracker.state_difference(bucket, step_sigma);
             }
         }
         for r in lanes.iter_mut().filter(|r| r.tracker.stopped()) {
