@@ -45,7 +45,9 @@ pub struct VariantMission {
     /// When its relative error or its state difference would cross its
     /// threshold, s from the start, whichever comes first (`None`: never).
     pub crossing_s: Option<f64>,
-    /// The crossing in words ("never", "after 3.2 days", "within the horizon").
+    /// The crossing in words ("never", "after 3.2 days", "fails within the
+    /// horizon", or "no fit (too few points)" when the run is too short to
+    /// project).
     pub crossing: String,
     /// `true` when it passes over the horizon and is not projected to cross
     /// the threshold within the mission.
@@ -150,7 +152,16 @@ fn project(
         .copied()
         .filter(|e| e.is_finite())
         .fold(f64::NAN, f64::max);
-    let late = if late.is_nan() { 0.0 } else { late };
+    // Too short a run for a last half: the largest value seen (NaN: none).
+    let late = if late.is_nan() {
+        series
+            .iter()
+            .copied()
+            .filter(|e| e.is_finite())
+            .fold(f64::NAN, f64::max)
+    } else {
+        late
+    };
     let flat_level = flat && fit.is_some_and(|f| f.growth == Growth::Level);
     match fit {
         Some(f) if !(flat_level || level_forced && flat) => Projection {
@@ -248,6 +259,9 @@ fn variant_mission(
     let mission_s = mission_steps * dt;
     let crossing = match crossing_s {
         _ if !v.verdict.passes => "fails within the horizon".to_string(),
+        None if cov.as_ref().is_some_and(|p| p.fit.is_none()) && mission_s > run_steps * dt => {
+            "no fit (too few points)".to_string()
+        }
         None => "never".to_string(),
         Some(s) if crossing_what == "state" => {
             format!("after {} (state)", duration_words(s))
@@ -263,13 +277,15 @@ fn variant_mission(
             .verdict
             .passes
             .then(|| cov.as_ref().map(|p| p.at_end))
-            .flatten(),
+            .flatten()
+            .filter(|e| e.is_finite()),
         state_fit: state.as_ref().and_then(|p| p.fit),
         projected_state_sigma: v
             .verdict
             .passes
             .then(|| state.as_ref().map(|p| p.at_end))
-            .flatten(),
+            .flatten()
+            .filter(|e| e.is_finite()),
         crossing_s,
         crossing,
         passes_mission,
