@@ -37,6 +37,23 @@ pub trait Estimator<T: Scalar, const N: usize>: Sized {
     /// As [`Kalman::predict`].
     fn predict(&mut self, f: &SMatrix<T, N, N>, q: &SMatrix<T, N, N>) -> Result<(), FilterError>;
 
+    /// Linear predict given the process noise both as Q and as independent
+    /// sources G diag(q) G' equal to it. Covariance forms use Q; factored
+    /// forms use the sources and skip factoring a possibly singular Q (the
+    /// default uses Q).
+    ///
+    /// # Errors
+    /// As [`Kalman::predict`] and [`UdKalman::predict_noise_input`].
+    fn predict_with_sources(
+        &mut self,
+        f: &SMatrix<T, N, N>,
+        q: &SMatrix<T, N, N>,
+        _g: &SMatrix<T, N, N>,
+        _q_sources: &SVector<T, N>,
+    ) -> Result<(), FilterError> {
+        self.predict(f, q)
+    }
+
     /// Extended predict.
     ///
     /// # Errors
@@ -154,6 +171,15 @@ impl<T: Scalar, const N: usize> Estimator<T, N> for UdKalman<T, N> {
     }
     fn covariance_matrix(&self) -> SMatrix<T, N, N> {
         self.covariance()
+    }
+    fn predict_with_sources(
+        &mut self,
+        f: &SMatrix<T, N, N>,
+        _q: &SMatrix<T, N, N>,
+        g: &SMatrix<T, N, N>,
+        q_sources: &SVector<T, N>,
+    ) -> Result<(), FilterError> {
+        self.predict_noise_input(f, g, q_sources)
     }
     forward!();
 }

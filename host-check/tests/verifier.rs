@@ -185,6 +185,37 @@ fn demo_f64_joseph_agrees_with_the_reference() {
 }
 
 #[test]
+fn demo_f32_ud_is_no_worse_than_f32_joseph() {
+    // The factored form's claim (Bierman and Thornton, Automatica 1977:
+    // U-D matched the reference where covariance forms drifted): on the
+    // demo the f32 U-D filter, fed the pose model's independent noise
+    // sources as on the target, must track the double-double reference at
+    // least as well as f32 Joseph. Five minutes of the demo hour.
+    let json = scratch("demo-ud.json");
+    let out = cairn(&[
+        "demo",
+        "--seconds",
+        "300",
+        "--quiet",
+        "--json",
+        json.to_str().unwrap(),
+    ]);
+    assert_ne!(
+        out.status.code(),
+        Some(2),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let r: Value = serde_json::from_str(&std::fs::read_to_string(&json).unwrap()).unwrap();
+    let ud = num(&variant(&r, "f32 u-d")["figures"]["max_relative_error"]);
+    let joseph = num(&variant(&r, "f32 joseph")["figures"]["max_relative_error"]);
+    assert!(
+        ud > 0.0 && ud <= joseph,
+        "f32 u-d {ud} against f32 joseph {joseph}"
+    );
+}
+
+#[test]
 fn json_report_carries_every_figure() {
     let (_, r) = check_json(
         &specs().join("wna-tracker.toml"),

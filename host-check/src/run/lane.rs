@@ -30,6 +30,19 @@ pub trait Lane {
     /// The core's error, unchanged.
     fn predict(&mut self, f: &DMatrix<f64>, q: &DMatrix<f64>) -> Result<(), FilterError>;
 
+    /// Linear predict with Q also given as independent sources G diag(q) G'
+    /// (the pose model's); factored forms use the sources, as on the target.
+    ///
+    /// # Errors
+    /// The core's error, unchanged.
+    fn predict_sources(
+        &mut self,
+        f: &DMatrix<f64>,
+        q: &DMatrix<f64>,
+        g: &DMatrix<f64>,
+        q_sources: &[f64],
+    ) -> Result<(), FilterError>;
+
     /// The planar pose model's extended predict (N = 3 only).
     ///
     /// # Errors
@@ -251,6 +264,18 @@ impl<T: Scalar, const N: usize> MeasurementModel<T, N, 1> for PoseHeading<T> {
 impl<T: Scalar, const N: usize, E: Estimator<T, N> + 'static> Lane for CoreLane<T, N, E> {
     fn predict(&mut self, f: &DMatrix<f64>, q: &DMatrix<f64>) -> Result<(), FilterError> {
         self.filter.predict(&to_s(f), &to_s(q))
+    }
+
+    fn predict_sources(
+        &mut self,
+        f: &DMatrix<f64>,
+        q: &DMatrix<f64>,
+        g: &DMatrix<f64>,
+        q_sources: &[f64],
+    ) -> Result<(), FilterError> {
+        let qs = SVector::<T, N>::from_fn(|i, _| T::of(q_sources.get(i).copied().unwrap_or(0.0)));
+        self.filter
+            .predict_with_sources(&to_s(f), &to_s(q), &to_s(g), &qs)
     }
 
     fn predict_pose(

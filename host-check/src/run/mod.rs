@@ -307,6 +307,12 @@ pub fn run(plan: &Plan, opts: RunOptions) -> Result<RunResult, RunError> {
                 let lin = model.linearize(&xr, &u, dt);
                 let f = DMatrix::from_fn(3, 3, |i, j| lin.jacobian[(i, j)]);
                 let q = DMatrix::from_fn(3, 3, |i, j| lin.noise[(i, j)]);
+                let sources = lin.sources.map(|(g, qs)| {
+                    (
+                        DMatrix::from_fn(3, 3, |i, j| g[(i, j)]),
+                        [qs[0], qs[1], qs[2]],
+                    )
+                });
                 reference.predict(&f, &q);
                 let mut xn = lin.next;
                 model.normalize(&mut xn);
@@ -314,7 +320,10 @@ pub fn run(plan: &Plan, opts: RunOptions) -> Result<RunResult, RunError> {
                 for r in lanes.iter_mut().filter(|r| !r.tracker.stopped()) {
                     if let Some(lane) = r.lane.as_mut() {
                         let res = match mode {
-                            Mode::Covariance => lane.predict(&f, &q),
+                            Mode::Covariance => match &sources {
+                                Some((g, qs)) => lane.predict_sources(&f, &q, g, qs),
+                                None => lane.predict(&f, &q),
+                            },
                             Mode::EndToEnd => lane.predict_pose(model, u, dt),
                         };
                         if let Err(e) = res {
