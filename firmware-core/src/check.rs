@@ -4,6 +4,7 @@
 use nalgebra::{SMatrix, SVector};
 
 use crate::error::{FilterError, Operand, idx};
+use crate::model::{Linearized, ProcessModel};
 use crate::scalar::Scalar;
 
 /// `true` when every value is finite: v - v is +0 for a finite v and NaN
@@ -122,4 +123,41 @@ pub(crate) fn posterior<T: Scalar, const N: usize>(
         return Err(FilterError::CovarianceLost { index: 0 });
     }
     Ok(())
+}
+
+/// One extended predict's model evaluation, checked: dt positive and
+/// finite, the Jacobian finite, the propagated state finite and
+/// normalised. Q (or its sources) is left for the caller's form to check.
+#[inline]
+pub(crate) fn linearize<T: Scalar, const N: usize, P: ProcessModel<T, N>>(
+    model: &P,
+    x: &SVector<T, N>,
+    u: &P::Input,
+    dt: T,
+) -> Result<Linearized<T, N>, FilterError> {
+    if !(dt.finite() && dt > T::zero()) {
+        return Err(FilterError::InvalidTimeStep);
+    }
+    let mut lin = model.linearize(x, u, dt);
+    finite(&lin.jacobian, Operand::Transition)?;
+    finite(&lin.next, Operand::Control)?;
+    model.normalize(&mut lin.next);
+    Ok(lin)
+}
+
+/// Independent noise sources: finite, every variance non-negative.
+#[inline]
+pub(crate) fn sources<T: Scalar, const N: usize>(
+    g: &SMatrix<T, N, N>,
+    q: &SVector<T, N>,
+) -> Result<(), FilterError> {
+    finite(g, Operand::ProcessNoise)?;
+    finite(q, Operand::ProcessNoise)?;
+    match q.iter().position(|&v| v < T::zero()) {
+        Some(i) => Err(FilterError::NotPositiveDefinite {
+            operand: Operand::ProcessNoise,
+            index: idx(i),
+        }),
+        None => Ok(()),
+    }
 }

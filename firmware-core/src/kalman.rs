@@ -153,17 +153,10 @@ impl<T: Scalar, const N: usize, F: CovarianceForm> Kalman<T, N, F> {
         u: &P::Input,
         dt: T,
     ) -> Result<(), FilterError> {
-        if !(dt.finite() && dt > T::zero()) {
-            return Err(FilterError::InvalidTimeStep);
-        }
-        let lin = model.linearize(&self.x, u, dt);
-        check::finite(&lin.jacobian, Operand::Transition)?;
+        let lin = check::linearize(model, &self.x, u, dt)?;
         check::noise(&lin.noise, Operand::ProcessNoise, false)?;
-        let mut x = lin.next;
-        check::finite(&x, Operand::Control)?;
-        model.normalize(&mut x);
         let p = propagate(&lin.jacobian, &self.p, &lin.noise);
-        self.commit(x, p)
+        self.commit(lin.next, p)
     }
 
     /// Linear update with measurement z = H x + v, v ~ N(0, R), solving with

@@ -179,33 +179,18 @@ impl<T: Scalar, const N: usize> UdKalman<T, N> {
         u: &P::Input,
         dt: T,
     ) -> Result<(), FilterError> {
-        if !(dt.finite() && dt > T::zero()) {
-            return Err(FilterError::InvalidTimeStep);
-        }
-        let lin = model.linearize(&self.x, u, dt);
-        let f = lin.jacobian;
-        check::finite(&f, Operand::Transition)?;
+        let lin = check::linearize(model, &self.x, u, dt)?;
         let ud = match lin.sources {
             Some((g, q)) => {
-                check::finite(&g, Operand::ProcessNoise)?;
-                check::finite(&q, Operand::ProcessNoise)?;
-                if let Some(i) = q.iter().position(|&v| v < T::zero()) {
-                    return Err(FilterError::NotPositiveDefinite {
-                        operand: Operand::ProcessNoise,
-                        index: idx(i),
-                    });
-                }
-                self.gram_schmidt(&f, &g, &q)?
+                check::sources(&g, &q)?;
+                self.gram_schmidt(&lin.jacobian, &g, &q)?
             }
             None => {
                 check::noise(&lin.noise, Operand::ProcessNoise, false)?;
-                self.time_update(&f, &lin.noise)?
+                self.time_update(&lin.jacobian, &lin.noise)?
             }
         };
-        let mut x = lin.next;
-        check::finite(&x, Operand::Control)?;
-        model.normalize(&mut x);
-        self.commit(x, ud)
+        self.commit(lin.next, ud)
     }
 
     fn time_update(
@@ -246,14 +231,7 @@ impl<T: Scalar, const N: usize> UdKalman<T, N> {
         q: &SVector<T, N>,
     ) -> Result<(), FilterError> {
         check::finite(f, Operand::Transition)?;
-        check::finite(g, Operand::ProcessNoise)?;
-        check::finite(q, Operand::ProcessNoise)?;
-        if let Some(i) = q.iter().position(|&v| v < T::zero()) {
-            return Err(FilterError::NotPositiveDefinite {
-                operand: Operand::ProcessNoise,
-                index: idx(i),
-            });
-        }
+        check::sources(g, q)?;
         let x = f * self.x;
         let ud = self.gram_schmidt(f, g, q)?;
         self.commit(x, ud)
