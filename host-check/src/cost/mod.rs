@@ -29,12 +29,12 @@ use listing::{Function, parse_disassembly, parse_symbols};
 /// Where the probe symbols live.
 pub const PROBE_PATH: &str = "cairn_on_target::probe::";
 
-/// The demo's rates (odometry 200 Hz, beacon fix 5 Hz, compass 10 Hz), used
+/// The demo's rates (odometry 200 Hz, beacon fix 4 Hz, sun compass 1 Hz), used
 /// for the pose probes when no rate is given.
 pub const DEMO_RATES: [(&str, f64); 3] = [
     ("pose_predict", 200.0),
-    ("pose_position_update", 5.0),
-    ("pose_heading_update", 10.0),
+    ("pose_position_update", 4.0),
+    ("pose_heading_update", 1.0),
 ];
 
 /// What to estimate and for which clock and rates.
