@@ -8,7 +8,7 @@
 use std::hint::black_box;
 use std::time::Duration;
 
-use cairn_core::{Conventional, Joseph, Kalman, Scalar};
+use cairn_core::{Conventional, Joseph, Kalman, Scalar, UdKalman};
 use criterion::{Criterion, criterion_group, criterion_main};
 use nalgebra::{SMatrix, SVector};
 
@@ -79,6 +79,7 @@ macro_rules! bench_update {
         let joseph = Kalman::<$t, $n, Joseph>::try_new(x0, p0).expect("P is a covariance");
         let conventional =
             Kalman::<$t, $n, Conventional>::try_new(x0, p0).expect("P is a covariance");
+        let ud = UdKalman::<$t, $n>::try_new(x0, p0).expect("P is a covariance");
         let mut g = $c.benchmark_group(concat!(
             "update_",
             stringify!($t),
@@ -98,6 +99,13 @@ macro_rules! bench_update {
             b.iter(|| {
                 let mut f = black_box(conventional);
                 let o = f.update(black_box(&z), black_box(&h), black_box(&r), None);
+                (f, o)
+            })
+        });
+        g.bench_function("u-d", |b| {
+            b.iter(|| {
+                let mut f = black_box(ud);
+                let o = f.update_sequential(black_box(&z), black_box(&h), black_box(&r_diag), None);
                 (f, o)
             })
         });
@@ -132,7 +140,25 @@ macro_rules! bench_predict {
         let f = SMatrix::<$t, $n, $n>::identity() + seeded.matrix::<$t, $n, $n>() * <$t>::of(0.01);
         let q = SMatrix::<$t, $n, $n>::from_diagonal_element(<$t>::of(1e-3));
         let filter = Kalman::<$t, $n, Joseph>::try_new(x0, p0).expect("P is a covariance");
+        let ud = UdKalman::<$t, $n>::try_new(x0, p0).expect("P is a covariance");
+        // The same Q as independent sources: G = I, q = its diagonal.
+        let g_src = SMatrix::<$t, $n, $n>::identity();
+        let q_src = q.diagonal();
         let mut g = $c.benchmark_group(concat!("predict_", stringify!($t), "_n", stringify!($n)));
+        g.bench_function("u-d_q", |b| {
+            b.iter(|| {
+                let mut k = black_box(ud);
+                let o = k.predict(black_box(&f), black_box(&q));
+                (k, o)
+            })
+        });
+        g.bench_function("u-d_sources", |b| {
+            b.iter(|| {
+                let mut k = black_box(ud);
+                let o = k.predict_noise_input(black_box(&f), black_box(&g_src), black_box(&q_src));
+                (k, o)
+            })
+        });
         g.bench_function("core", |b| {
             b.iter(|| {
                 let mut k = black_box(filter);
