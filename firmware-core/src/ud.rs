@@ -142,6 +142,23 @@ impl<T: Scalar, const N: usize> UdKalman<T, N> {
         "u-d"
     }
 
+    /// Moves the origin the state is expressed in: x -= offset, factors
+    /// unchanged; see [`crate::Kalman::shift_origin_mut`].
+    ///
+    /// # Errors
+    /// [`FilterError::NonFinite`] for a non-finite offset or result; nothing
+    /// changes on error.
+    ///
+    /// # Panics
+    /// Never.
+    pub fn shift_origin_mut(&mut self, offset: &SVector<T, N>) -> Result<(), FilterError> {
+        check::finite(offset, Operand::State)?;
+        let x = self.x - offset;
+        check::finite(&x, Operand::State)?;
+        self.x = x;
+        Ok(())
+    }
+
     /// Linear predict: x = F x, P = F P F' + Q by Thornton's modified
     /// weighted Gram-Schmidt on W = [F U | U_q], weights diag(D, D_q).
     ///
