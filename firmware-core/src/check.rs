@@ -161,3 +161,15 @@ pub(crate) fn sources<T: Scalar, const N: usize>(
         None => Ok(()),
     }
 }
+
+/// x - offset, when both the offset and the result are finite.
+#[inline]
+pub(crate) fn shifted<T: Scalar, const N: usize>(
+    x: &SVector<T, N>,
+    offset: &SVector<T, N>,
+) -> Result<SVector<T, N>, FilterError> {
+    finite(offset, Operand::State)?;
+    let moved = x - offset;
+    finite(&moved, Operand::State)?;
+    Ok(moved)
+}

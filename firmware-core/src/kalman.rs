@@ -107,10 +107,7 @@ impl<T: Scalar, const N: usize, F: CovarianceForm> Kalman<T, N, F> {
     /// # Panics
     /// Never.
     pub fn shift_origin_mut(&mut self, offset: &SVector<T, N>) -> Result<(), FilterError> {
-        check::finite(offset, Operand::State)?;
-        let x = self.x - offset;
-        check::finite(&x, Operand::State)?;
-        self.x = x;
+        self.x = check::shifted(&self.x, offset)?;
         Ok(())
     }
 

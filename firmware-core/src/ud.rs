@@ -152,10 +152,7 @@ impl<T: Scalar, const N: usize> UdKalman<T, N> {
     /// # Panics
     /// Never.
     pub fn shift_origin_mut(&mut self, offset: &SVector<T, N>) -> Result<(), FilterError> {
-        check::finite(offset, Operand::State)?;
-        let x = self.x - offset;
-        check::finite(&x, Operand::State)?;
-        self.x = x;
+        self.x = check::shifted(&self.x, offset)?;
         Ok(())
     }
 
