@@ -7,20 +7,7 @@ use crate::error::{FilterError, Operand, idx};
 use crate::model::{Linearized, ProcessModel};
 use crate::scalar::Scalar;
 
-/// `true` when every value is finite: v - v is +0 for a finite v and NaN
-/// for NaN or infinity, and NaN survives the sum. Pure FP adds, with one
-/// comparison at the end, instead of a move, mask and branch per entry
-/// (common practice on FPUs without a cheap classify instruction).
-// `v - v` is the point: it is not zero for NaN or infinity.
-#[allow(clippy::eq_op)]
-#[inline]
-pub(crate) fn all_finite<T: Scalar>(values: &[T]) -> bool {
-    let mut acc = T::zero();
-    for &v in values {
-        acc += v - v;
-    }
-    acc == T::zero()
-}
+pub(crate) use crate::kernel::all_finite;
 
 /// Every entry finite.
 #[inline]

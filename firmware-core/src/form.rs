@@ -3,6 +3,7 @@
 
 use nalgebra::{SMatrix, SVector};
 
+use crate::kernel::{VECTOR, mirror_upper};
 use crate::scalar::Scalar;
 
 /// How the posterior covariance is formed from the prior and the gain.
@@ -72,45 +73,7 @@ impl CovarianceForm for Joseph {
         r: &SMatrix<T, M, M>,
         _s: &SMatrix<T, M, M>,
     ) -> SMatrix<T, N, N> {
-        // W = P - K B' (B' = H P since P is symmetric), column by column.
-        let mut w = *p;
-        for j in 0..N {
-            for c in 0..M {
-                let bjc = b[(j, c)];
-                for i in 0..N {
-                    w[(i, j)] -= k[(i, c)] * bjc;
-                }
-            }
-        }
-        // D = K R - W H' (n x m), as column updates.
-        let mut d = SMatrix::<T, N, M>::zeros();
-        for c in 0..M {
-            for e in 0..M {
-                let rec = r[(e, c)];
-                for i in 0..N {
-                    d[(i, c)] += k[(i, e)] * rec;
-                }
-            }
-            for e in 0..N {
-                let hce = h[(c, e)];
-                for i in 0..N {
-                    d[(i, c)] -= w[(i, e)] * hce;
-                }
-            }
-        }
-        // P+ = W + D K', upper triangle, mirrored.
-        let mut out = w;
-        for j in 0..N {
-            for i in 0..=j {
-                let mut v = w[(i, j)];
-                for c in 0..M {
-                    v += d[(i, c)] * k[(j, c)];
-                }
-                out[(i, j)] = v;
-                out[(j, i)] = v;
-            }
-        }
-        out
+        joseph::<T, N, M, VECTOR>(p, h, b, k, r)
     }
 
     #[inline]
@@ -122,29 +85,7 @@ impl CovarianceForm for Joseph {
         r: T,
         _s: T,
     ) -> SMatrix<T, N, N> {
-        let mut w = *p;
-        for j in 0..N {
-            let bj = b[j];
-            for i in 0..N {
-                w[(i, j)] -= k[i] * bj;
-            }
-        }
-        let mut d = *k * r;
-        for e in 0..N {
-            let he = h[e];
-            for i in 0..N {
-                d[i] -= w[(i, e)] * he;
-            }
-        }
-        let mut out = w;
-        for j in 0..N {
-            for i in 0..=j {
-                let v = w[(i, j)] + d[i] * k[j];
-                out[(i, j)] = v;
-                out[(j, i)] = v;
-            }
-        }
-        out
+        joseph_scalar::<T, N, VECTOR>(p, h, b, k, r)
     }
 }
 
@@ -160,18 +101,7 @@ impl CovarianceForm for Conventional {
         _r: &SMatrix<T, M, M>,
         _s: &SMatrix<T, M, M>,
     ) -> SMatrix<T, N, N> {
-        let mut out = *p;
-        for j in 0..N {
-            for i in 0..=j {
-                let mut v = p[(i, j)];
-                for c in 0..M {
-                    v -= k[(i, c)] * b[(j, c)];
-                }
-                out[(i, j)] = v;
-                out[(j, i)] = v;
-            }
-        }
-        out
+        conventional::<T, N, M, VECTOR>(p, b, k)
     }
 
     #[inline]
@@ -183,7 +113,169 @@ impl CovarianceForm for Conventional {
         _r: T,
         _s: T,
     ) -> SMatrix<T, N, N> {
-        let mut out = *p;
+        conventional_scalar::<T, N, VECTOR>(p, b, k)
+    }
+}
+
+// The forms' arithmetic, in either loop shape (see the kernel module):
+// `COLUMNS` picks whole-column updates, otherwise upper-triangle dots; the
+// operations and their order on every entry are the same.
+
+/// Joseph's factored order for a vector measurement.
+#[inline]
+fn joseph<T: Scalar, const N: usize, const M: usize, const COLUMNS: bool>(
+    p: &SMatrix<T, N, N>,
+    h: &SMatrix<T, M, N>,
+    b: &SMatrix<T, N, M>,
+    k: &SMatrix<T, N, M>,
+    r: &SMatrix<T, M, M>,
+) -> SMatrix<T, N, N> {
+    // W = P - K B' (B' = H P since P is symmetric), column by column.
+    let mut w = *p;
+    for j in 0..N {
+        for c in 0..M {
+            let bjc = b[(j, c)];
+            for i in 0..N {
+                w[(i, j)] -= k[(i, c)] * bjc;
+            }
+        }
+    }
+    // D = K R - W H' (n x m), as column updates.
+    let mut d = SMatrix::<T, N, M>::zeros();
+    for c in 0..M {
+        for e in 0..M {
+            let rec = r[(e, c)];
+            for i in 0..N {
+                d[(i, c)] += k[(i, e)] * rec;
+            }
+        }
+        for e in 0..N {
+            let hce = h[(c, e)];
+            for i in 0..N {
+                d[(i, c)] -= w[(i, e)] * hce;
+            }
+        }
+    }
+    // P+ = W + D K' (upper triangle, mirrored), in place in W: column j
+    // reads only W's column j.
+    if COLUMNS {
+        for j in 0..N {
+            for c in 0..M {
+                let kjc = k[(j, c)];
+                for i in 0..N {
+                    w[(i, j)] += d[(i, c)] * kjc;
+                }
+            }
+        }
+        mirror_upper(&mut w);
+    } else {
+        for j in 0..N {
+            for i in 0..=j {
+                let mut v = w[(i, j)];
+                for c in 0..M {
+                    v += d[(i, c)] * k[(j, c)];
+                }
+                w[(i, j)] = v;
+                w[(j, i)] = v;
+            }
+        }
+    }
+    w
+}
+
+/// Joseph's factored order for one scalar measurement.
+#[inline]
+fn joseph_scalar<T: Scalar, const N: usize, const COLUMNS: bool>(
+    p: &SMatrix<T, N, N>,
+    h: &SVector<T, N>,
+    b: &SVector<T, N>,
+    k: &SVector<T, N>,
+    r: T,
+) -> SMatrix<T, N, N> {
+    let mut w = *p;
+    for j in 0..N {
+        let bj = b[j];
+        for i in 0..N {
+            w[(i, j)] -= k[i] * bj;
+        }
+    }
+    let mut d = *k * r;
+    for e in 0..N {
+        let he = h[e];
+        for i in 0..N {
+            d[i] -= w[(i, e)] * he;
+        }
+    }
+    if COLUMNS {
+        for j in 0..N {
+            let kj = k[j];
+            for i in 0..N {
+                w[(i, j)] += d[i] * kj;
+            }
+        }
+        mirror_upper(&mut w);
+    } else {
+        for j in 0..N {
+            for i in 0..=j {
+                let v = w[(i, j)] + d[i] * k[j];
+                w[(i, j)] = v;
+                w[(j, i)] = v;
+            }
+        }
+    }
+    w
+}
+
+/// The conventional form for a vector measurement.
+#[inline]
+fn conventional<T: Scalar, const N: usize, const M: usize, const COLUMNS: bool>(
+    p: &SMatrix<T, N, N>,
+    b: &SMatrix<T, N, M>,
+    k: &SMatrix<T, N, M>,
+) -> SMatrix<T, N, N> {
+    let mut out = *p;
+    if COLUMNS {
+        for j in 0..N {
+            for c in 0..M {
+                let bjc = b[(j, c)];
+                for i in 0..N {
+                    out[(i, j)] -= k[(i, c)] * bjc;
+                }
+            }
+        }
+        mirror_upper(&mut out);
+    } else {
+        for j in 0..N {
+            for i in 0..=j {
+                let mut v = p[(i, j)];
+                for c in 0..M {
+                    v -= k[(i, c)] * b[(j, c)];
+                }
+                out[(i, j)] = v;
+                out[(j, i)] = v;
+            }
+        }
+    }
+    out
+}
+
+/// The conventional form for one scalar measurement.
+#[inline]
+fn conventional_scalar<T: Scalar, const N: usize, const COLUMNS: bool>(
+    p: &SMatrix<T, N, N>,
+    b: &SVector<T, N>,
+    k: &SVector<T, N>,
+) -> SMatrix<T, N, N> {
+    let mut out = *p;
+    if COLUMNS {
+        for j in 0..N {
+            let bj = b[j];
+            for i in 0..N {
+                out[(i, j)] -= k[i] * bj;
+            }
+        }
+        mirror_upper(&mut out);
+    } else {
         for j in 0..N {
             for i in 0..=j {
                 let v = p[(i, j)] - k[i] * b[j];
@@ -191,6 +283,67 @@ impl CovarianceForm for Conventional {
                 out[(j, i)] = v;
             }
         }
-        out
+    }
+    out
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Deterministic values in [-1, 1): Press et al.'s 32-bit LCG
+    /// (*Numerical Recipes*, 2nd ed., ch. 7.1).
+    struct Lcg(u32);
+    impl Lcg {
+        fn unit(&mut self) -> f64 {
+            self.0 = self.0.wrapping_mul(1_664_525).wrapping_add(1_013_904_223);
+            f64::from(self.0 >> 8) / f64::from(1u32 << 24) * 2.0 - 1.0
+        }
+        fn matrix<T: Scalar, const R: usize, const C: usize>(&mut self) -> SMatrix<T, R, C> {
+            SMatrix::from_fn(|_, _| T::of(self.unit()))
+        }
+    }
+
+    fn same_bits<T: Scalar, const N: usize>(a: &SMatrix<T, N, N>, b: &SMatrix<T, N, N>) -> bool {
+        a.iter()
+            .zip(b.iter())
+            .all(|(x, y)| x.to_f64().to_bits() == y.to_f64().to_bits())
+    }
+
+    fn shapes_agree<T: Scalar, const N: usize, const M: usize>(seed: u32) {
+        let mut g = Lcg(seed);
+        for _ in 0..50 {
+            let a: SMatrix<T, N, N> = g.matrix();
+            let mut p = a * a.transpose();
+            mirror_upper(&mut p);
+            let h: SMatrix<T, M, N> = g.matrix();
+            let k: SMatrix<T, N, M> = g.matrix();
+            let r = SMatrix::<T, M, M>::identity();
+            let b = p * h.transpose();
+            let cols = joseph::<T, N, M, true>(&p, &h, &b, &k, &r);
+            let dots = joseph::<T, N, M, false>(&p, &h, &b, &k, &r);
+            assert!(same_bits(&cols, &dots), "joseph n = {N}, m = {M}");
+            assert_eq!(cols, cols.transpose());
+            let cols = conventional::<T, N, M, true>(&p, &b, &k);
+            let dots = conventional::<T, N, M, false>(&p, &b, &k);
+            assert!(same_bits(&cols, &dots), "conventional n = {N}, m = {M}");
+            assert_eq!(cols, cols.transpose());
+            let (hr, br, kr) = (h.row(0).transpose(), b.column(0).into(), k.column(0).into());
+            let cols = joseph_scalar::<T, N, true>(&p, &hr, &br, &kr, T::one());
+            let dots = joseph_scalar::<T, N, false>(&p, &hr, &br, &kr, T::one());
+            assert!(same_bits(&cols, &dots), "joseph scalar n = {N}");
+            let cols = conventional_scalar::<T, N, true>(&p, &br, &kr);
+            let dots = conventional_scalar::<T, N, false>(&p, &br, &kr);
+            assert!(same_bits(&cols, &dots), "conventional scalar n = {N}");
+        }
+    }
+
+    #[test]
+    fn both_shapes_compute_the_same_bits() {
+        shapes_agree::<f32, 3, 1>(11);
+        shapes_agree::<f32, 3, 2>(12);
+        shapes_agree::<f32, 9, 3>(13);
+        shapes_agree::<f32, 15, 2>(14);
+        shapes_agree::<f64, 9, 3>(15);
     }
 }

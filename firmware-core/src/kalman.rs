@@ -8,6 +8,7 @@ use nalgebra::{SMatrix, SVector};
 use crate::check;
 use crate::error::{FilterError, Operand, Outcome, idx};
 use crate::form::{CovarianceForm, Joseph};
+use crate::kernel::propagate;
 use crate::ldl::Ldl;
 use crate::model::{MeasurementModel, ProcessModel};
 use crate::scalar::Scalar;
@@ -359,32 +360,6 @@ impl<T: Scalar, const N: usize, F: CovarianceForm> Kalman<T, N, F> {
         self.p = p;
         Ok(())
     }
-}
-
-/// F P F' + Q: A = P F' (= (F P)' as P is symmetric) in full, then only the
-/// upper triangle of A' F' + Q, each entry a dot product of two contiguous
-/// columns (A's and F''s), mirrored so the result is exactly symmetric.
-#[inline]
-fn propagate<T: Scalar, const N: usize>(
-    f: &SMatrix<T, N, N>,
-    p: &SMatrix<T, N, N>,
-    q: &SMatrix<T, N, N>,
-) -> SMatrix<T, N, N> {
-    let ft = f.transpose();
-    let a = p * ft;
-    let mut out = *q;
-    for j in 0..N {
-        for i in 0..=j {
-            let mut v = T::zero();
-            for e in 0..N {
-                v += a[(e, i)] * ft[(e, j)];
-            }
-            let v = v + q[(i, j)];
-            out[(i, j)] = v;
-            out[(j, i)] = v;
-        }
-    }
-    out
 }
 
 /// Replaces P by (P + P') / 2.

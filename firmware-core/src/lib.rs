@@ -61,6 +61,7 @@ mod estimator;
 mod form;
 mod health;
 mod kalman;
+mod kernel;
 mod ldl;
 mod model;
 pub mod pose;
