@@ -30,18 +30,42 @@ pub(crate) fn symmetric<T: Scalar, const N: usize>(
     a: &SMatrix<T, N, N>,
     what: Operand,
 ) -> Result<(), FilterError> {
+    if pairs(a, false).0 {
+        return Err(FilterError::NotSymmetric(what));
+    }
+    Ok(())
+}
+
+/// One branch-free pass over the pairs i < j: `(asymmetric, minor)`, where
+/// `asymmetric` is set when some |a_ij - a_ji| exceeds 16 eps times the
+/// larger of |a_ii|, |a_jj|, and `minor` (computed only when `minors` is
+/// set) when some 2 x 2 principal minor is negative beyond 16 eps. No
+/// early exit: the pass costs the same whatever the values, and a host
+/// runs its comparisons without waiting on branches.
+#[inline]
+fn pairs<T: Scalar, const N: usize>(a: &SMatrix<T, N, N>, minors: bool) -> (bool, bool) {
     let tol = T::EPSILON * T::of(16.0);
-    for j in 0..N {
+    let grow = T::one() + tol;
+    let mut asymmetric = false;
+    let mut minor = false;
+    for j in 1..N {
+        let ajj = a[(j, j)];
         for i in 0..j {
+            let aii = a[(i, i)];
             // A plain comparison: `max` on floats is a libm call on the target.
-            let (ai, aj) = (a[(i, i)].abs(), a[(j, j)].abs());
+            let (ai, aj) = (aii.abs(), ajj.abs());
             let scale = if ai > aj { ai } else { aj };
-            if (a[(i, j)] - a[(j, i)]).abs() > tol * scale {
-                return Err(FilterError::NotSymmetric(what));
+            let c = a[(i, j)];
+            asymmetric |= (c - a[(j, i)]).abs() > tol * scale;
+            // A rank-deficient block (one noise source driving two states)
+            // has c^2 = a_ii a_jj exactly; allow the few roundings that
+            // assembling it in floating point costs.
+            if minors {
+                minor |= c * c > aii * ajj * grow;
             }
         }
     }
-    Ok(())
+    (asymmetric, minor)
 }
 
 /// A noise covariance: finite, symmetric, non-negative diagonal and every
@@ -55,30 +79,42 @@ pub(crate) fn noise<T: Scalar, const N: usize>(
     strict: bool,
 ) -> Result<(), FilterError> {
     finite(a, what)?;
-    symmetric(a, what)?;
-    let slack = T::EPSILON * T::of(16.0);
+    let (asymmetric, minor) = pairs(a, true);
+    if asymmetric {
+        return Err(FilterError::NotSymmetric(what));
+    }
+    let mut diagonal = false;
+    for i in 0..N {
+        let d = a[(i, i)];
+        diagonal |= d < T::zero() || (strict && d <= T::zero());
+    }
+    if diagonal || minor {
+        return Err(FilterError::NotPositiveDefinite {
+            operand: what,
+            index: idx(first_indefinite(a, strict)),
+        });
+    }
+    Ok(())
+}
+
+/// The row of the first failing diagonal entry or 2 x 2 minor, in the order
+/// rows are read (only on the error path).
+#[cold]
+fn first_indefinite<T: Scalar, const N: usize>(a: &SMatrix<T, N, N>, strict: bool) -> usize {
+    let grow = T::one() + T::EPSILON * T::of(16.0);
     for i in 0..N {
         let d = a[(i, i)];
         if d < T::zero() || (strict && d <= T::zero()) {
-            return Err(FilterError::NotPositiveDefinite {
-                operand: what,
-                index: idx(i),
-            });
+            return i;
         }
         for j in 0..i {
-            // A rank-deficient block (one noise source driving two states)
-            // has c^2 = a_ii a_jj exactly; allow the few roundings that
-            // assembling it in floating point costs.
             let c = a[(i, j)];
-            if c * c > a[(i, i)] * a[(j, j)] * (T::one() + slack) {
-                return Err(FilterError::NotPositiveDefinite {
-                    operand: what,
-                    index: idx(i),
-                });
+            if c * c > a[(i, i)] * a[(j, j)] * grow {
+                return i;
             }
         }
     }
-    Ok(())
+    0
 }
 
 /// The gate threshold, when given, must be finite and positive.

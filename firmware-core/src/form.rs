@@ -8,33 +8,35 @@ use crate::scalar::Scalar;
 
 /// How the posterior covariance is formed from the prior and the gain.
 ///
-/// Implementations receive B = P H' (n x m), the gain K = B S^-1, R and the
-/// innovation covariance S = H P H' + R, and return the full symmetric
-/// posterior. They must not form I - KH as an n x n matrix.
+/// Implementations receive the prior P in `p` and overwrite it with the
+/// full, exactly symmetric posterior (in place: no n x n copy), given
+/// B = P H' (n x m), the gain K = B S^-1, R and the innovation covariance
+/// S = H P H' + R. They must not form I - KH as an n x n matrix.
 pub trait CovarianceForm {
     /// A short name for reports.
     const NAME: &'static str;
 
-    /// Posterior covariance for a vector measurement.
+    /// Posterior covariance for a vector measurement, in place.
     fn posterior<T: Scalar, const N: usize, const M: usize>(
-        p: &SMatrix<T, N, N>,
+        p: &mut SMatrix<T, N, N>,
         h: &SMatrix<T, M, N>,
         b: &SMatrix<T, N, M>,
         k: &SMatrix<T, N, M>,
         r: &SMatrix<T, M, M>,
         s: &SMatrix<T, M, M>,
-    ) -> SMatrix<T, N, N>;
+    );
 
     /// Posterior covariance for one scalar measurement with row `h`,
-    /// `b = P h'`, gain `k`, noise variance `r` and innovation variance `s`.
+    /// `b = P h'`, gain `k`, noise variance `r` and innovation variance `s`,
+    /// in place.
     fn posterior_scalar<T: Scalar, const N: usize>(
-        p: &SMatrix<T, N, N>,
+        p: &mut SMatrix<T, N, N>,
         h: &SVector<T, N>,
         b: &SVector<T, N>,
         k: &SVector<T, N>,
         r: T,
         s: T,
-    ) -> SMatrix<T, N, N>;
+    );
 }
 
 /// Joseph's stabilised form, P+ = (I - KH) P (I - KH)' + K R K'
@@ -66,25 +68,25 @@ impl CovarianceForm for Joseph {
 
     #[inline]
     fn posterior<T: Scalar, const N: usize, const M: usize>(
-        p: &SMatrix<T, N, N>,
+        p: &mut SMatrix<T, N, N>,
         h: &SMatrix<T, M, N>,
         b: &SMatrix<T, N, M>,
         k: &SMatrix<T, N, M>,
         r: &SMatrix<T, M, M>,
         _s: &SMatrix<T, M, M>,
-    ) -> SMatrix<T, N, N> {
+    ) {
         joseph::<T, N, M, VECTOR>(p, h, b, k, r)
     }
 
     #[inline]
     fn posterior_scalar<T: Scalar, const N: usize>(
-        p: &SMatrix<T, N, N>,
+        p: &mut SMatrix<T, N, N>,
         h: &SVector<T, N>,
         b: &SVector<T, N>,
         k: &SVector<T, N>,
         r: T,
         _s: T,
-    ) -> SMatrix<T, N, N> {
+    ) {
         joseph_scalar::<T, N, VECTOR>(p, h, b, k, r)
     }
 }
@@ -94,25 +96,25 @@ impl CovarianceForm for Conventional {
 
     #[inline]
     fn posterior<T: Scalar, const N: usize, const M: usize>(
-        p: &SMatrix<T, N, N>,
+        p: &mut SMatrix<T, N, N>,
         _h: &SMatrix<T, M, N>,
         b: &SMatrix<T, N, M>,
         k: &SMatrix<T, N, M>,
         _r: &SMatrix<T, M, M>,
         _s: &SMatrix<T, M, M>,
-    ) -> SMatrix<T, N, N> {
+    ) {
         conventional::<T, N, M, VECTOR>(p, b, k)
     }
 
     #[inline]
     fn posterior_scalar<T: Scalar, const N: usize>(
-        p: &SMatrix<T, N, N>,
+        p: &mut SMatrix<T, N, N>,
         _h: &SVector<T, N>,
         b: &SVector<T, N>,
         k: &SVector<T, N>,
         _r: T,
         _s: T,
-    ) -> SMatrix<T, N, N> {
+    ) {
         conventional_scalar::<T, N, VECTOR>(p, b, k)
     }
 }
@@ -124,14 +126,14 @@ impl CovarianceForm for Conventional {
 /// Joseph's factored order for a vector measurement.
 #[inline]
 fn joseph<T: Scalar, const N: usize, const M: usize, const COLUMNS: bool>(
-    p: &SMatrix<T, N, N>,
+    p: &mut SMatrix<T, N, N>,
     h: &SMatrix<T, M, N>,
     b: &SMatrix<T, N, M>,
     k: &SMatrix<T, N, M>,
     r: &SMatrix<T, M, M>,
-) -> SMatrix<T, N, N> {
+) {
     // W = P - K B' (B' = H P since P is symmetric), column by column.
-    let mut w = *p;
+    let w = p;
     for j in 0..N {
         for c in 0..M {
             let bjc = b[(j, c)];
@@ -167,7 +169,7 @@ fn joseph<T: Scalar, const N: usize, const M: usize, const COLUMNS: bool>(
                 }
             }
         }
-        mirror_upper(&mut w);
+        mirror_upper(w);
     } else {
         for j in 0..N {
             for i in 0..=j {
@@ -180,19 +182,18 @@ fn joseph<T: Scalar, const N: usize, const M: usize, const COLUMNS: bool>(
             }
         }
     }
-    w
 }
 
 /// Joseph's factored order for one scalar measurement.
 #[inline]
 fn joseph_scalar<T: Scalar, const N: usize, const COLUMNS: bool>(
-    p: &SMatrix<T, N, N>,
+    p: &mut SMatrix<T, N, N>,
     h: &SVector<T, N>,
     b: &SVector<T, N>,
     k: &SVector<T, N>,
     r: T,
-) -> SMatrix<T, N, N> {
-    let mut w = *p;
+) {
+    let w = p;
     for j in 0..N {
         let bj = b[j];
         for i in 0..N {
@@ -213,7 +214,7 @@ fn joseph_scalar<T: Scalar, const N: usize, const COLUMNS: bool>(
                 w[(i, j)] += d[i] * kj;
             }
         }
-        mirror_upper(&mut w);
+        mirror_upper(w);
     } else {
         for j in 0..N {
             for i in 0..=j {
@@ -223,17 +224,16 @@ fn joseph_scalar<T: Scalar, const N: usize, const COLUMNS: bool>(
             }
         }
     }
-    w
 }
 
 /// The conventional form for a vector measurement.
 #[inline]
 fn conventional<T: Scalar, const N: usize, const M: usize, const COLUMNS: bool>(
-    p: &SMatrix<T, N, N>,
+    p: &mut SMatrix<T, N, N>,
     b: &SMatrix<T, N, M>,
     k: &SMatrix<T, N, M>,
-) -> SMatrix<T, N, N> {
-    let mut out = *p;
+) {
+    let out = p;
     if COLUMNS {
         for j in 0..N {
             for c in 0..M {
@@ -243,11 +243,11 @@ fn conventional<T: Scalar, const N: usize, const M: usize, const COLUMNS: bool>(
                 }
             }
         }
-        mirror_upper(&mut out);
+        mirror_upper(out);
     } else {
         for j in 0..N {
             for i in 0..=j {
-                let mut v = p[(i, j)];
+                let mut v = out[(i, j)];
                 for c in 0..M {
                     v -= k[(i, c)] * b[(j, c)];
                 }
@@ -256,17 +256,16 @@ fn conventional<T: Scalar, const N: usize, const M: usize, const COLUMNS: bool>(
             }
         }
     }
-    out
 }
 
 /// The conventional form for one scalar measurement.
 #[inline]
 fn conventional_scalar<T: Scalar, const N: usize, const COLUMNS: bool>(
-    p: &SMatrix<T, N, N>,
+    p: &mut SMatrix<T, N, N>,
     b: &SVector<T, N>,
     k: &SVector<T, N>,
-) -> SMatrix<T, N, N> {
-    let mut out = *p;
+) {
+    let out = p;
     if COLUMNS {
         for j in 0..N {
             let bj = b[j];
@@ -274,17 +273,16 @@ fn conventional_scalar<T: Scalar, const N: usize, const COLUMNS: bool>(
                 out[(i, j)] -= k[i] * bj;
             }
         }
-        mirror_upper(&mut out);
+        mirror_upper(out);
     } else {
         for j in 0..N {
             for i in 0..=j {
-                let v = p[(i, j)] - k[i] * b[j];
+                let v = out[(i, j)] - k[i] * b[j];
                 out[(i, j)] = v;
                 out[(j, i)] = v;
             }
         }
     }
-    out
 }
 
 #[cfg(test)]
@@ -320,20 +318,25 @@ mod tests {
             let k: SMatrix<T, N, M> = g.matrix();
             let r = SMatrix::<T, M, M>::identity();
             let b = p * h.transpose();
-            let cols = joseph::<T, N, M, true>(&p, &h, &b, &k, &r);
-            let dots = joseph::<T, N, M, false>(&p, &h, &b, &k, &r);
+            let run = |f: &dyn Fn(&mut SMatrix<T, N, N>)| {
+                let mut out = p;
+                f(&mut out);
+                out
+            };
+            let cols = run(&|q| joseph::<T, N, M, true>(q, &h, &b, &k, &r));
+            let dots = run(&|q| joseph::<T, N, M, false>(q, &h, &b, &k, &r));
             assert!(same_bits(&cols, &dots), "joseph n = {N}, m = {M}");
             assert_eq!(cols, cols.transpose());
-            let cols = conventional::<T, N, M, true>(&p, &b, &k);
-            let dots = conventional::<T, N, M, false>(&p, &b, &k);
+            let cols = run(&|q| conventional::<T, N, M, true>(q, &b, &k));
+            let dots = run(&|q| conventional::<T, N, M, false>(q, &b, &k));
             assert!(same_bits(&cols, &dots), "conventional n = {N}, m = {M}");
             assert_eq!(cols, cols.transpose());
             let (hr, br, kr) = (h.row(0).transpose(), b.column(0).into(), k.column(0).into());
-            let cols = joseph_scalar::<T, N, true>(&p, &hr, &br, &kr, T::one());
-            let dots = joseph_scalar::<T, N, false>(&p, &hr, &br, &kr, T::one());
+            let cols = run(&|q| joseph_scalar::<T, N, true>(q, &hr, &br, &kr, T::one()));
+            let dots = run(&|q| joseph_scalar::<T, N, false>(q, &hr, &br, &kr, T::one()));
             assert!(same_bits(&cols, &dots), "joseph scalar n = {N}");
-            let cols = conventional_scalar::<T, N, true>(&p, &br, &kr);
-            let dots = conventional_scalar::<T, N, false>(&p, &br, &kr);
+            let cols = run(&|q| conventional_scalar::<T, N, true>(q, &br, &kr));
+            let dots = run(&|q| conventional_scalar::<T, N, false>(q, &br, &kr));
             assert!(same_bits(&cols, &dots), "conventional scalar n = {N}");
         }
     }

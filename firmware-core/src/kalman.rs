@@ -8,7 +8,7 @@ use nalgebra::{SMatrix, SVector};
 use crate::check;
 use crate::error::{FilterError, Operand, Outcome, idx};
 use crate::form::{CovarianceForm, Joseph};
-use crate::kernel::propagate;
+use crate::kernel::{innovation, propagate};
 use crate::ldl::Ldl;
 use crate::model::{MeasurementModel, ProcessModel};
 use crate::scalar::Scalar;
@@ -29,15 +29,10 @@ pub struct Kalman<T: Scalar, const N: usize, F: CovarianceForm = Joseph> {
 }
 
 /// A computed update, not yet committed.
+/// The posterior covariance is written into a buffer the caller owns.
 enum Weighed<T: Scalar, const N: usize> {
-    Apply {
-        x: SVector<T, N>,
-        p: SMatrix<T, N, N>,
-        nis: T,
-    },
-    Gate {
-        nis: T,
-    },
+    Apply { x: SVector<T, N>, nis: T },
+    Gate { nis: T },
 }
 
 impl<T: Scalar, const N: usize, F: CovarianceForm> Kalman<T, N, F> {
@@ -132,7 +127,7 @@ impl<T: Scalar, const N: usize, F: CovarianceForm> Kalman<T, N, F> {
         check::noise(q, Operand::ProcessNoise, false)?;
         let x = f * self.x;
         let p = propagate(f, &self.p, q);
-        self.commit(x, p)
+        self.commit(&x, &p)
     }
 
     /// Linear predict with a control term: x = F x + B u, P = F P F' + Q.
@@ -156,7 +151,7 @@ impl<T: Scalar, const N: usize, F: CovarianceForm> Kalman<T, N, F> {
         check::noise(q, Operand::ProcessNoise, false)?;
         let x = f * self.x + b * u;
         let p = propagate(f, &self.p, q);
-        self.commit(x, p)
+        self.commit(&x, &p)
     }
 
     /// Extended predict through a process model: x = f(x, u, dt),
@@ -177,7 +172,7 @@ impl<T: Scalar, const N: usize, F: CovarianceForm> Kalman<T, N, F> {
         let lin = check::linearize(model, &self.x, u, dt)?;
         check::noise(&lin.noise, Operand::ProcessNoise, false)?;
         let p = propagate(&lin.jacobian, &self.p, &lin.noise);
-        self.commit(lin.next, p)
+        self.commit(&lin.next, &p)
     }
 
     /// Linear update with measurement z = H x + v, v ~ N(0, R), solving with
@@ -206,7 +201,9 @@ impl<T: Scalar, const N: usize, F: CovarianceForm> Kalman<T, N, F> {
         check::finite(z, Operand::Measurement)?;
         check::finite(h, Operand::MeasurementMatrix)?;
         let nu = z - h * self.x;
-        self.finish(self.weigh(nu, h, r, gate)?, |_| {})
+        let mut post = self.p;
+        let weighed = self.weigh(nu, h, r, gate, &mut post)?;
+        self.finish(weighed, &post, |_| {})
     }
 
     /// Extended update through a measurement model: innovation
@@ -232,7 +229,9 @@ impl<T: Scalar, const N: usize, F: CovarianceForm> Kalman<T, N, F> {
         let h = model.jacobian(&self.x);
         check::finite(&h, Operand::MeasurementMatrix)?;
         let r = model.noise(&self.x);
-        self.finish(self.weigh(nu, &h, &r, gate)?, |x| model.normalize(x))
+        let mut post = self.p;
+        let weighed = self.weigh(nu, &h, &r, gate, &mut post)?;
+        self.finish(weighed, &post, |x| model.normalize(x))
     }
 
     /// Linear update with uncorrelated measurement noise, processed one
@@ -282,7 +281,7 @@ impl<T: Scalar, const N: usize, F: CovarianceForm> Kalman<T, N, F> {
             nis += nu * nu / s;
             let k = b / s;
             x += k * nu;
-            p = F::posterior_scalar(&p, &hi, &b, &k, r[i], s);
+            F::posterior_scalar(&mut p, &hi, &b, &k, r[i], s);
         }
         if !nis.finite() {
             return Err(FilterError::NonFinite(Operand::Innovation));
@@ -292,18 +291,21 @@ impl<T: Scalar, const N: usize, F: CovarianceForm> Kalman<T, N, F> {
         {
             return Ok(Outcome::Gated { nis });
         }
-        self.commit(x, p)?;
+        self.commit(&x, &p)?;
         Ok(Outcome::Applied { nis })
     }
 
     /// Shared update arithmetic: checks R, factors S, gates, forms the gain
-    /// and the posterior. Nothing is written to `self`.
+    /// and the posterior, the latter in `post` (which holds the prior on
+    /// entry). Nothing is written to `self`.
+    #[inline(always)]
     fn weigh<const M: usize>(
         &self,
         nu: SVector<T, M>,
         h: &SMatrix<T, M, N>,
         r: &SMatrix<T, M, M>,
         gate: Option<T>,
+        post: &mut SMatrix<T, N, N>,
     ) -> Result<Weighed<T, N>, FilterError> {
         check::finite(r, Operand::MeasurementNoise)?;
         check::symmetric(r, Operand::MeasurementNoise)?;
@@ -316,13 +318,7 @@ impl<T: Scalar, const N: usize, F: CovarianceForm> Kalman<T, N, F> {
         }
         check::finite(&nu, Operand::Innovation)?;
         // B = P H' (n x m); S = H B + R.
-        let b = self.p * h.transpose();
-        let mut s = h * b;
-        for j in 0..M {
-            for i in 0..M {
-                s[(i, j)] += r[(i, j)];
-            }
-        }
+        let (b, s) = innovation(&self.p, h, r);
         let ldl = Ldl::factor(&s).map_err(|j| FilterError::SingularInnovation { pivot: idx(j) })?;
         let nis = ldl.inverse_quadratic(&nu);
         if !nis.finite() {
@@ -335,29 +331,33 @@ impl<T: Scalar, const N: usize, F: CovarianceForm> Kalman<T, N, F> {
         }
         let k = ldl.right_divide(&b);
         let x = self.x + k * nu;
-        let p = F::posterior(&self.p, h, &b, &k, r, &s);
-        Ok(Weighed::Apply { x, p, nis })
+        F::posterior(post, h, &b, &k, r, &s);
+        Ok(Weighed::Apply { x, nis })
     }
 
+    #[inline(always)]
     fn finish(
         &mut self,
         weighed: Weighed<T, N>,
+        post: &SMatrix<T, N, N>,
         normalize: impl FnOnce(&mut SVector<T, N>),
     ) -> Result<Outcome<T>, FilterError> {
         match weighed {
             Weighed::Gate { nis } => Ok(Outcome::Gated { nis }),
-            Weighed::Apply { mut x, p, nis } => {
+            Weighed::Apply { mut x, nis } => {
                 normalize(&mut x);
-                self.commit(x, p)?;
+                self.commit(&x, post)?;
                 Ok(Outcome::Applied { nis })
             }
         }
     }
 
-    fn commit(&mut self, x: SVector<T, N>, p: SMatrix<T, N, N>) -> Result<(), FilterError> {
-        check::posterior(&x, &p)?;
-        self.x = x;
-        self.p = p;
+    /// Checks a computed state and covariance and only then stores them.
+    #[inline(always)]
+    fn commit(&mut self, x: &SVector<T, N>, p: &SMatrix<T, N, N>) -> Result<(), FilterError> {
+        check::posterior(x, p)?;
+        self.x = *x;
+        self.p = *p;
         Ok(())
     }
 }

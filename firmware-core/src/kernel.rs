@@ -33,7 +33,7 @@ pub(crate) const VECTOR: bool = cfg!(any(
 
 /// Independent partial sums for reductions whose value does not depend on
 /// the order (finiteness tests).
-const LANES: usize = if VECTOR { 8 } else { 1 };
+const LANES: usize = if VECTOR { 4 } else { 1 };
 
 /// `true` when every value is finite: v - v is +0 for a finite v and NaN
 /// for NaN or infinity, and NaN survives any sum of them, so the test does
@@ -161,6 +161,64 @@ pub(crate) fn propagate_dots<T: Scalar, const N: usize>(
     out
 }
 
+/// The shared inputs of a measurement update: B = P H' (n x m) and the
+/// innovation covariance S = H B + R (m x m, exactly symmetric).
+///
+/// `B[i,c] = sum_e P[i,e] H[c,e]` (e ascending from zero; P symmetric, so
+/// the dot shape reads P's column i); `S[i,j] = sum_e H[i,e] B[e,j]`
+/// (e ascending from zero) plus `R[i,j]` for i >= j, mirrored.
+#[inline]
+pub(crate) fn innovation<T: Scalar, const N: usize, const M: usize>(
+    p: &SMatrix<T, N, N>,
+    h: &SMatrix<T, M, N>,
+    r: &SMatrix<T, M, M>,
+) -> (SMatrix<T, N, M>, SMatrix<T, M, M>) {
+    innovation_shaped::<T, N, M, VECTOR>(p, h, r)
+}
+
+/// [`innovation`] in either shape.
+#[inline]
+pub(crate) fn innovation_shaped<T: Scalar, const N: usize, const M: usize, const COLUMNS: bool>(
+    p: &SMatrix<T, N, N>,
+    h: &SMatrix<T, M, N>,
+    r: &SMatrix<T, M, M>,
+) -> (SMatrix<T, N, M>, SMatrix<T, M, M>) {
+    let mut b = SMatrix::<T, N, M>::zeros();
+    if COLUMNS {
+        for c in 0..M {
+            for e in 0..N {
+                let hce = h[(c, e)];
+                for i in 0..N {
+                    b[(i, c)] += p[(i, e)] * hce;
+                }
+            }
+        }
+    } else {
+        for c in 0..M {
+            for i in 0..N {
+                let mut v = T::zero();
+                for e in 0..N {
+                    v += p[(e, i)] * h[(c, e)];
+                }
+                b[(i, c)] = v;
+            }
+        }
+    }
+    let mut s = SMatrix::<T, M, M>::zeros();
+    for j in 0..M {
+        for i in j..M {
+            let mut v = T::zero();
+            for e in 0..N {
+                v += h[(i, e)] * b[(e, j)];
+            }
+            let v = v + r[(i, j)];
+            s[(i, j)] = v;
+            s[(j, i)] = v;
+        }
+    }
+    (b, s)
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -203,6 +261,33 @@ mod tests {
             assert_eq!(bits(&cols), bits(&dots), "n = {N}");
             assert_eq!(cols, cols.transpose());
         }
+    }
+
+    fn innovation_shapes_agree<T: Scalar, const N: usize, const M: usize>(seed: u32) {
+        let mut g = Lcg(seed);
+        for _ in 0..50 {
+            let p = g.covariance::<T, N>();
+            let h: SMatrix<T, M, N> = g.matrix();
+            let r = g.covariance::<T, M>();
+            let (bc, sc) = innovation_shaped::<T, N, M, true>(&p, &h, &r);
+            let (bd, sd) = innovation_shaped::<T, N, M, false>(&p, &h, &r);
+            let same = bc.iter().chain(sc.iter()).zip(bd.iter().chain(sd.iter()));
+            for (x, y) in same {
+                assert_eq!(
+                    x.to_f64().to_bits(),
+                    y.to_f64().to_bits(),
+                    "n = {N}, m = {M}"
+                );
+            }
+            assert_eq!(sc, sc.transpose());
+        }
+    }
+
+    #[test]
+    fn both_innovation_shapes_compute_the_same_bits() {
+        innovation_shapes_agree::<f32, 3, 2>(21);
+        innovation_shapes_agree::<f32, 9, 3>(22);
+        innovation_shapes_agree::<f64, 15, 1>(23);
     }
 
     #[test]
