@@ -91,16 +91,17 @@ pub(crate) fn noise<T: Scalar, const N: usize>(
     if diagonal || minor {
         return Err(FilterError::NotPositiveDefinite {
             operand: what,
-            index: idx(first_indefinite(a, strict)),
+            index: idx(first_indefinite(*a, strict)),
         });
     }
     Ok(())
 }
 
 /// The row of the first failing diagonal entry or 2 x 2 minor, in the order
-/// rows are read (only on the error path).
+/// rows are read (only on the error path; by value, so the matrix need only
+/// be written to memory when this runs).
 #[cold]
-fn first_indefinite<T: Scalar, const N: usize>(a: &SMatrix<T, N, N>, strict: bool) -> usize {
+fn first_indefinite<T: Scalar, const N: usize>(a: SMatrix<T, N, N>, strict: bool) -> usize {
     let grow = T::one() + T::EPSILON * T::of(16.0);
     for i in 0..N {
         let d = a[(i, i)];
@@ -127,7 +128,9 @@ pub(crate) fn gate<T: Scalar>(g: Option<T>) -> Result<(), FilterError> {
 }
 
 /// The result of an operation, before it is committed: finite state, finite
-/// covariance with a positive diagonal.
+/// covariance (upper triangle: the lower one mirrors it) with a positive
+/// diagonal. One pass without early exits; the failing row is looked up
+/// only on the error path.
 #[inline]
 pub(crate) fn posterior<T: Scalar, const N: usize>(
     x: &SVector<T, N>,
@@ -136,36 +139,51 @@ pub(crate) fn posterior<T: Scalar, const N: usize>(
     if !all_finite(x.as_slice()) {
         return Err(FilterError::NonFinite(Operand::State));
     }
+    let mut positive = true;
     for i in 0..N {
-        let d = p[(i, i)];
-        if !(d.finite() && d > T::zero()) {
-            return Err(FilterError::CovarianceLost { index: idx(i) });
-        }
+        positive &= p[(i, i)] > T::zero();
     }
-    if !all_finite(p.as_slice()) {
-        return Err(FilterError::CovarianceLost { index: 0 });
+    if !(positive && crate::kernel::upper_finite(p)) {
+        return Err(FilterError::CovarianceLost {
+            index: idx(first_lost(*p)),
+        });
     }
     Ok(())
 }
 
-/// One extended predict's model evaluation, checked: dt positive and
-/// finite, the Jacobian finite, the propagated state finite and
-/// normalised. Q (or its sources) is left for the caller's form to check.
+/// The first diagonal entry that is not a positive finite variance, or 0
+/// when the diagonal is sound and the loss is off it.
+#[cold]
+fn first_lost<T: Scalar, const N: usize>(p: SMatrix<T, N, N>) -> usize {
+    (0..N)
+        .find(|&i| !(p[(i, i)].finite() && p[(i, i)] > T::zero()))
+        .unwrap_or(0)
+}
+
+/// The time step of an extended predict: positive and finite.
 #[inline]
-pub(crate) fn linearize<T: Scalar, const N: usize, P: ProcessModel<T, N>>(
-    model: &P,
-    x: &SVector<T, N>,
-    u: &P::Input,
-    dt: T,
-) -> Result<Linearized<T, N>, FilterError> {
-    if !(dt.finite() && dt > T::zero()) {
-        return Err(FilterError::InvalidTimeStep);
+pub(crate) fn time_step<T: Scalar>(dt: T) -> Result<(), FilterError> {
+    if dt.finite() && dt > T::zero() {
+        Ok(())
+    } else {
+        Err(FilterError::InvalidTimeStep)
     }
-    let mut lin = model.linearize(x, u, dt);
+}
+
+/// One extended predict's model evaluation, checked in place: the Jacobian
+/// finite, the propagated state finite, then normalised. Q (or its
+/// sources) is left for the caller's form to check. (In place rather than
+/// returned in a `Result`: a large enum payload would make the compiler
+/// build the whole evaluation in memory.)
+#[inline]
+pub(crate) fn linearized<T: Scalar, const N: usize, P: ProcessModel<T, N>>(
+    model: &P,
+    lin: &mut Linearized<T, N>,
+) -> Result<(), FilterError> {
     finite(&lin.jacobian, Operand::Transition)?;
     finite(&lin.next, Operand::Control)?;
     model.normalize(&mut lin.next);
-    Ok(lin)
+    Ok(())
 }
 
 /// Independent noise sources: finite, every variance non-negative.

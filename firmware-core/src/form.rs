@@ -3,7 +3,7 @@
 
 use nalgebra::{SMatrix, SVector};
 
-use crate::kernel::{VECTOR, mirror_upper};
+use crate::kernel::{VECTOR, mirror_upper, neg_zero};
 use crate::scalar::Scalar;
 
 /// How the posterior covariance is formed from the prior and the gain.
@@ -143,7 +143,7 @@ fn joseph<T: Scalar, const N: usize, const M: usize, const COLUMNS: bool>(
         }
     }
     // D = K R - W H' (n x m), as column updates.
-    let mut d = SMatrix::<T, N, M>::zeros();
+    let mut d = SMatrix::<T, N, M>::from_element(neg_zero());
     for c in 0..M {
         for e in 0..M {
             let rec = r[(e, c)];

@@ -10,7 +10,7 @@ use crate::error::{FilterError, Operand, Outcome, idx};
 use crate::form::{CovarianceForm, Joseph};
 use crate::kernel::{innovation, propagate};
 use crate::ldl::Ldl;
-use crate::model::{MeasurementModel, ProcessModel};
+use crate::model::{Linearized, MeasurementModel, ProcessModel};
 use crate::scalar::Scalar;
 
 /// A Kalman filter over `N` states in scalar `T`, with the covariance
@@ -169,10 +169,20 @@ impl<T: Scalar, const N: usize, F: CovarianceForm> Kalman<T, N, F> {
         u: &P::Input,
         dt: T,
     ) -> Result<(), FilterError> {
-        let lin = check::linearize(model, &self.x, u, dt)?;
-        check::noise(&lin.noise, Operand::ProcessNoise, false)?;
-        let p = propagate(&lin.jacobian, &self.p, &lin.noise);
-        self.commit(&lin.next, &p)
+        check::time_step(dt)?;
+        // Taken apart at once: each part stays in registers where it fits.
+        let Linearized {
+            mut next,
+            jacobian,
+            noise,
+            ..
+        } = model.linearize(&self.x, u, dt);
+        check::finite(&jacobian, Operand::Transition)?;
+        check::finite(&next, Operand::Control)?;
+        model.normalize(&mut next);
+        check::noise(&noise, Operand::ProcessNoise, false)?;
+        let p = propagate(&jacobian, &self.p, &noise);
+        self.commit(&next, &p)
     }
 
     /// Linear update with measurement z = H x + v, v ~ N(0, R), solving with

@@ -31,6 +31,14 @@ pub(crate) const VECTOR: bool = cfg!(any(
     target_arch = "aarch64"
 ));
 
+/// Negative zero, the additive identity of IEEE 754 arithmetic: -0 + a is
+/// a for every a (+0 + a is not, for a = -0), so a sum started from it has
+/// no first addition to execute; compilers drop it.
+#[inline(always)]
+pub(crate) fn neg_zero<T: Scalar>() -> T {
+    -T::zero()
+}
+
 /// Independent partial sums for reductions whose value does not depend on
 /// the order (finiteness tests).
 const LANES: usize = if VECTOR { 4 } else { 1 };
@@ -45,14 +53,14 @@ const LANES: usize = if VECTOR { 4 } else { 1 };
 #[allow(clippy::eq_op)]
 #[inline]
 pub(crate) fn all_finite<T: Scalar>(values: &[T]) -> bool {
-    let mut lanes = [T::zero(); LANES];
+    let mut lanes = [neg_zero::<T>(); LANES];
     let mut chunks = values.chunks_exact(LANES);
     for chunk in &mut chunks {
         for (acc, &v) in lanes.iter_mut().zip(chunk) {
             *acc += v - v;
         }
     }
-    let mut acc = T::zero();
+    let mut acc = neg_zero::<T>();
     for &v in chunks.remainder() {
         acc += v - v;
     }
@@ -60,6 +68,37 @@ pub(crate) fn all_finite<T: Scalar>(values: &[T]) -> bool {
         acc += lane;
     }
     acc == T::zero()
+}
+
+/// `true` when every entry on and above the diagonal is finite (the lower
+/// triangle of a mirrored matrix holds the same values). On a host, four
+/// partial sums keep the adds from waiting on each other.
+#[allow(clippy::eq_op)]
+#[inline]
+pub(crate) fn upper_finite<T: Scalar, const N: usize>(m: &SMatrix<T, N, N>) -> bool {
+    let values = m.as_slice();
+    let (mut a0, mut a1, mut a2, mut a3): (T, T, T, T) =
+        (neg_zero(), neg_zero(), neg_zero(), neg_zero());
+    for j in 0..N {
+        let column = &values[j * N..j * N + j + 1];
+        if VECTOR {
+            let mut quads = column.chunks_exact(4);
+            for q in &mut quads {
+                a0 += q[0] - q[0];
+                a1 += q[1] - q[1];
+                a2 += q[2] - q[2];
+                a3 += q[3] - q[3];
+            }
+            for &v in quads.remainder() {
+                a0 += v - v;
+            }
+        } else {
+            for &v in column {
+                a0 += v - v;
+            }
+        }
+    }
+    a0 + a1 + a2 + a3 == T::zero()
 }
 
 /// Copies the upper triangle onto the lower one.
@@ -99,7 +138,7 @@ pub(crate) fn propagate_columns<T: Scalar, const N: usize>(
     q: &SMatrix<T, N, N>,
 ) -> SMatrix<T, N, N> {
     // C = F P, column e = sum_k F[:,k] P[k,e].
-    let mut c = SMatrix::<T, N, N>::zeros();
+    let mut c = SMatrix::<T, N, N>::from_element(neg_zero());
     for e in 0..N {
         for k in 0..N {
             let pke = p[(k, e)];
@@ -110,7 +149,7 @@ pub(crate) fn propagate_columns<T: Scalar, const N: usize>(
     }
     // Column j of C F' in full (the lanes below the diagonal are as cheap
     // as idle), then Q, then the upper triangle mirrored.
-    let mut out = SMatrix::<T, N, N>::zeros();
+    let mut out = SMatrix::<T, N, N>::from_element(neg_zero());
     for j in 0..N {
         for e in 0..N {
             let fje = f[(j, e)];
@@ -139,7 +178,7 @@ pub(crate) fn propagate_dots<T: Scalar, const N: usize>(
     let mut a = SMatrix::<T, N, N>::zeros();
     for i in 0..N {
         for e in 0..N {
-            let mut v = T::zero();
+            let mut v = neg_zero::<T>();
             for k in 0..N {
                 v += p[(k, e)] * ft[(k, i)];
             }
@@ -149,7 +188,7 @@ pub(crate) fn propagate_dots<T: Scalar, const N: usize>(
     let mut out = SMatrix::<T, N, N>::zeros();
     for j in 0..N {
         for i in 0..=j {
-            let mut v = T::zero();
+            let mut v = neg_zero::<T>();
             for e in 0..N {
                 v += a[(e, i)] * ft[(e, j)];
             }
@@ -183,7 +222,7 @@ pub(crate) fn innovation_shaped<T: Scalar, const N: usize, const M: usize, const
     h: &SMatrix<T, M, N>,
     r: &SMatrix<T, M, M>,
 ) -> (SMatrix<T, N, M>, SMatrix<T, M, M>) {
-    let mut b = SMatrix::<T, N, M>::zeros();
+    let mut b = SMatrix::<T, N, M>::from_element(neg_zero());
     if COLUMNS {
         for c in 0..M {
             for e in 0..N {
@@ -196,7 +235,7 @@ pub(crate) fn innovation_shaped<T: Scalar, const N: usize, const M: usize, const
     } else {
         for c in 0..M {
             for i in 0..N {
-                let mut v = T::zero();
+                let mut v = neg_zero::<T>();
                 for e in 0..N {
                     v += p[(e, i)] * h[(c, e)];
                 }
@@ -204,16 +243,36 @@ pub(crate) fn innovation_shaped<T: Scalar, const N: usize, const M: usize, const
             }
         }
     }
-    let mut s = SMatrix::<T, M, M>::zeros();
-    for j in 0..M {
-        for i in j..M {
-            let mut v = T::zero();
+    let mut s = SMatrix::<T, M, M>::from_element(neg_zero());
+    if COLUMNS {
+        for j in 0..M {
             for e in 0..N {
-                v += h[(i, e)] * b[(e, j)];
+                let bej = b[(e, j)];
+                for i in 0..M {
+                    s[(i, j)] += h[(i, e)] * bej;
+                }
             }
-            let v = v + r[(i, j)];
-            s[(i, j)] = v;
-            s[(j, i)] = v;
+            for i in 0..M {
+                s[(i, j)] += r[(i, j)];
+            }
+        }
+        // Lower triangle onto the upper one.
+        for j in 1..M {
+            for i in 0..j {
+                s[(i, j)] = s[(j, i)];
+            }
+        }
+    } else {
+        for j in 0..M {
+            for i in j..M {
+                let mut v = neg_zero::<T>();
+                for e in 0..N {
+                    v += h[(i, e)] * b[(e, j)];
+                }
+                let v = v + r[(i, j)];
+                s[(i, j)] = v;
+                s[(j, i)] = v;
+            }
         }
     }
     (b, s)

@@ -84,7 +84,7 @@ impl<T: Scalar, const M: usize> Ldl<T, M> {
     /// The quadratic form b' S^-1 b, computed as sum (L^-1 b)_i^2 / d_i.
     pub fn inverse_quadratic(&self, b: &SVector<T, M>) -> T {
         let mut w = *b;
-        let mut acc = T::zero();
+        let mut acc = crate::kernel::neg_zero::<T>();
         for i in 0..M {
             let mut v = w[i];
             for k in 0..i {

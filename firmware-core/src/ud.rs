@@ -193,7 +193,9 @@ impl<T: Scalar, const N: usize> UdKalman<T, N> {
         u: &P::Input,
         dt: T,
     ) -> Result<(), FilterError> {
-        let lin = check::linearize(model, &self.x, u, dt)?;
+        check::time_step(dt)?;
+        let mut lin = model.linearize(&self.x, u, dt);
+        check::linearized(model, &mut lin)?;
         let ud = match lin.sources {
             Some((g, q)) => {
                 check::sources(&g, &q)?;

@@ -97,6 +97,10 @@ pub struct CostArgs {
     /// channel rates).
     #[arg(long, value_name = "PATH")]
     pub spec: Option<PathBuf>,
+    /// Also print one operation instruction by instruction: every executed
+    /// instruction with its runs and M4 cycles per call.
+    #[arg(long, value_name = "NAME")]
+    pub profile: Option<String>,
 }
 
 /// Where the reports go.
@@ -297,6 +301,16 @@ fn cost(a: &CostArgs) -> Result<u8, Failure> {
     };
     let report = crate::cost::estimate(&config).map_err(bad)?;
     print!("{}", report.render());
+    if let Some(name) = &a.profile {
+        let Some(op) = report.operation(name) else {
+            let known: Vec<&str> = report.operations.iter().map(|o| o.name.as_str()).collect();
+            return Err(bad(Message(format!(
+                "--profile {name}: no such operation; the ELF has: {}",
+                known.join(", ")
+            ))));
+        };
+        print!("\n{}", op.render_profile());
+    }
     Ok(EXIT_PASS)
 }
 

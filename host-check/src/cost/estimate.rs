@@ -73,6 +73,8 @@ pub struct Tally {
     pub unlisted: u64,
     /// M4 cycles by instruction group, in the order of [`GROUPS`].
     pub group_cycles: [u64; 6],
+    /// Executions and M4 cycles by instruction address.
+    pub by_address: BTreeMap<u32, (u64, u64)>,
 }
 
 /// Instruction groups for the report's cycle breakdown.
@@ -237,6 +239,9 @@ pub fn attribute(
             t.instructions += 1;
             t.m4_cycles += cycles;
             t.group_cycles[group(class)] += cycles;
+            let at = t.by_address.entry(addr).or_default();
+            at.0 += 1;
+            at.1 += cycles;
             t.m7.add(class, 1, u64::from(taken && class.is_branch()));
             let e = t.classes.entry(class).or_default();
             e.0 += 1;

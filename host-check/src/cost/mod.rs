@@ -24,7 +24,9 @@ use std::process::{Command, Stdio};
 use std::time::{Duration, Instant};
 
 use estimate::{FpOps, Tally, attribute};
-use listing::{Function, parse_disassembly, parse_symbols};
+use std::collections::HashMap;
+
+use listing::{Function, Instruction, function_at, parse_disassembly, parse_symbols};
 
 /// Where the probe symbols live.
 pub const PROBE_PATH: &str = "cairn_on_target::probe::";
@@ -157,10 +159,33 @@ pub struct OperationCost {
     pub soft_share: f64,
     /// Share of the M4 cycles by instruction group ([`estimate::GROUPS`]).
     pub mix: [f64; 6],
+    /// Every instruction executed under the probe, in address order.
+    pub profile: Vec<ProfileLine>,
+}
+
+/// One instruction of an operation's profile.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ProfileLine {
+    /// Address.
+    pub addr: u32,
+    /// The function it belongs to (short name).
+    pub function: String,
+    /// Mnemonic and operands as disassembled.
+    pub text: String,
+    /// Executions per call.
+    pub count: f64,
+    /// M4 cycles per call.
+    pub cycles: f64,
 }
 
 impl OperationCost {
-    fn from_tally(name: &str, t: &Tally, rate_hz: Option<f64>) -> Self {
+    fn from_tally(
+        name: &str,
+        t: &Tally,
+        rate_hz: Option<f64>,
+        listing: &HashMap<u32, Instruction>,
+        functions: &[Function],
+    ) -> Self {
         let total = t.m4_cycles.max(1) as f64;
         let mut hot: Vec<(String, f64)> = t
             .by_function
@@ -203,7 +228,44 @@ impl OperationCost {
                 .map(|(_, &c)| c as f64 / total)
                 .sum(),
             mix: t.group_cycles.map(|c| c as f64 / total),
+            profile: t
+                .by_address
+                .iter()
+                .map(|(&addr, &(count, cycles))| ProfileLine {
+                    addr,
+                    function: function_at(functions, addr)
+                        .map_or_else(|| "?".to_string(), |f| short_name(&f.name)),
+                    text: listing.get(&addr).map_or_else(String::new, |i| {
+                        format!("{} {}", i.mnemonic, i.operands).trim().to_string()
+                    }),
+                    count: t.per_call(count),
+                    cycles: t.per_call(cycles),
+                })
+                .collect(),
         }
+    }
+
+    /// The profile as text: one line per executed instruction, with its
+    /// executions and M4 cycles per call, grouped by function.
+    pub fn render_profile(&self) -> String {
+        let mut out = format!(
+            "{}: {:.0} M4 cycles per call, instruction by instruction\n\
+             {:>8}  {:>7}  {:>7}  instruction\n",
+            self.name, self.m4_cycles, "address", "runs", "cycles"
+        );
+        let mut current = "";
+        for line in &self.profile {
+            if line.function != current {
+                current = &line.function;
+                let _ = writeln!(out, "{current}:");
+            }
+            let _ = writeln!(
+                out,
+                "{:>8x}  {:>7.2}  {:>7.2}  {}",
+                line.addr, line.count, line.cycles, line.text
+            );
+        }
+        out
     }
 
     /// Per-call value of an operation count.
@@ -755,7 +817,7 @@ pub fn estimate(config: &CostConfig) -> Result<CostReport, CostError> {
     let operations: Vec<OperationCost> = probes
         .iter()
         .zip(&tallies)
-        .map(|((name, _), t)| OperationCost::from_tally(name, t, rate(name)))
+        .map(|((name, _), t)| OperationCost::from_tally(name, t, rate(name), &listing, &functions))
         .collect();
     let warnings = warnings(
         &operations,
@@ -888,6 +950,7 @@ mod tests {
             callees: Vec::new(),
             soft_share: 0.0,
             mix: [0.0; 6],
+            profile: Vec::new(),
         };
         assert!((o.micros(168.0) - 10.0).abs() < 1e-12);
         assert!((o.cpu_share(168.0) - 0.002).abs() < 1e-15);
@@ -939,6 +1002,21 @@ mod tests {
             report.warnings
         );
         assert!(report.cpu_share() > 0.0);
+        // The instruction profile accounts for every cycle and instruction
+        // of the call, and shows the multiplies counted above.
+        for o in [predict, position, heading] {
+            let cycles: f64 = o.profile.iter().map(|l| l.cycles).sum();
+            let runs: f64 = o.profile.iter().map(|l| l.count).sum();
+            assert!((cycles - o.m4_cycles).abs() < 1e-6, "{}", o.name);
+            assert!((runs - o.instructions).abs() < 1e-6, "{}", o.name);
+        }
+        assert!(
+            predict
+                .profile
+                .iter()
+                .any(|l| l.text.starts_with("vmul.f32"))
+        );
+        assert!(predict.render_profile().contains("vmul.f32"));
     }
 
     #[test]

@@ -605,6 +605,7 @@ mod tests {
             callees: Vec::new(),
             soft_share: 0.0,
             mix: [0.0; 6],
+            profile: Vec::new(),
         }
     }
 
