@@ -10,7 +10,7 @@ use crate::scalar::Scalar;
 pub(crate) use crate::kernel::all_finite;
 
 /// Every entry finite.
-#[inline]
+#[inline(always)]
 pub(crate) fn finite<T: Scalar, const R: usize, const C: usize>(
     a: &SMatrix<T, R, C>,
     what: Operand,
@@ -25,7 +25,7 @@ pub(crate) fn finite<T: Scalar, const R: usize, const C: usize>(
 /// Symmetric to within a few roundings of its diagonal (common practice:
 /// inputs assembled in floating point may differ by an ulp across the
 /// diagonal).
-#[inline]
+#[inline(always)]
 pub(crate) fn symmetric<T: Scalar, const N: usize>(
     a: &SMatrix<T, N, N>,
     what: Operand,
@@ -42,7 +42,7 @@ pub(crate) fn symmetric<T: Scalar, const N: usize>(
 /// set) when some 2 x 2 principal minor is negative beyond 16 eps. No
 /// early exit: the pass costs the same whatever the values, and a host
 /// runs its comparisons without waiting on branches.
-#[inline]
+#[inline(always)]
 fn pairs<T: Scalar, const N: usize>(a: &SMatrix<T, N, N>, minors: bool) -> (bool, bool) {
     let tol = T::EPSILON * T::of(16.0);
     let grow = T::one() + tol;
@@ -72,7 +72,7 @@ fn pairs<T: Scalar, const N: usize>(a: &SMatrix<T, N, N>, minors: bool) -> (bool
 /// 2 x 2 principal minor non-negative (necessary for positive
 /// semidefiniteness, to within rounding; O(n^2)). With `strict`, the
 /// diagonal must be positive.
-#[inline]
+#[inline(always)]
 pub(crate) fn noise<T: Scalar, const N: usize>(
     a: &SMatrix<T, N, N>,
     what: Operand,
@@ -119,7 +119,7 @@ fn first_indefinite<T: Scalar, const N: usize>(a: SMatrix<T, N, N>, strict: bool
 }
 
 /// The gate threshold, when given, must be finite and positive.
-#[inline]
+#[inline(always)]
 pub(crate) fn gate<T: Scalar>(g: Option<T>) -> Result<(), FilterError> {
     match g {
         Some(v) if !(v.finite() && v > T::zero()) => Err(FilterError::NonFinite(Operand::Gate)),
@@ -131,7 +131,7 @@ pub(crate) fn gate<T: Scalar>(g: Option<T>) -> Result<(), FilterError> {
 /// covariance (upper triangle: the lower one mirrors it) with a positive
 /// diagonal. One pass without early exits; the failing row is looked up
 /// only on the error path.
-#[inline]
+#[inline(always)]
 pub(crate) fn posterior<T: Scalar, const N: usize>(
     x: &SVector<T, N>,
     p: &SMatrix<T, N, N>,
@@ -161,7 +161,7 @@ fn first_lost<T: Scalar, const N: usize>(p: SMatrix<T, N, N>) -> usize {
 }
 
 /// The time step of an extended predict: positive and finite.
-#[inline]
+#[inline(always)]
 pub(crate) fn time_step<T: Scalar>(dt: T) -> Result<(), FilterError> {
     if dt.finite() && dt > T::zero() {
         Ok(())
@@ -175,7 +175,7 @@ pub(crate) fn time_step<T: Scalar>(dt: T) -> Result<(), FilterError> {
 /// sources) is left for the caller's form to check. (In place rather than
 /// returned in a `Result`: a large enum payload would make the compiler
 /// build the whole evaluation in memory.)
-#[inline]
+#[inline(always)]
 pub(crate) fn linearized<T: Scalar, const N: usize, P: ProcessModel<T, N>>(
     model: &P,
     lin: &mut Linearized<T, N>,
@@ -187,7 +187,7 @@ pub(crate) fn linearized<T: Scalar, const N: usize, P: ProcessModel<T, N>>(
 }
 
 /// Independent noise sources: finite, every variance non-negative.
-#[inline]
+#[inline(always)]
 pub(crate) fn sources<T: Scalar, const N: usize>(
     g: &SMatrix<T, N, N>,
     q: &SVector<T, N>,
@@ -204,7 +204,7 @@ pub(crate) fn sources<T: Scalar, const N: usize>(
 }
 
 /// x - offset, when both the offset and the result are finite.
-#[inline]
+#[inline(always)]
 pub(crate) fn shifted<T: Scalar, const N: usize>(
     x: &SVector<T, N>,
     offset: &SVector<T, N>,

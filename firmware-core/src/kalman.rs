@@ -8,7 +8,7 @@ use nalgebra::{SMatrix, SVector};
 use crate::check;
 use crate::error::{FilterError, Operand, Outcome, idx};
 use crate::form::{CovarianceForm, Joseph};
-use crate::kernel::{innovation, propagate};
+use crate::kernel::{innovation, mirror_upper, propagate};
 use crate::ldl::Ldl;
 use crate::model::{Linearized, MeasurementModel, ProcessModel};
 use crate::scalar::Scalar;
@@ -292,6 +292,8 @@ impl<T: Scalar, const N: usize, F: CovarianceForm> Kalman<T, N, F> {
             let k = b / s;
             x += k * nu;
             F::posterior_scalar(&mut p, &hi, &b, &k, r[i], s);
+            // The next component reads the whole matrix.
+            mirror_upper(&mut p);
         }
         if !nis.finite() {
             return Err(FilterError::NonFinite(Operand::Innovation));
@@ -362,12 +364,20 @@ impl<T: Scalar, const N: usize, F: CovarianceForm> Kalman<T, N, F> {
         }
     }
 
-    /// Checks a computed state and covariance and only then stores them.
+    /// Checks a computed state and the upper triangle of a computed
+    /// covariance, and only then stores them, the covariance mirrored so it
+    /// is exactly symmetric (the copy the commit makes anyway).
     #[inline(always)]
     fn commit(&mut self, x: &SVector<T, N>, p: &SMatrix<T, N, N>) -> Result<(), FilterError> {
         check::posterior(x, p)?;
         self.x = *x;
-        self.p = *p;
+        for j in 0..N {
+            for i in 0..=j {
+                let v = p[(i, j)];
+                self.p[(i, j)] = v;
+                self.p[(j, i)] = v;
+            }
+        }
         Ok(())
     }
 }

@@ -37,6 +37,7 @@ pub struct PlanarOdometry<T> {
 }
 
 impl<T: Scalar> PlanarOdometry<T> {
+    #[inline(always)]
     fn midpoint(x: &Vector3<T>, u: &Odometry<T>, dt: T) -> (T, T) {
         (x[2] + u.yaw_rate * dt * T::of(0.5)).sin_cos_rad()
     }
@@ -76,6 +77,7 @@ impl<T: Scalar> ProcessModel<T, 3> for PlanarOdometry<T> {
         Some(self.sources_at(s, c, u, dt))
     }
 
+    #[inline(always)]
     fn linearize(&self, x: &Vector3<T>, u: &Odometry<T>, dt: T) -> Linearized<T, 3> {
         // One sine and cosine of the midpoint heading serve all four parts.
         let (s, c) = Self::midpoint(x, u, dt);
@@ -101,6 +103,7 @@ impl<T: Scalar> PlanarOdometry<T> {
     /// Noise sources at the midpoint heading (sine `s`, cosine `c`): the
     /// speed reading, the yaw-rate reading and heading drift, as the columns
     /// of the input Jacobian G with their variances.
+    #[inline(always)]
     fn sources_at(&self, s: T, c: T, u: &Odometry<T>, dt: T) -> (SMatrix<T, 3, 3>, Vector3<T>) {
         let half = T::of(0.5);
         let g = SMatrix::<T, 3, 3>::new(
@@ -120,6 +123,7 @@ impl<T: Scalar> PlanarOdometry<T> {
 }
 
 /// Q = G diag(q) G', upper triangle computed and mirrored.
+#[inline(always)]
 fn noise_from<T: Scalar>(g: &SMatrix<T, 3, 3>, q: &Vector3<T>) -> SMatrix<T, 3, 3> {
     let mut out = SMatrix::<T, 3, 3>::zeros();
     for j in 0..3 {
