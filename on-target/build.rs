@@ -46,6 +46,18 @@ pub fn linear{n}_predict(
 ) -> Result<(), FilterError> {{
     filter.predict(f, q)
 }}
+
+/// Linear U-D predict, n = {n}: Q factored as U-D, then Thornton's time
+/// update (Bierman, *Factorization Methods for Discrete Sequential
+/// Estimation*, 1977).
+#[inline(never)]
+pub fn linear{n}_ud_predict(
+    filter: &mut UdKalman<f32, {n}>,
+    f: &SMatrix<f32, {n}, {n}>,
+    q: &SMatrix<f32, {n}, {n}>,
+) -> Result<(), FilterError> {{
+    filter.predict(f, q)
+}}
 "#
             );
         }
@@ -66,6 +78,22 @@ pub fn linear{n}_update{m}_{form}(
 "#
             );
         }
+        let _ = write!(
+            s,
+            r#"
+/// Linear U-D update, n = {n}, m = {m}: a general R decorrelated by its LDL'
+/// factors, then Bierman's scalar update per component (Bierman, 1977).
+#[inline(never)]
+pub fn linear{n}_update{m}_ud(
+    filter: &mut UdKalman<f32, {n}>,
+    z: &SVector<f32, {m}>,
+    h: &SMatrix<f32, {m}, {n}>,
+    r: &SMatrix<f32, {m}, {m}>,
+) -> Result<Outcome<f32>, FilterError> {{
+    filter.update(z, h, r, None)
+}}
+"#
+        );
     }
     // The driver: every generated probe, `calls` times each.
     s.push_str(
@@ -81,13 +109,18 @@ pub fn linear{n}_update{m}_{form}(
         let p0 = SMatrix::<f32, {n}, {n}>::identity();
         let mut joseph = Kalman::<f32, {n}, Joseph>::new_unchecked(SVector::zeros(), p0);
         let mut conventional = Kalman::<f32, {n}, Conventional>::new_unchecked(SVector::zeros(), p0);
+        // P0 = I always factors; were it refused, the U-D probes would not
+        // run and the estimator would flag their missing calls.
+        let Ok(mut ud) = UdKalman::<f32, {n}>::try_new(SVector::zeros(), p0) else {{
+            return failures + 1;
+        }};
 "#
         );
         if !predicted.contains(&n) {
             predicted.push(n);
             let _ = write!(
                 s,
-                "        for _ in 0..calls {{\n            failures += u32::from(linear{n}_predict(black_box(&mut joseph), &f, &q).is_err());\n        }}\n"
+                "        for _ in 0..calls {{\n            failures += u32::from(linear{n}_predict(black_box(&mut joseph), &f, &q).is_err());\n            failures += u32::from(linear{n}_ud_predict(black_box(&mut ud), &f, &q).is_err());\n        }}\n"
             );
         }
         let _ = write!(
@@ -96,6 +129,7 @@ pub fn linear{n}_update{m}_{form}(
             let z = SVector::<f32, {m}>::from_fn(|_, _| 0.1 * noise.signed_unit());
             failures += u32::from(linear{n}_update{m}_joseph(black_box(&mut joseph), &z, &h, &r).is_err());
             failures += u32::from(linear{n}_update{m}_conventional(black_box(&mut conventional), &z, &h, &r).is_err());
+            failures += u32::from(linear{n}_update{m}_ud(black_box(&mut ud), &z, &h, &r).is_err());
         }}
     }}
 "#

@@ -8,7 +8,7 @@
 use cairn_core::pose::{HeadingFix, Odometry, PlanarOdometry, PositionFix};
 use core::hint::black_box;
 
-use cairn_core::{Conventional, FilterError, Joseph, Kalman, Outcome};
+use cairn_core::{Conventional, FilterError, Joseph, Kalman, Outcome, UdKalman};
 use nalgebra::{SMatrix, SVector, Vector1, Vector2};
 
 use crate::scenario::Lcg;
@@ -46,6 +46,43 @@ pub fn pose_heading_update(
     filter.update_with(model, z, gate)
 }
 
+/// U-D pose filter predict: the odometry step through the planar model,
+/// Thornton's time update on the model's noise sources (Bierman,
+/// *Factorization Methods for Discrete Sequential Estimation*, 1977).
+#[inline(never)]
+pub fn pose_ud_predict(
+    filter: &mut UdKalman<f32, 3>,
+    model: &PlanarOdometry<f32>,
+    odo: &Odometry<f32>,
+    dt: f32,
+) -> Result<(), FilterError> {
+    filter.predict_with(model, odo, dt)
+}
+
+/// U-D pose filter update with a position fix (m = 2): R decorrelated by
+/// its LDL' factors, then Bierman's scalar update per component.
+#[inline(never)]
+pub fn pose_ud_position_update(
+    filter: &mut UdKalman<f32, 3>,
+    model: &PositionFix<f32>,
+    z: &Vector2<f32>,
+    gate: Option<f32>,
+) -> Result<Outcome<f32>, FilterError> {
+    filter.update_with(model, z, gate)
+}
+
+/// U-D pose filter update with a heading fix (m = 1): one Bierman scalar
+/// update.
+#[inline(never)]
+pub fn pose_ud_heading_update(
+    filter: &mut UdKalman<f32, 3>,
+    model: &HeadingFix<f32>,
+    z: &Vector1<f32>,
+    gate: Option<f32>,
+) -> Result<Outcome<f32>, FilterError> {
+    filter.update_with(model, z, gate)
+}
+
 /// A linear model of `N` states and `M` measurements for the probes: a chain
 /// of integrators over 10 ms (F = I plus dt on the superdiagonal), Q = 1e-4 I,
 /// a random H and R = 0.01 I.
@@ -74,5 +111,6 @@ pub fn linear_model<const N: usize, const M: usize>(
 
 // The linear probes, one set per size in CAIRN_COST_SIZES (build.rs):
 // `linear{N}_predict`, `linear{N}_update{M}_joseph`,
-// `linear{N}_update{M}_conventional`, and `run_linear`, which calls them.
+// `linear{N}_update{M}_conventional`, their U-D twins `linear{N}_ud_predict`
+// and `linear{N}_update{M}_ud`, and `run_linear`, which calls them.
 include!(concat!(env!("OUT_DIR"), "/linear_probes.rs"));

@@ -32,12 +32,22 @@ use listing::{Function, Instruction, function_at, parse_disassembly, parse_symbo
 pub const PROBE_PATH: &str = "cairn_on_target::probe::";
 
 /// The demo's rates (odometry 200 Hz, beacon fix 4 Hz, sun compass 1 Hz), used
-/// for the pose probes when no rate is given.
-pub const DEMO_RATES: [(&str, f64); 3] = [
+/// for the pose probes of both filters (Joseph and U-D) when no rate is given.
+pub const DEMO_RATES: [(&str, f64); 6] = [
     ("pose_predict", 200.0),
     ("pose_position_update", 4.0),
     ("pose_heading_update", 1.0),
+    ("pose_ud_predict", 200.0),
+    ("pose_ud_position_update", 4.0),
+    ("pose_ud_heading_update", 1.0),
 ];
+
+/// Whether a probe runs the U-D factored filter (`pose_ud_*`,
+/// `linear{N}_ud_predict`, `linear{N}_update{M}_ud`) rather than one of the
+/// covariance forms.
+pub fn is_ud_probe(name: &str) -> bool {
+    name.starts_with("pose_ud_") || name.contains("_ud_") || name.ends_with("_ud")
+}
 
 /// What to estimate and for which clock and rates.
 #[derive(Debug, Clone, PartialEq)]
@@ -315,8 +325,15 @@ impl CostReport {
 
     /// CPU share of every operation with a rate, 0 to 1.
     pub fn cpu_share(&self) -> f64 {
+        self.cpu_share_where(|_| true)
+    }
+
+    /// CPU share of the operations with a rate whose probe name passes
+    /// `keep`, 0 to 1.
+    pub fn cpu_share_where(&self, keep: impl Fn(&str) -> bool) -> f64 {
         self.operations
             .iter()
+            .filter(|o| keep(&o.name))
             .map(|o| o.cpu_share(self.clock_mhz))
             .sum()
     }
@@ -381,12 +398,30 @@ impl CostReport {
                 share
             );
         }
-        let _ = writeln!(
-            s,
-            "\nCPU share at the given rates: {:.2}% of {} MHz",
-            100.0 * self.cpu_share(),
-            self.clock_mhz
-        );
+        // A firmware runs one filter: with rates on both kinds of probe, the
+        // shares are given per filter, not summed.
+        let rated = |ud: bool| {
+            self.operations
+                .iter()
+                .any(|o| o.rate_hz.is_some() && is_ud_probe(&o.name) == ud)
+        };
+        if rated(false) && rated(true) {
+            let _ = writeln!(
+                s,
+                "\nCPU share at the given rates: {:.2}% of {} MHz with the covariance-form \
+                 probes, {:.2}% with the U-D probes",
+                100.0 * self.cpu_share_where(|n| !is_ud_probe(n)),
+                self.clock_mhz,
+                100.0 * self.cpu_share_where(is_ud_probe)
+            );
+        } else {
+            let _ = writeln!(
+                s,
+                "\nCPU share at the given rates: {:.2}% of {} MHz",
+                100.0 * self.cpu_share(),
+                self.clock_mhz
+            );
+        }
         let _ = writeln!(s, "\nwhere the M4 cycles go (share of each call):");
         for o in &self.operations {
             let hot: Vec<String> = o
@@ -480,8 +515,8 @@ pub struct SpecProbes {
 
 /// The probes and rates a spec asks for: the sizes of a linear model's
 /// channels, or the pose probes; rates from the step rate (predict) and each
-/// channel's rate (its update, in the form the spec flashes). Notes say what
-/// the probes cannot match.
+/// channel's rate (its update, in the form the spec flashes; a U-D spec gets
+/// the U-D predict and updates). Notes say what the probes cannot match.
 pub fn plan_probes(plan: &crate::spec::Plan) -> SpecProbes {
     use crate::spec::{ChannelKind, ModelPlan};
     let n = plan.states.len();
@@ -492,8 +527,10 @@ pub fn plan_probes(plan: &crate::spec::Plan) -> SpecProbes {
         Some(r) => r.1 += hz,
         None => rates.push((name, hz)),
     };
+    // The probe name's suffix for the flashed form.
     let form = match plan.flash.form.as_str() {
         f @ ("joseph" | "conventional") => f.to_string(),
+        "u-d" => "ud".to_string(),
         other => {
             notes.push(format!(
                 "the spec flashes the {other} form; the probes price the Joseph form instead"
@@ -508,13 +545,20 @@ pub fn plan_probes(plan: &crate::spec::Plan) -> SpecProbes {
                 .to_string(),
         );
     }
+    // The pose probes have one Joseph set and one U-D set.
+    let pose = if form == "ud" { "pose_ud" } else { "pose" };
     match &plan.model {
         ModelPlan::Pose { .. } => {
-            add("pose_predict".into(), plan.step_hz);
+            if form == "conventional" {
+                notes.push(
+                    "the pose probes price the Joseph form, not the conventional one".to_string(),
+                );
+            }
+            add(format!("{pose}_predict"), plan.step_hz);
             for c in &plan.channels {
                 match c.kind {
-                    ChannelKind::Position => add("pose_position_update".into(), c.rate_hz),
-                    ChannelKind::Heading => add("pose_heading_update".into(), c.rate_hz),
+                    ChannelKind::Position => add(format!("{pose}_position_update"), c.rate_hz),
+                    ChannelKind::Heading => add(format!("{pose}_heading_update"), c.rate_hz),
                     ChannelKind::Linear(_) => notes.push(format!(
                         "channel {}: no probe for a linear channel on the pose model",
                         c.name
@@ -523,7 +567,12 @@ pub fn plan_probes(plan: &crate::spec::Plan) -> SpecProbes {
             }
         }
         _ => {
-            add(format!("linear{n}_predict"), plan.step_hz);
+            let predict = if form == "ud" {
+                "ud_predict"
+            } else {
+                "predict"
+            };
+            add(format!("linear{n}_{predict}"), plan.step_hz);
             for c in &plan.channels {
                 if !sizes.contains(&(n, c.m)) {
                     sizes.push((n, c.m));
@@ -696,9 +745,9 @@ fn trace_qemu(elf: &Path, timeout: Duration) -> Result<(String, String), CostErr
     Ok((text?, stdout))
 }
 
-/// The probes in the ELF: (name, entry address), the pose probes first,
-/// then the linear ones by state size, predict before the updates, then any
-/// others.
+/// The probes in the ELF: (name, entry address), the pose probes first
+/// (each Joseph operation followed by its U-D twin), then the linear ones by
+/// state size, predicts before the updates, then any others.
 pub fn probes(functions: &[Function]) -> Vec<(String, u32)> {
     let mut found: Vec<(String, u32)> = functions
         .iter()
@@ -711,8 +760,11 @@ pub fn probes(functions: &[Function]) -> Vec<(String, u32)> {
     let key = |name: &str| {
         let pose = [
             "pose_predict",
+            "pose_ud_predict",
             "pose_position_update",
+            "pose_ud_position_update",
             "pose_heading_update",
+            "pose_ud_heading_update",
         ];
         if let Some(i) = pose.iter().position(|p| *p == name) {
             return (0, i, String::new());
@@ -1017,6 +1069,53 @@ mod tests {
                 .any(|l| l.text.starts_with("vmul.f32"))
         );
         assert!(predict.render_profile().contains("vmul.f32"));
+
+        // The U-D twins, on the same scenario and the same demo rates.
+        let ud_predict = report
+            .operation("pose_ud_predict")
+            .expect("pose_ud_predict probe");
+        let ud_position = report
+            .operation("pose_ud_position_update")
+            .expect("U-D position probe");
+        let ud_heading = report
+            .operation("pose_ud_heading_update")
+            .expect("U-D heading probe");
+        let linear_ud_predict = report
+            .operation("linear9_ud_predict")
+            .expect("linear U-D predict probe");
+        let linear_ud_update = report
+            .operation("linear9_update3_ud")
+            .expect("linear U-D update probe");
+        for (o, hz) in [
+            (ud_predict, Some(200.0)),
+            (ud_position, Some(4.0)),
+            (ud_heading, Some(1.0)),
+            (linear_ud_predict, None),
+            (linear_ud_update, None),
+        ] {
+            assert_eq!(o.calls, 16, "{}", o.name);
+            assert_eq!(o.rate_hz, hz, "{}", o.name);
+            assert!(o.m4_cycles >= o.instructions, "{}", o.name);
+            assert!(o.m4_cycles <= 14.0 * o.instructions, "{}", o.name);
+            assert!(o.bound > 0.0 && o.m4_cycles > o.bound, "{}", o.name);
+        }
+        // Bierman's measurement update (G. J. Bierman, Factorization Methods
+        // for Discrete Sequential Estimation, 1977) processes one scalar
+        // component at a time and divides by that component's innovation
+        // variance, with no square root (checked above for every probe):
+        // at least one divide per component, m = 2, 1 and 3.
+        let div = |o: &OperationCost| o.per_call(o.fp_total.div);
+        assert!(div(ud_position) >= 2.0, "{}", div(ud_position));
+        assert!(div(ud_heading) >= 1.0, "{}", div(ud_heading));
+        assert!(div(linear_ud_update) >= 3.0, "{}", div(linear_ud_update));
+        // Thornton's time update (same book) divides once per off-diagonal
+        // entry of the new U: n (n - 1) / 2 = 3 for the pose, 36 for n = 9.
+        assert!(div(ud_predict) >= 3.0, "{}", div(ud_predict));
+        assert!(div(linear_ud_predict) >= 36.0, "{}", div(linear_ud_predict));
+        // With demo rates on both filters the report gives a share for each.
+        assert!(report.cpu_share_where(is_ud_probe) > 0.0);
+        assert!(report.cpu_share_where(|n| !is_ud_probe(n)) > 0.0);
+        assert!(report.render().contains("with the U-D probes"));
     }
 
     #[test]
@@ -1033,16 +1132,24 @@ mod tests {
             f("linear15_predict", 12),
             f("pose_predict", 16),
             f("main_loop", 20),
+            f("pose_ud_predict", 24),
+            f("linear15_update3_ud", 28),
+            f("linear15_ud_predict", 32),
+            f("pose_ud_heading_update", 36),
         ];
         let names: Vec<String> = probes(&functions).into_iter().map(|p| p.0).collect();
         assert_eq!(
             names,
             [
                 "pose_predict",
+                "pose_ud_predict",
                 "pose_heading_update",
+                "pose_ud_heading_update",
                 "linear2_predict",
                 "linear15_predict",
+                "linear15_ud_predict",
                 "linear15_update3_joseph",
+                "linear15_update3_ud",
                 "main_loop"
             ]
         );
@@ -1065,6 +1172,42 @@ mod tests {
         assert_eq!(wanted.sizes, vec![(2, 1)]);
         assert_eq!(rate(&wanted, "linear2_predict"), Some(50.0));
         assert_eq!(rate(&wanted, "linear2_update1_joseph"), Some(50.0));
+        // The same specs flashing U-D get the U-D probes, and only those.
+        let mut plan = plan;
+        plan.flash.form = "u-d".into();
+        let wanted = plan_probes(&plan);
+        assert_eq!(wanted.sizes, vec![(2, 1)]);
+        assert!(wanted.notes.is_empty(), "{:?}", wanted.notes);
+        assert_eq!(rate(&wanted, "linear2_ud_predict"), Some(50.0));
+        assert_eq!(rate(&wanted, "linear2_update1_ud"), Some(50.0));
+        assert_eq!(rate(&wanted, "linear2_predict"), None);
+        let mut demo = demo;
+        demo.flash.form = "u-d".into();
+        let wanted = plan_probes(&demo);
+        assert_eq!(rate(&wanted, "pose_ud_predict"), Some(demo.step_hz));
+        assert!(rate(&wanted, "pose_ud_position_update").is_some());
+        assert!(wanted.rates.iter().all(|r| is_ud_probe(&r.0)));
+    }
+
+    #[test]
+    fn ud_probe_names() {
+        for n in [
+            "pose_ud_predict",
+            "pose_ud_heading_update",
+            "linear9_ud_predict",
+            "linear12_update3_ud",
+        ] {
+            assert!(is_ud_probe(n), "{n}");
+        }
+        for n in [
+            "pose_predict",
+            "pose_position_update",
+            "linear9_predict",
+            "linear9_update3_joseph",
+            "linear9_update3_conventional",
+        ] {
+            assert!(!is_ud_probe(n), "{n}");
+        }
     }
 
     #[test]

@@ -406,11 +406,12 @@ pub fn analyze(inputs: &MissionInputs<'_>, run: &RunResult) -> MissionResult {
 }
 
 /// The cost probes' form for a variant name, when they price it (f32
-/// conventional and Joseph only).
+/// conventional, Joseph and U-D), as a spec's `flash.form` names it.
 pub fn probe_form(name: &str) -> Option<&'static str> {
     match name {
         "f32 conventional" => Some("conventional"),
         "f32 joseph" => Some("joseph"),
+        "f32 u-d" => Some("u-d"),
         _ => None,
     }
 }
@@ -627,8 +628,40 @@ mod tests {
         let c = cycles_per_step(&report, 50.0).expect("priced");
         assert!((c - 324.0).abs() < 1e-9, "{c}");
         assert_eq!(probe_form("f32 joseph"), Some("joseph"));
-        assert_eq!(probe_form("f32 u-d"), None);
+        assert_eq!(probe_form("f32 u-d"), Some("u-d"));
+        assert_eq!(probe_form("f32 constant gain"), None);
         assert_eq!(probe_form("f64 conventional"), None);
+    }
+
+    #[test]
+    fn a_ud_choice_is_priced_with_the_ud_probes() {
+        // As `check --cycles` does: the chosen variant's form goes into the
+        // spec, the spec picks the probes and their rates. Cycle figures are
+        // invented; the arithmetic: 600 + 900 x 4/200 + 500 x 1/200 = 620.5
+        // per 200 Hz step for U-D, with none of the Joseph probes' 100s.
+        let mut plan = crate::demo::plan().expect("demo spec");
+        plan.flash.form = probe_form("f32 u-d").expect("priced").into();
+        let wanted = crate::cost::plan_probes(&plan);
+        let rate = |name: &str| wanted.rates.iter().find(|r| r.0 == name).map(|r| r.1);
+        let ops = [
+            ("pose_predict", 100.0),
+            ("pose_ud_predict", 600.0),
+            ("pose_position_update", 100.0),
+            ("pose_ud_position_update", 900.0),
+            ("pose_heading_update", 100.0),
+            ("pose_ud_heading_update", 500.0),
+        ];
+        let report = CostReport {
+            elf: "probe.elf".into(),
+            clock_mhz: 168.0,
+            operations: ops.iter().map(|&(n, c)| op(n, c, rate(n))).collect(),
+            warnings: Vec::new(),
+        };
+        assert!(rate("pose_predict").is_none() && rate("pose_ud_predict").is_some());
+        // The demo spec's rates: 200 Hz steps, 4 Hz position, 1 Hz heading.
+        assert_eq!(plan.step_hz, 200.0);
+        let c = cycles_per_step(&report, plan.step_hz).expect("priced");
+        assert!((c - 620.5).abs() < 1e-9, "{c}");
     }
 
     #[test]

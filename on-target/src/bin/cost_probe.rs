@@ -4,6 +4,7 @@
 #![no_std]
 #![no_main]
 
+use cairn_core::UdKalman;
 use cairn_core::pose::Odometry;
 use cairn_on_target::scenario::{self, Lcg};
 use cairn_on_target::{Line, exit, probe};
@@ -42,6 +43,34 @@ fn main() -> ! {
     for _ in 0..CALLS {
         let z = Vector1::new(pose.state()[2] + 0.02 * noise.signed_unit());
         let r = probe::pose_heading_update(black_box(&mut pose), &models.compass, &z, Some(10.83));
+        failures += u32::from(r.is_err());
+    }
+
+    // The same operations on the U-D factored filter, from the same start.
+    let start = scenario::initial_filter();
+    let Ok(mut ud) = UdKalman::try_new(*start.state(), *start.covariance()) else {
+        exit(false)
+    };
+    for _ in 0..CALLS {
+        let odo = Odometry {
+            speed: 0.6 + 0.02 * noise.signed_unit(),
+            yaw_rate: 0.1 + 0.01 * noise.signed_unit(),
+        };
+        let r = probe::pose_ud_predict(black_box(&mut ud), &models.motion, &odo, scenario::DT);
+        failures += u32::from(r.is_err());
+    }
+    for _ in 0..CALLS {
+        let x = *ud.state();
+        let z = Vector2::new(
+            x[0] + 0.05 * noise.signed_unit(),
+            x[1] + 0.05 * noise.signed_unit(),
+        );
+        let r = probe::pose_ud_position_update(black_box(&mut ud), &models.beacon, &z, Some(13.82));
+        failures += u32::from(r.is_err());
+    }
+    for _ in 0..CALLS {
+        let z = Vector1::new(ud.state()[2] + 0.02 * noise.signed_unit());
+        let r = probe::pose_ud_heading_update(black_box(&mut ud), &models.compass, &z, Some(10.83));
         failures += u32::from(r.is_err());
     }
 
