@@ -134,8 +134,19 @@ fn joseph<T: Scalar, const N: usize, const M: usize, const COLUMNS: bool>(
     k: &SMatrix<T, N, M>,
     r: &SMatrix<T, M, M>,
 ) {
-    // W = P - K B' (B' = H P since P is symmetric), column by column.
     let w = p;
+    if COLUMNS {
+        // nalgebra's fixed-size gemm runs the same column updates in the
+        // same order (y = beta y + alpha a_k x_k, k ascending; alpha and
+        // beta are +-1, so every product and sum is the one below).
+        let one = T::one();
+        w.gemm(-one, k, &b.transpose(), one);
+        let mut d = k * r;
+        d.gemm(-one, w, &h.transpose(), one);
+        w.gemm(one, &d, &k.transpose(), one);
+        return;
+    }
+    // W = P - K B' (B' = H P since P is symmetric), column by column.
     for j in 0..N {
         for c in 0..M {
             let bjc = b[(j, c)];
@@ -160,26 +171,15 @@ fn joseph<T: Scalar, const N: usize, const M: usize, const COLUMNS: bool>(
             }
         }
     }
-    // P+ = W + D K' (upper triangle, mirrored), in place in W: column j
-    // reads only W's column j.
-    if COLUMNS {
-        for j in 0..N {
+    // P+ = W + D K' (upper triangle), in place in W: column j reads only
+    // W's column j.
+    for j in 0..N {
+        for i in 0..=j {
+            let mut v = w[(i, j)];
             for c in 0..M {
-                let kjc = k[(j, c)];
-                for i in 0..N {
-                    w[(i, j)] += d[(i, c)] * kjc;
-                }
+                v += d[(i, c)] * k[(j, c)];
             }
-        }
-    } else {
-        for j in 0..N {
-            for i in 0..=j {
-                let mut v = w[(i, j)];
-                for c in 0..M {
-                    v += d[(i, c)] * k[(j, c)];
-                }
-                w[(i, j)] = v;
-            }
+            w[(i, j)] = v;
         }
     }
 }

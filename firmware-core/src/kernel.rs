@@ -138,31 +138,10 @@ pub(crate) fn propagate_columns<T: Scalar, const N: usize>(
     p: &SMatrix<T, N, N>,
     q: &SMatrix<T, N, N>,
 ) -> SMatrix<T, N, N> {
-    // C = F P, column e = sum_k F[:,k] P[k,e].
-    let mut c = SMatrix::<T, N, N>::from_element(neg_zero());
-    for e in 0..N {
-        for k in 0..N {
-            let pke = p[(k, e)];
-            for i in 0..N {
-                c[(i, e)] += f[(i, k)] * pke;
-            }
-        }
-    }
-    // Column j of C F' in full (the lanes below the diagonal are as cheap
-    // as idle), then Q.
-    let mut out = SMatrix::<T, N, N>::from_element(neg_zero());
-    for j in 0..N {
-        for e in 0..N {
-            let fje = f[(j, e)];
-            for i in 0..N {
-                out[(i, j)] += c[(i, e)] * fje;
-            }
-        }
-        for i in 0..N {
-            out[(i, j)] += q[(i, j)];
-        }
-    }
-    out
+    // nalgebra's products for fixed sizes are column updates in this order
+    // (y = a_0 x_0, then y += a_k x_k, k ascending): C = F P, then C F' + Q.
+    let c = f * p;
+    c * f.transpose() + q
 }
 
 /// [`propagate`] in the dot shape.
@@ -220,57 +199,38 @@ pub(crate) fn innovation_shaped<T: Scalar, const N: usize, const M: usize, const
     h: &SMatrix<T, M, N>,
     r: &SMatrix<T, M, M>,
 ) -> (SMatrix<T, N, M>, SMatrix<T, M, M>) {
-    let mut b = SMatrix::<T, N, M>::from_element(neg_zero());
     if COLUMNS {
-        for c in 0..M {
-            for e in 0..N {
-                let hce = h[(c, e)];
-                for i in 0..N {
-                    b[(i, c)] += p[(i, e)] * hce;
-                }
-            }
-        }
-    } else {
-        for c in 0..M {
-            for i in 0..N {
-                let mut v = neg_zero::<T>();
-                for e in 0..N {
-                    v += p[(e, i)] * h[(c, e)];
-                }
-                b[(i, c)] = v;
-            }
-        }
-    }
-    let mut s = SMatrix::<T, M, M>::from_element(neg_zero());
-    if COLUMNS {
-        for j in 0..M {
-            for e in 0..N {
-                let bej = b[(e, j)];
-                for i in 0..M {
-                    s[(i, j)] += h[(i, e)] * bej;
-                }
-            }
-            for i in 0..M {
-                s[(i, j)] += r[(i, j)];
-            }
-        }
-        // Lower triangle onto the upper one.
+        // nalgebra's fixed-size products are these column updates in this
+        // order (y = a_0 x_0, then y += a_e x_e, e ascending).
+        let b = p * h.transpose();
+        let mut s = h * b + r;
         for j in 1..M {
             for i in 0..j {
                 s[(i, j)] = s[(j, i)];
             }
         }
-    } else {
-        for j in 0..M {
-            for i in j..M {
-                let mut v = neg_zero::<T>();
-                for e in 0..N {
-                    v += h[(i, e)] * b[(e, j)];
-                }
-                let v = v + r[(i, j)];
-                s[(i, j)] = v;
-                s[(j, i)] = v;
+        return (b, s);
+    }
+    let mut b = SMatrix::<T, N, M>::from_element(neg_zero());
+    for c in 0..M {
+        for i in 0..N {
+            let mut v = neg_zero::<T>();
+            for e in 0..N {
+                v += p[(e, i)] * h[(c, e)];
             }
+            b[(i, c)] = v;
+        }
+    }
+    let mut s = SMatrix::<T, M, M>::from_element(neg_zero());
+    for j in 0..M {
+        for i in j..M {
+            let mut v = neg_zero::<T>();
+            for e in 0..N {
+                v += h[(i, e)] * b[(e, j)];
+            }
+            let v = v + r[(i, j)];
+            s[(i, j)] = v;
+            s[(j, i)] = v;
         }
     }
     (b, s)
