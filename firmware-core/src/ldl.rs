@@ -6,11 +6,15 @@ use nalgebra::{SMatrix, SVector};
 use crate::scalar::Scalar;
 
 /// An LDL' factorisation of a symmetric positive definite M x M matrix:
-/// unit lower-triangular L (strict lower part stored) and diagonal D.
+/// unit lower-triangular L (strict lower part stored) and diagonal D, with
+/// the reciprocals of D so every later solve multiplies instead of
+/// dividing (M divisions in all: a divide costs 14 cycles on a Cortex-M4F
+/// against 1 for a multiply, TI SWCU192 Table 3-27).
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct Ldl<T: Scalar, const M: usize> {
     l: SMatrix<T, M, M>,
     d: SVector<T, M>,
+    inv_d: SVector<T, M>,
 }
 
 impl<T: Scalar, const M: usize> Ldl<T, M> {
@@ -29,6 +33,7 @@ impl<T: Scalar, const M: usize> Ldl<T, M> {
     pub fn factor(s: &SMatrix<T, M, M>) -> Result<Self, usize> {
         let mut l = SMatrix::<T, M, M>::zeros();
         let mut d = SVector::<T, M>::zeros();
+        let mut inv_d = SVector::<T, M>::zeros();
         let tol = T::EPSILON * T::of(M as f64);
         for j in 0..M {
             let mut dj = s[(j, j)];
@@ -41,15 +46,17 @@ impl<T: Scalar, const M: usize> Ldl<T, M> {
                 return Err(j);
             }
             d[j] = dj;
+            let inv = T::one() / dj;
+            inv_d[j] = inv;
             for i in (j + 1)..M {
                 let mut v = s[(i, j)];
                 for k in 0..j {
                     v -= l[(i, k)] * l[(j, k)] * d[k];
                 }
-                l[(i, j)] = v / dj;
+                l[(i, j)] = v * inv;
             }
         }
-        Ok(Self { l, d })
+        Ok(Self { l, d, inv_d })
     }
 
     /// The diagonal factor D.
@@ -69,7 +76,7 @@ impl<T: Scalar, const M: usize> Ldl<T, M> {
         }
         // D v = w
         for i in 0..M {
-            b[i] /= self.d[i];
+            b[i] *= self.inv_d[i];
         }
         // L' y = v
         for i in (0..M).rev() {
@@ -91,7 +98,7 @@ impl<T: Scalar, const M: usize> Ldl<T, M> {
                 v -= self.l[(i, k)] * w[k];
             }
             w[i] = v;
-            acc += v * v / self.d[i];
+            acc += v * v * self.inv_d[i];
         }
         acc
     }
