@@ -124,7 +124,7 @@ pub struct Output {
     pub mission: Option<String>,
     /// Also estimate the chosen variant's cycles per step: builds
     /// on-target's cost probe and traces it under QEMU, as `cairn cost
-    /// --spec` does (slow; f32 conventional and Joseph only).
+    /// --spec` does (slow; f32 conventional, Joseph and U-D).
     #[arg(long)]
     pub cycles: bool,
 }
@@ -368,7 +368,7 @@ fn check(
                 crate::cost::estimate(&config).map_err(|e| format!("no cycle estimate: {e}"))
             }
             None => Err(format!(
-                "no cycle estimate: the cost probes price f32 conventional and Joseph only, not {}",
+                "no cycle estimate: the cost probes price f32 conventional, Joseph and U-D, not {}",
                 m.verdict.choice.as_deref().unwrap_or("nothing")
             )),
         };
