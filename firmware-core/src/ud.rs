@@ -69,12 +69,18 @@ fn factor_ud<T: Scalar, const N: usize>(
             d = T::zero();
         }
         ud[(j, j)] = d;
+        // One divide per pivot; the column multiplies by the reciprocal.
+        let inv = if d > T::zero() {
+            T::one() / d
+        } else {
+            T::zero()
+        };
         for i in 0..j {
             let mut v = p[(i, j)];
             for k in (j + 1)..N {
                 v -= ud[(i, k)] * ud[(j, k)] * ud[(k, k)];
             }
-            ud[(i, j)] = if d > T::zero() { v / d } else { T::zero() };
+            ud[(i, j)] = v * inv;
         }
     }
     Ok(ud)
@@ -289,12 +295,14 @@ impl<T: Scalar, const N: usize> UdKalman<T, N> {
                 return Err(FilterError::CovarianceLost { index: idx(j) });
             }
             out[(j, j)] = dj;
+            // One divide per pivot; the column multiplies by the reciprocal.
+            let inv = T::one() / dj;
             for i in 0..j {
                 let mut v = T::zero();
                 for k in 0..N {
                     v += a[(i, k)] * ca[k] + b[(i, k)] * cb[k];
                 }
-                let uij = v / dj;
+                let uij = v * inv;
                 out[(i, j)] = uij;
                 for k in 0..N {
                     let (ajk, bjk) = (a[(j, k)], b[(j, k)]);
@@ -398,9 +406,9 @@ impl<T: Scalar, const N: usize> UdKalman<T, N> {
             let hc = SVector::<T, N>::from_fn(|i, _| ht[(c, i)]);
             // The sequential innovation against the state updated so far.
             let nuc = nut[c] - hc.dot(&(x - self.x));
-            let (k, s) = bierman(&mut ud, &hc, rl.diagonal()[c])
+            let (k, _s, inv_s) = bierman(&mut ud, &hc, rl.diagonal()[c])
                 .map_err(|_| FilterError::SingularInnovation { pivot: idx(c) })?;
-            nis += nuc * nuc / s;
+            nis += nuc * nuc * inv_s;
             x += k * nuc;
         }
         if !nis.finite() {
@@ -436,13 +444,13 @@ impl<T: Scalar, const N: usize> UdKalman<T, N> {
 }
 
 /// Bierman's scalar measurement update of packed U-D factors in place, for
-/// row `h` and noise variance `r`. Returns the gain and the innovation
-/// variance s = h P h' + r.
+/// row `h` and noise variance `r` (positive). Returns the gain, the
+/// innovation variance s = h P h' + r and its reciprocal.
 fn bierman<T: Scalar, const N: usize>(
     ud: &mut SMatrix<T, N, N>,
     h: &SVector<T, N>,
     r: T,
-) -> Result<(SVector<T, N>, T), ()> {
+) -> Result<(SVector<T, N>, T, T), ()> {
     // f = U' h, v = D f.
     let mut f = SVector::<T, N>::zeros();
     for j in 0..N {
@@ -456,22 +464,26 @@ fn bierman<T: Scalar, const N: usize>(
     for j in 0..N {
         v[j] = ud[(j, j)] * f[j];
     }
+    // One divide per step of the recursion: each alpha's reciprocal serves
+    // its own step and, as 1 / a0, the next.
     let mut b = SVector::<T, N>::zeros();
     let mut alpha = r;
+    let mut inv_alpha = T::one() / r;
     for j in 0..N {
-        let a0 = alpha;
+        let (a0, inv_a0) = (alpha, inv_alpha);
         alpha += f[j] * v[j];
         if !(alpha.finite() && alpha > T::zero()) {
             return Err(());
         }
-        ud[(j, j)] = ud[(j, j)] * a0 / alpha;
+        inv_alpha = T::one() / alpha;
+        ud[(j, j)] = ud[(j, j)] * a0 * inv_alpha;
         b[j] = v[j];
-        let lambda = -f[j] / a0;
+        let lambda = -f[j] * inv_a0;
         for i in 0..j {
             let t = ud[(i, j)];
             ud[(i, j)] = t + b[i] * lambda;
             b[i] += t * v[j];
         }
     }
-    Ok((b / alpha, alpha))
+    Ok((b * inv_alpha, alpha, inv_alpha))
 }
