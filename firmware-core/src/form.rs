@@ -68,7 +68,7 @@ pub struct Conventional;
 impl CovarianceForm for Joseph {
     const NAME: &'static str = "joseph";
 
-    #[inline]
+    #[inline(always)]
     fn posterior<T: Scalar, const N: usize, const M: usize>(
         p: &mut SMatrix<T, N, N>,
         h: &SMatrix<T, M, N>,
@@ -80,7 +80,7 @@ impl CovarianceForm for Joseph {
         joseph::<T, N, M, VECTOR>(p, h, b, k, r)
     }
 
-    #[inline]
+    #[inline(always)]
     fn posterior_scalar<T: Scalar, const N: usize>(
         p: &mut SMatrix<T, N, N>,
         h: &SVector<T, N>,
@@ -96,7 +96,7 @@ impl CovarianceForm for Joseph {
 impl CovarianceForm for Conventional {
     const NAME: &'static str = "conventional";
 
-    #[inline]
+    #[inline(always)]
     fn posterior<T: Scalar, const N: usize, const M: usize>(
         p: &mut SMatrix<T, N, N>,
         _h: &SMatrix<T, M, N>,
@@ -108,7 +108,7 @@ impl CovarianceForm for Conventional {
         conventional::<T, N, M, VECTOR>(p, b, k)
     }
 
-    #[inline]
+    #[inline(always)]
     fn posterior_scalar<T: Scalar, const N: usize>(
         p: &mut SMatrix<T, N, N>,
         _h: &SVector<T, N>,
@@ -126,7 +126,7 @@ impl CovarianceForm for Conventional {
 // operations and their order on every entry are the same.
 
 /// Joseph's factored order for a vector measurement.
-#[inline]
+#[inline(always)]
 fn joseph<T: Scalar, const N: usize, const M: usize, const COLUMNS: bool>(
     p: &mut SMatrix<T, N, N>,
     h: &SMatrix<T, M, N>,
@@ -185,7 +185,7 @@ fn joseph<T: Scalar, const N: usize, const M: usize, const COLUMNS: bool>(
 }
 
 /// Joseph's factored order for one scalar measurement.
-#[inline]
+#[inline(always)]
 fn joseph_scalar<T: Scalar, const N: usize, const COLUMNS: bool>(
     p: &mut SMatrix<T, N, N>,
     h: &SVector<T, N>,
@@ -225,7 +225,7 @@ fn joseph_scalar<T: Scalar, const N: usize, const COLUMNS: bool>(
 }
 
 /// The conventional form for a vector measurement.
-#[inline]
+#[inline(always)]
 fn conventional<T: Scalar, const N: usize, const M: usize, const COLUMNS: bool>(
     p: &mut SMatrix<T, N, N>,
     b: &SMatrix<T, N, M>,
@@ -255,7 +255,7 @@ fn conventional<T: Scalar, const N: usize, const M: usize, const COLUMNS: bool>(
 }
 
 /// The conventional form for one scalar measurement.
-#[inline]
+#[inline(always)]
 fn conventional_scalar<T: Scalar, const N: usize, const COLUMNS: bool>(
     p: &mut SMatrix<T, N, N>,
     b: &SVector<T, N>,

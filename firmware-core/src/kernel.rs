@@ -51,7 +51,7 @@ const LANES: usize = if VECTOR { 4 } else { 1 };
 /// sums keep the adds from waiting on each other.
 // `v - v` is the point: it is not zero for NaN or infinity.
 #[allow(clippy::eq_op)]
-#[inline]
+#[inline(always)]
 pub(crate) fn all_finite<T: Scalar>(values: &[T]) -> bool {
     let mut lanes = [neg_zero::<T>(); LANES];
     let mut chunks = values.chunks_exact(LANES);
@@ -74,7 +74,7 @@ pub(crate) fn all_finite<T: Scalar>(values: &[T]) -> bool {
 /// triangle of a mirrored matrix holds the same values). On a host, four
 /// partial sums keep the adds from waiting on each other.
 #[allow(clippy::eq_op)]
-#[inline]
+#[inline(always)]
 pub(crate) fn upper_finite<T: Scalar, const N: usize>(m: &SMatrix<T, N, N>) -> bool {
     let values = m.as_slice();
     let (mut a0, mut a1, mut a2, mut a3): (T, T, T, T) =
@@ -102,7 +102,7 @@ pub(crate) fn upper_finite<T: Scalar, const N: usize>(m: &SMatrix<T, N, N>) -> b
 }
 
 /// Copies the upper triangle onto the lower one.
-#[inline]
+#[inline(always)]
 pub(crate) fn mirror_upper<T: Scalar, const N: usize>(m: &mut SMatrix<T, N, N>) {
     for j in 1..N {
         for i in 0..j {
@@ -118,7 +118,7 @@ pub(crate) fn mirror_upper<T: Scalar, const N: usize>(m: &mut SMatrix<T, N, N>) 
 /// plus `Q[i,j]`, where `C[i,e] = sum_k F[i,k] P[k,e]` (k ascending from
 /// zero): about 1.5 n^3 multiply-adds, only the upper triangle of the second
 /// product needed.
-#[inline]
+#[inline(always)]
 pub(crate) fn propagate<T: Scalar, const N: usize>(
     f: &SMatrix<T, N, N>,
     p: &SMatrix<T, N, N>,
@@ -132,7 +132,7 @@ pub(crate) fn propagate<T: Scalar, const N: usize>(
 }
 
 /// [`propagate`] in the column shape.
-#[inline]
+#[inline(always)]
 pub(crate) fn propagate_columns<T: Scalar, const N: usize>(
     f: &SMatrix<T, N, N>,
     p: &SMatrix<T, N, N>,
@@ -145,7 +145,7 @@ pub(crate) fn propagate_columns<T: Scalar, const N: usize>(
 }
 
 /// [`propagate`] in the dot shape.
-#[inline]
+#[inline(always)]
 pub(crate) fn propagate_dots<T: Scalar, const N: usize>(
     f: &SMatrix<T, N, N>,
     p: &SMatrix<T, N, N>,
@@ -183,7 +183,7 @@ pub(crate) fn propagate_dots<T: Scalar, const N: usize>(
 /// `B[i,c] = sum_e P[i,e] H[c,e]` (e ascending from zero; P symmetric, so
 /// the dot shape reads P's column i); `S[i,j] = sum_e H[i,e] B[e,j]`
 /// (e ascending from zero) plus `R[i,j]` for i >= j, mirrored.
-#[inline]
+#[inline(always)]
 pub(crate) fn innovation<T: Scalar, const N: usize, const M: usize>(
     p: &SMatrix<T, N, N>,
     h: &SMatrix<T, M, N>,
@@ -193,7 +193,7 @@ pub(crate) fn innovation<T: Scalar, const N: usize, const M: usize>(
 }
 
 /// [`innovation`] in either shape.
-#[inline]
+#[inline(always)]
 pub(crate) fn innovation_shaped<T: Scalar, const N: usize, const M: usize, const COLUMNS: bool>(
     p: &SMatrix<T, N, N>,
     h: &SMatrix<T, M, N>,

@@ -30,6 +30,7 @@ impl<T: Scalar, const M: usize> Ldl<T, M> {
     ///
     /// # Panics
     /// Never.
+    #[inline(always)]
     pub fn factor(s: &SMatrix<T, M, M>) -> Result<Self, usize> {
         let mut l = SMatrix::<T, M, M>::zeros();
         let mut d = SVector::<T, M>::zeros();
@@ -65,6 +66,7 @@ impl<T: Scalar, const M: usize> Ldl<T, M> {
     }
 
     /// Solves S y = b in place.
+    #[inline(always)]
     pub fn solve_mut(&self, b: &mut SVector<T, M>) {
         // L w = b
         for i in 0..M {
@@ -89,6 +91,7 @@ impl<T: Scalar, const M: usize> Ldl<T, M> {
     }
 
     /// The quadratic form b' S^-1 b, computed as sum (L^-1 b)_i^2 / d_i.
+    #[inline(always)]
     pub fn inverse_quadratic(&self, b: &SVector<T, M>) -> T {
         let mut w = *b;
         let mut acc = crate::kernel::neg_zero::<T>();
@@ -105,6 +108,7 @@ impl<T: Scalar, const M: usize> Ldl<T, M> {
 
     /// Decorrelates a measurement: with S = L D L', returns L^-1 H and
     /// L^-1 nu, whose noise covariance is the diagonal D.
+    #[inline(always)]
     pub fn decorrelate<const N: usize>(
         &self,
         h: &SMatrix<T, M, N>,
@@ -128,6 +132,7 @@ impl<T: Scalar, const M: usize> Ldl<T, M> {
 
     /// Right division: returns X with X S = B, i.e. B S^-1, for an N x M `b`
     /// (S is symmetric, so each row of X solves S x' = b').
+    #[inline(always)]
     pub fn right_divide<const N: usize>(&self, b: &SMatrix<T, N, M>) -> SMatrix<T, N, M> {
         let mut x = *b;
         for r in 0..N {

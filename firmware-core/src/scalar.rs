@@ -80,7 +80,7 @@ impl Scalar for f64 {
 ///
 /// Exact for inputs within a few turns (one subtraction of a multiple of 2 pi
 /// rounded in the scalar type); used for heading residuals and the heading state.
-#[inline]
+#[inline(always)]
 pub fn wrap_angle<T: Scalar>(angle: T) -> T {
     let pi = T::pi();
     let two_pi = T::two_pi();

@@ -32,6 +32,7 @@ pub struct UdKalman<T: Scalar, const N: usize> {
 /// unit-triangular U, diagonal D), packed. Zero pivots are allowed (the
 /// column of U is then zero, and pivots within rounding of zero count as
 /// zero); negative or non-finite pivots are refused.
+#[inline(always)]
 fn factor_ud<T: Scalar, const N: usize>(
     p: &SMatrix<T, N, N>,
     strict: bool,
@@ -215,6 +216,7 @@ impl<T: Scalar, const N: usize> UdKalman<T, N> {
         self.commit(lin.next, ud)
     }
 
+    #[inline(always)]
     fn time_update(
         &self,
         f: &SMatrix<T, N, N>,
@@ -261,6 +263,7 @@ impl<T: Scalar, const N: usize> UdKalman<T, N> {
 
     /// Thornton's modified weighted Gram-Schmidt: the U-D factors of
     /// [F U | G] diag(D, q) [F U | G]'.
+    #[inline(always)]
     fn gram_schmidt(
         &self,
         f: &SMatrix<T, N, N>,
@@ -424,6 +427,7 @@ impl<T: Scalar, const N: usize> UdKalman<T, N> {
         Ok(Outcome::Applied { nis })
     }
 
+    #[inline(always)]
     fn commit(&mut self, x: SVector<T, N>, ud: SMatrix<T, N, N>) -> Result<(), FilterError> {
         if !check::all_finite(x.as_slice()) {
             return Err(FilterError::NonFinite(Operand::State));
@@ -446,6 +450,7 @@ impl<T: Scalar, const N: usize> UdKalman<T, N> {
 /// Bierman's scalar measurement update of packed U-D factors in place, for
 /// row `h` and noise variance `r` (positive). Returns the gain, the
 /// innovation variance s = h P h' + r and its reciprocal.
+#[inline(always)]
 fn bierman<T: Scalar, const N: usize>(
     ud: &mut SMatrix<T, N, N>,
     h: &SVector<T, N>,
