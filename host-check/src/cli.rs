@@ -140,6 +140,11 @@ pub struct CheckArgs {
     /// For nonlinear models: covariance-only or end-to-end (overrides the spec).
     #[arg(long, value_enum)]
     pub mode: Option<ModeArg>,
+    /// Pose model, end-to-end mode: each variant moves its origin to its
+    /// x, y (whole metres, origin kept in f64) whenever |x| or |y| passes M
+    /// metres (overrides the spec's `recentre_m`).
+    #[arg(long, value_name = "M")]
+    pub recentre: Option<f64>,
     /// Report options.
     #[command(flatten)]
     pub output: Output,
@@ -157,6 +162,10 @@ pub struct DemoArgs {
     /// Covariance-only or end-to-end (overrides the spec).
     #[arg(long, value_enum)]
     pub mode: Option<ModeArg>,
+    /// End-to-end mode: each variant moves its origin to its x, y (whole
+    /// metres, origin kept in f64) whenever |x| or |y| passes M metres.
+    #[arg(long, value_name = "M")]
+    pub recentre: Option<f64>,
     /// Report options.
     #[command(flatten)]
     pub output: Output,
@@ -240,11 +249,13 @@ pub fn execute(cli: Cli) -> Result<u8, Failure> {
             print_spec: false,
             seconds: None,
             mode: None,
+            recentre: None,
             output: cli.output,
         }),
         Some(Command::Demo(a)) => demo(&a),
         Some(Command::Check(a)) => {
-            let plan = spec::load(&a.spec).map_err(bad)?;
+            let mut plan = spec::load(&a.spec).map_err(bad)?;
+            recentre(&mut plan, a.recentre)?;
             check(plan, a.seconds, a.mode, &a.output)
         }
         Some(Command::Noise(a)) => noise(&a),
@@ -319,8 +330,30 @@ fn demo(a: &DemoArgs) -> Result<u8, Failure> {
         print!("{}", crate::demo::SPEC);
         return Ok(EXIT_PASS);
     }
-    let plan = crate::demo::plan().map_err(bad)?;
+    let mut plan = crate::demo::plan().map_err(bad)?;
+    recentre(&mut plan, a.recentre)?;
     check(plan, a.seconds, a.mode, &a.output)
+}
+
+/// `--recentre M`: a finite distance of at least 1 m, for the pose model.
+fn recentre(plan: &mut Plan, distance: Option<f64>) -> Result<(), Failure> {
+    let Some(d) = distance else {
+        return Ok(());
+    };
+    if !(d.is_finite() && d >= spec::MIN_RECENTRE_M) {
+        return Err(bad(Message(format!(
+            "--recentre must be a finite distance of at least {} m (the origin moves in whole metres), got {d}",
+            spec::MIN_RECENTRE_M
+        ))));
+    }
+    if plan.is_linear() {
+        return Err(bad(Message(
+            "--recentre applies to the planar-pose model only (a linear model's states need not be positions)"
+                .into(),
+        )));
+    }
+    plan.recentre_m = Some(d);
+    Ok(())
 }
 
 fn check(

@@ -351,6 +351,7 @@ fn gauge(q: f64, r: f64, meas_hz: f64) -> Plan {
             form: "joseph".into(),
         },
         mode: Mode::Covariance,
+        recentre_m: None,
         external: None,
         conversions: vec![],
         seed: 1,

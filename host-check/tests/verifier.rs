@@ -797,3 +797,139 @@ fn f32_positions_far_from_the_origin_fail_the_state_check() {
     let n = &variant(&near, "f32 joseph")["figures"];
     assert!(num(&n["max_state_difference_sigma"]) < 0.01, "{n}");
 }
+
+#[test]
+fn recentring_brings_f32_positions_far_from_the_origin_back_onto_the_f64_run() {
+    // IEEE 754 binary32 spaces coordinates near 20 km 2^-9 m (1.95 mm) apart
+    // and near 10 m 2^-20 m (0.95 um) apart. Moving each variant's origin
+    // to its x, y whenever |x| or |y| passes 10 m keeps its f32 state near
+    // zero, so the far rover should track the f64 run as a rover at the
+    // origin does. Common practice: keep firmware coordinates in a local
+    // frame, the origin carried separately.
+    let far = data().join("far-rover.toml");
+    let (code, off) = check_json(&far, "far-off", &[]);
+    assert_eq!(code, 1);
+    let f = &variant(&off, "f32 joseph")["figures"];
+    let off_xy = num(&f["max_state_difference"][0]).max(num(&f["max_state_difference"][1]));
+    assert!(off_xy > 0.1, "without re-centring: {f}");
+    assert!(num(&f["max_state_difference_sigma"]) > 3.0, "{f}");
+    assert!(off["run"]["recentre_m"].is_null());
+
+    let json = scratch("far-on.json");
+    let out = cairn(&[
+        "check",
+        far.to_str().unwrap(),
+        "--recentre",
+        "10",
+        "--no-progress",
+        "--json",
+        json.to_str().unwrap(),
+    ]);
+    assert_eq!(out.status.code(), Some(0));
+    let text = String::from_utf8_lossy(&out.stdout);
+    assert!(text.contains("when |x| or |y| passes 10 m"), "{text}");
+    assert!(text.contains("times re-centred"), "{text}");
+    let on: Value = serde_json::from_str(&std::fs::read_to_string(&json).unwrap()).unwrap();
+    assert_eq!(num(&on["run"]["recentre_m"]), 10.0);
+    let reference = &on["run"]["reference"]["final_state"];
+    for name in ["f32 conventional", "f32 u-d", "f32 joseph"] {
+        let v = variant(&on, name);
+        let f = &v["figures"];
+        // Under 1 mm (half the spacing at 20 km) and a hundredth of a
+        // standard deviation, against metres and many deviations without.
+        let xy = num(&f["max_state_difference"][0]).max(num(&f["max_state_difference"][1]));
+        assert!(xy < 1e-3 && xy < off_xy / 1000.0, "{name}: {f}");
+        assert!(num(&f["max_state_difference_sigma"]) < 0.01, "{name}: {f}");
+        assert_eq!(v["verdict"]["passes"], true, "{name}");
+        // The start re-centres and so does every 10 m of the ~48 m run;
+        // the origin is whole metres and within 10 m and a step of the
+        // reference's final position (the lane's local state is no larger).
+        assert!(num(&v["recentres"]) >= 2.0, "{name}: {v}");
+        for i in 0..2 {
+            let o = num(&v["origin"][i]);
+            assert_eq!(o, o.round(), "{name}: origin {o}");
+            assert!((num(&reference[i]) - o).abs() < 10.1, "{name}: origin {o}");
+        }
+    }
+
+    // Shifted far out, the lanes behave as lanes started at the origin: the
+    // same arithmetic on the same local numbers gives the same figure.
+    let text = std::fs::read_to_string(&far).unwrap();
+    let near = scratch("near-rover-recentred.toml");
+    std::fs::write(
+        &near,
+        text.replace("x = [20000.0, 20000.0, 0.3]", "x = [0.0, 0.0, 0.3]"),
+    )
+    .unwrap();
+    let (code, near) = check_json(&near, "near-on", &["--recentre", "10"]);
+    assert_eq!(code, 0);
+    let far_sigma = num(&variant(&on, "f32 joseph")["figures"]["max_state_difference_sigma"]);
+    let near_sigma = num(&variant(&near, "f32 joseph")["figures"]["max_state_difference_sigma"]);
+    assert!(
+        (far_sigma / near_sigma - 1.0).abs() < 0.01,
+        "far {far_sigma} near {near_sigma}"
+    );
+
+    // Covariance-only mode shares the reference's Jacobians: no re-centring.
+    let (_, cov) = check_json(
+        &far,
+        "far-cov",
+        &["--recentre", "10", "--mode", "covariance"],
+    );
+    assert!(cov["run"]["recentre_m"].is_null());
+    assert_eq!(num(&variant(&cov, "f32 joseph")["recentres"]), 0.0);
+}
+
+#[test]
+fn bad_recentring_distances_exit_two_naming_the_field() {
+    let text = std::fs::read_to_string(data().join("far-rover.toml")).unwrap();
+    for (tag, value) in [
+        ("zero", "0.0"),
+        ("neg", "-10.0"),
+        ("nan", "nan"),
+        ("inf", "inf"),
+        ("small", "0.5"),
+    ] {
+        let spec = text.replace(
+            "mode = \"end-to-end\"",
+            &format!("mode = \"end-to-end\"\nrecentre_m = {value}"),
+        );
+        let path = scratch(&format!("recentre-{tag}.toml"));
+        std::fs::write(&path, &spec).unwrap();
+        let out = cairn(&["check", path.to_str().unwrap()]);
+        let err = String::from_utf8_lossy(&out.stderr);
+        assert_eq!(out.status.code(), Some(2), "{tag}: {err}");
+        let line = 1 + spec[..spec.find("recentre_m").unwrap()]
+            .matches('\n')
+            .count();
+        assert!(
+            err.contains(&format!("recentre-{tag}.toml:{line}:")),
+            "{tag}: {err}"
+        );
+        assert!(err.contains("`model.recentre_m`"), "{tag}: {err}");
+        let flag = format!("--recentre={value}");
+        let out = cairn(&[
+            "check",
+            data().join("far-rover.toml").to_str().unwrap(),
+            &flag,
+        ]);
+        let err = String::from_utf8_lossy(&out.stderr);
+        assert_eq!(out.status.code(), Some(2), "--recentre {value}: {err}");
+        assert!(err.contains("--recentre"), "{err}");
+    }
+    // A linear model has no positions to re-centre.
+    rejects(
+        "recentre-linear",
+        "[model]\n",
+        "[model]\nrecentre_m = 10.0\n",
+        "recentre_m",
+        "model.recentre_m",
+    );
+    let out = cairn(&[
+        "check",
+        specs().join("wna-tracker.toml").to_str().unwrap(),
+        "--recentre",
+        "10",
+    ]);
+    assert_eq!(out.status.code(), Some(2));
+}

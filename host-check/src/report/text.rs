@@ -189,6 +189,22 @@ pub fn render(plan: &Plan, run: &RunResult) -> String {
         plan.step_hz,
         duration(run.steps as f64 * run.dt)
     );
+    match (run.recentre_m, plan.recentre_m) {
+        (Some(d), _) => {
+            let _ = writeln!(
+                o,
+                "  frame    each variant moves its origin to its x, y (whole metres, kept in f64) \
+when |x| or |y| passes {d} m;\n           states are compared as origin + local state"
+            );
+        }
+        (None, Some(_)) => {
+            let _ = writeln!(
+                o,
+                "  frame    no re-centring in covariance-only mode (the variants share the reference's Jacobians)"
+            );
+        }
+        (None, None) => {}
+    }
     for c in &plan.channels {
         let what = match &c.kind {
             ChannelKind::Linear(_) => format!("{} components", c.m),
@@ -366,6 +382,7 @@ pub fn render(plan: &Plan, run: &RunResult) -> String {
                 }
             },
         ),
+        ("times re-centred".into(), |v| v.recentres.to_string()),
         ("steady-state distance".into(), |v| {
             v.figures.steady_distance.map_or("-".into(), sci)
         }),
@@ -384,6 +401,9 @@ pub fn render(plan: &Plan, run: &RunResult) -> String {
         }),
     ];
     for (label, cell) in &rows {
+        if label == "times re-centred" && run.recentre_m.is_none() {
+            continue;
+        }
         if label.trim() == "at t [s]" {
             let mut line = format!("  {label:<32}");
             for v in vs {

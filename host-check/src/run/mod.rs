@@ -64,6 +64,10 @@ pub struct VariantResult {
     pub innovation_rounding: f64,
     /// Pass or fail, with reasons.
     pub verdict: Verdict,
+    /// Times the lane moved its origin (end-to-end mode with re-centring).
+    pub recentres: u64,
+    /// The lane's origin at the end, m (x, y; zero without re-centring).
+    pub origin: [f64; 2],
 }
 
 /// The Riccati steady state of an LTI spec.
@@ -122,6 +126,9 @@ pub struct RunResult {
     pub dt: f64,
     /// Mode used.
     pub mode: Mode,
+    /// The re-centring distance the lanes used, m (`None`: they kept the
+    /// spec's frame).
+    pub recentre_m: Option<f64>,
     /// The reference.
     pub reference: ReferenceResult,
     /// Per variant, cheapest first.
@@ -152,6 +159,42 @@ struct Running {
     tracker: Tracker,
     p: DMatrix<f64>,
     x: DVector<f64>,
+    /// The lane's origin (x, y), m, in f64: the spec's frame is origin +
+    /// the lane's own state.
+    origin: [f64; 2],
+    recentres: u64,
+}
+
+impl Running {
+    /// The lane's state in the spec's frame, in f64: origin + local state.
+    fn global_state(lane: &dyn Lane, origin: [f64; 2], out: &mut DVector<f64>) {
+        lane.state(out);
+        out[0] += origin[0];
+        out[1] += origin[1];
+    }
+}
+
+/// Moves a lane's origin when |x| or |y| of its state passes `distance`:
+/// the offset is x and y rounded to whole metres (exact in f32 and f64, so
+/// the shift adds no rounding; heading untouched), and the origin gathers
+/// it in f64.
+fn recentre(r: &mut Running, distance: f64, k: u64, t: f64) {
+    let Some(lane) = r.lane.as_mut() else {
+        return;
+    };
+    lane.state(&mut r.x);
+    if r.x[0].abs() <= distance && r.x[1].abs() <= distance {
+        return;
+    }
+    let offset = [r.x[0].round(), r.x[1].round(), 0.0];
+    match lane.shift_origin(&offset) {
+        Ok(()) => {
+            r.origin[0] += offset[0];
+            r.origin[1] += offset[1];
+            r.recentres += 1;
+        }
+        Err(e) => stop(r, k, t, "re-centre", &e.to_string()),
+    }
 }
 
 fn rows(m: &DMatrix<f64>) -> Vec<Vec<f64>> {
@@ -175,12 +218,28 @@ pub fn run(plan: &Plan, opts: RunOptions) -> Result<RunResult, RunError> {
     } else {
         opts.mode.unwrap_or(plan.mode)
     };
+    // Re-centring applies where each lane runs its own pose filter.
+    let recentre_m = plan
+        .recentre_m
+        .filter(|_| mode == Mode::EndToEnd && !plan.is_linear());
 
-    // Lanes.
+    // Lanes. With re-centring, a lane that starts far out starts in its own
+    // frame: x0 - origin is formed in f64 before it is rounded to the lane's
+    // precision, as firmware would initialise it.
+    let (start_origin, start_recentres, lane_x0) = match recentre_m {
+        Some(d) if plan.x0[0].abs() > d || plan.x0[1].abs() > d => {
+            let o = [plan.x0[0].round(), plan.x0[1].round()];
+            let mut x = plan.x0.clone();
+            x[0] -= o[0];
+            x[1] -= o[1];
+            (o, 1, x)
+        }
+        _ => ([0.0; 2], 0, plan.x0.clone()),
+    };
     let mut lanes: Vec<Running> = Vec::new();
     for v in variants::VARIANTS {
         let mut tracker = Tracker::new(n);
-        let lane = match (v.build)(n, &plan.x0, &plan.p0) {
+        let lane = match (v.build)(n, &lane_x0, &plan.p0) {
             Ok(l) => Some(l),
             Err(variants::BuildError::Size(k)) => {
                 return Err(RunError(format!(
@@ -202,6 +261,8 @@ pub fn run(plan: &Plan, opts: RunOptions) -> Result<RunResult, RunError> {
             tracker,
             p: DMatrix::zeros(n, n),
             x: DVector::zeros(n),
+            origin: start_origin,
+            recentres: start_recentres,
         });
     }
     let baseline = variants::VARIANTS
@@ -268,6 +329,13 @@ pub fn run(plan: &Plan, opts: RunOptions) -> Result<RunResult, RunError> {
     for k in 1..=steps {
         let t = k as f64 * dt;
         let bucket = (((k - 1) as u128 * BUCKETS as u128) / steps as u128) as usize;
+
+        // Re-centring, before the step's predict moves the state on.
+        if let Some(d) = recentre_m {
+            for r in lanes.iter_mut().filter(|r| !r.tracker.stopped()) {
+                recentre(r, d, k, t);
+            }
+        }
 
         // Predict.
         match (&plan.model, &pose_model) {
@@ -390,6 +458,11 @@ pub fn run(plan: &Plan, opts: RunOptions) -> Result<RunResult, RunError> {
                         let zl: Vec<f64> = (h * &r.x + &nu).iter().copied().collect();
                         lane.update(&zl, h, &ch.r, ch.gate)
                     }
+                    (ChannelKind::Position, Mode::EndToEnd) => {
+                        // The fix in the lane's frame, formed in f64.
+                        let zl = [z[0] - r.origin[0], z[1] - r.origin[1]];
+                        lane.update_pose(&zl, &ch.r, ch.gate)
+                    }
                     (_, Mode::EndToEnd) => lane.update_pose(&z, &ch.r, ch.gate),
                 };
                 match res {
@@ -428,7 +501,11 @@ pub fn run(plan: &Plan, opts: RunOptions) -> Result<RunResult, RunError> {
         let base_x = match (baseline, mode, plan.is_linear()) {
             (Some(b), Mode::EndToEnd, _) | (Some(b), _, true) => lanes[b].lane.as_ref().map(|l| {
                 let mut x = DVector::zeros(n);
-                l.state(&mut x);
+                if pose_model.is_some() {
+                    Running::global_state(l.as_ref(), lanes[b].origin, &mut x);
+                } else {
+                    l.state(&mut x);
+                }
                 x
             }),
             _ => None,
@@ -455,7 +532,11 @@ pub fn run(plan: &Plan, opts: RunOptions) -> Result<RunResult, RunError> {
             }
             if let Some(bx) = &base_x {
                 r.tracker.states_compared = true;
-                lane.state(&mut r.x);
+                if pose_model.is_some() {
+                    Running::global_state(lane.as_ref(), r.origin, &mut r.x);
+                } else {
+                    lane.state(&mut r.x);
+                }
                 dx.copy_from(&r.x);
                 dx -= bx;
                 if pose_model.is_some() {
@@ -535,6 +616,8 @@ pub fn run(plan: &Plan, opts: RunOptions) -> Result<RunResult, RunError> {
             figures: r.tracker,
             innovation_rounding,
             verdict,
+            recentres: r.recentres,
+            origin: r.origin,
         });
     }
     let flash = format!("{} {}", plan.flash.precision.name(), plan.flash.form);
@@ -561,6 +644,7 @@ pub fn run(plan: &Plan, opts: RunOptions) -> Result<RunResult, RunError> {
         steps,
         dt,
         mode,
+        recentre_m,
         reference: ReferenceResult {
             final_covariance: rows(&pr),
             final_state: reference.state().iter().copied().collect(),

@@ -15,6 +15,11 @@ pub use error::{Locator, SpecError};
 pub use figures::{ConversionRecord, convert_standalone};
 pub use validate::MAX_MISSION_S;
 
+/// Smallest re-centring distance, m: the lanes move their origin in whole
+/// metres, which f32 holds exactly up to 2^24 m, so the shift itself adds
+/// no rounding.
+pub const MIN_RECENTRE_M: f64 = 1.0;
+
 /// One state of the model.
 #[derive(Debug, Clone, Serialize)]
 pub struct StateInfo {
@@ -282,6 +287,9 @@ pub struct Plan {
     pub flash: Flash,
     /// Covariance-only or end-to-end (nonlinear models).
     pub mode: Mode,
+    /// Pose model, end-to-end mode: each variant re-centres its x, y when
+    /// either passes this distance, m (`None`: never).
+    pub recentre_m: Option<f64>,
     /// External reference, if given.
     pub external: Option<ExternalReference>,
     /// Every noise-figure conversion, in order.

@@ -97,6 +97,9 @@ pub struct RawModel {
     pub profile: Option<Spanned<Vec<Spanned<RawSegment>>>>,
     /// Pose: recorded odometry (CSV: time_s, speed, yaw_rate).
     pub profile_csv: Option<Spanned<String>>,
+    /// Pose, end-to-end mode: each variant moves its origin to its x, y
+    /// whenever |x| or |y| passes this many metres (off by default).
+    pub recentre_m: Option<Spanned<f64>>,
 }
 
 /// One segment of a synthesised odometry profile.

@@ -90,6 +90,7 @@ pub(super) fn plan(loc: &Locator<'_>, raw: RawSpec, base: Option<&Path>) -> R<Pl
 
     // Process model.
     let kind = model.kind.get_ref().as_str();
+    let mut recentre_m = None;
     let (model_plan, mode) = match kind {
         "discrete" => {
             forbid_pose_fields(loc, model, kind)?;
@@ -295,6 +296,10 @@ pub(super) fn plan(loc: &Locator<'_>, raw: RawSpec, base: Option<&Path>) -> R<Pl
                     }
                 },
             };
+            recentre_m = match model.recentre_m.as_ref() {
+                Some(d) => Some(recentre(loc, d, "model.recentre_m")?),
+                None => None,
+            };
             (
                 ModelPlan::Pose {
                     speed_var,
@@ -432,6 +437,7 @@ pub(super) fn plan(loc: &Locator<'_>, raw: RawSpec, base: Option<&Path>) -> R<Pl
         thresholds,
         flash,
         mode,
+        recentre_m,
         external,
         conversions,
         seed,
@@ -793,6 +799,12 @@ fn forbid_pose_fields(loc: &Locator<'_>, model: &RawModel, kind: &str) -> R<()> 
         model.profile_csv.as_ref().map(Spanned::span),
         "model.profile_csv",
         kind,
+    )?;
+    forbid(
+        loc,
+        model.recentre_m.as_ref().map(Spanned::span),
+        "model.recentre_m",
+        kind,
     )
 }
 
@@ -822,6 +834,24 @@ fn positive(loc: &Locator<'_>, v: &Spanned<f64>, field: &str) -> R<f64> {
             v.span(),
             field,
             format!("must be a positive number, got {x}"),
+        ))
+    }
+}
+
+/// A re-centring distance: finite and at least [`super::MIN_RECENTRE_M`]
+/// (the origin moves in whole metres).
+fn recentre(loc: &Locator<'_>, v: &Spanned<f64>, field: &str) -> R<f64> {
+    let x = *v.get_ref();
+    if x.is_finite() && x >= super::MIN_RECENTRE_M {
+        Ok(x)
+    } else {
+        Err(loc.error(
+            v.span(),
+            field,
+            format!(
+                "must be a finite distance of at least {} m (the origin moves in whole metres), got {x}",
+                super::MIN_RECENTRE_M
+            ),
         ))
     }
 }
