@@ -55,6 +55,27 @@ fn textbook_update<T: Scalar, const N: usize, const M: usize>(
     Some((x, p))
 }
 
+/// Joseph's factored order (W = P - K B', D = K R - W H', P+ = W + D K')
+/// written directly in nalgebra with a Cholesky solve and no checks at all:
+/// the floor for the core's arithmetic with nalgebra's kernels, so every run
+/// shows how much of the core's cost is its checks and transactions.
+#[inline(never)]
+fn factored_unchecked<T: Scalar, const N: usize, const M: usize>(
+    x: &SVector<T, N>,
+    p: &SMatrix<T, N, N>,
+    z: &SVector<T, M>,
+    h: &SMatrix<T, M, N>,
+    r: &SMatrix<T, M, M>,
+) -> Option<(SVector<T, N>, SMatrix<T, N, N>)> {
+    let b = p * h.transpose();
+    let s = h * b + r;
+    let k = s.cholesky()?.solve(&b.transpose()).transpose();
+    let x = x + k * (z - h * x);
+    let w = p - k * b.transpose();
+    let d = k * r - w * h.transpose();
+    Some((x, w + d * k.transpose()))
+}
+
 /// The textbook predict: x = F x, P = F P F' + Q with full products.
 #[inline(never)]
 fn textbook_predict<T: Scalar, const N: usize>(
@@ -114,6 +135,17 @@ macro_rules! bench_update {
                 let mut f = black_box(joseph);
                 let o = f.update_sequential(black_box(&z), black_box(&h), black_box(&r_diag), None);
                 (f, o)
+            })
+        });
+        g.bench_function("factored_unchecked", |b| {
+            b.iter(|| {
+                factored_unchecked(
+                    black_box(&x0),
+                    black_box(&p0),
+                    black_box(&z),
+                    black_box(&h),
+                    black_box(&r),
+                )
             })
         });
         g.bench_function("textbook", |b| {

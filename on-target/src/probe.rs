@@ -8,7 +8,7 @@
 use cairn_core::pose::{HeadingFix, Odometry, PlanarOdometry, PositionFix};
 use core::hint::black_box;
 
-use cairn_core::{Conventional, FilterError, Joseph, Kalman, Outcome, UdKalman};
+use cairn_core::{Conventional, FilterError, Joseph, Kalman, Outcome, ProcessModel, UdKalman};
 use nalgebra::{SMatrix, SVector, Vector1, Vector2};
 
 use crate::scenario::Lcg;
@@ -44,6 +44,50 @@ pub fn pose_heading_update(
     gate: Option<f32>,
 ) -> Result<Outcome<f32>, FilterError> {
     filter.update_with(model, z, gate)
+}
+
+/// The pose predict's arithmetic with nothing else: the model's step and
+/// Jacobian, then F P F' + Q as plain nalgebra products, with no input or
+/// result checks, no transaction and no use of symmetry. Not a filter to
+/// flash: a floor that shows how much of `pose_predict`'s cost is call,
+/// load and store overhead that any compiled code pays.
+#[inline(never)]
+pub fn pose_predict_unchecked(
+    x: &mut SVector<f32, 3>,
+    p: &mut SMatrix<f32, 3, 3>,
+    model: &PlanarOdometry<f32>,
+    odo: &Odometry<f32>,
+    dt: f32,
+) {
+    let lin = model.linearize(x, odo, dt);
+    *x = lin.next;
+    model.normalize(x);
+    *p = lin.jacobian * *p * lin.jacobian.transpose() + lin.noise;
+}
+
+/// The position update's arithmetic with nothing else: S = H P H' + R
+/// factored by the core's LDL', K = P H' S^-1, and Joseph's factored order
+/// as plain nalgebra products; no checks, no gate, no transaction. The
+/// floor for `pose_position_update`, as `pose_predict_unchecked` is for the
+/// predict.
+#[inline(never)]
+pub fn pose_position_update_unchecked(
+    x: &mut SVector<f32, 3>,
+    p: &mut SMatrix<f32, 3, 3>,
+    r: &SMatrix<f32, 2, 2>,
+    z: &Vector2<f32>,
+) {
+    let h = PositionFix::<f32>::h();
+    let b = *p * h.transpose();
+    let s = h * b + r;
+    let Ok(ldl) = cairn_core::Ldl::factor(&s) else {
+        return;
+    };
+    let k = ldl.right_divide(&b);
+    *x += k * (z - h * *x);
+    let w = *p - k * b.transpose();
+    let d = k * r - w * h.transpose();
+    *p = w + d * k.transpose();
 }
 
 /// U-D pose filter predict: the odometry step through the planar model,

@@ -761,8 +761,10 @@ pub fn probes(functions: &[Function]) -> Vec<(String, u32)> {
         let pose = [
             "pose_predict",
             "pose_ud_predict",
+            "pose_predict_unchecked",
             "pose_position_update",
             "pose_ud_position_update",
+            "pose_position_update_unchecked",
             "pose_heading_update",
             "pose_ud_heading_update",
         ];

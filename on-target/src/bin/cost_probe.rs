@@ -46,6 +46,31 @@ fn main() -> ! {
         failures += u32::from(r.is_err());
     }
 
+    // The floors: the same arithmetic with no checks (not a filter).
+    let start = scenario::initial_filter();
+    let (mut x, mut p) = (*start.state(), *start.covariance());
+    for _ in 0..CALLS {
+        let odo = Odometry {
+            speed: 0.6 + 0.02 * noise.signed_unit(),
+            yaw_rate: 0.1 + 0.01 * noise.signed_unit(),
+        };
+        probe::pose_predict_unchecked(
+            black_box(&mut x),
+            &mut p,
+            &models.motion,
+            &odo,
+            scenario::DT,
+        );
+    }
+    for _ in 0..CALLS {
+        let z = Vector2::new(
+            x[0] + 0.05 * noise.signed_unit(),
+            x[1] + 0.05 * noise.signed_unit(),
+        );
+        probe::pose_position_update_unchecked(black_box(&mut x), &mut p, &models.beacon.r, &z);
+    }
+    failures += u32::from(!(p.iter().all(|v| v.is_finite()) && p[(0, 0)] > 0.0));
+
     // The same operations on the U-D factored filter, from the same start.
     let start = scenario::initial_filter();
     let Ok(mut ud) = UdKalman::try_new(*start.state(), *start.covariance()) else {
