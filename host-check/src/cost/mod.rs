@@ -1071,6 +1071,17 @@ mod tests {
                 .any(|l| l.text.starts_with("vmul.f32"))
         );
         assert!(predict.render_profile().contains("vmul.f32"));
+        // The unchecked floors do the same arithmetic with no checks and no
+        // transaction: cheaper than the filter, yet above their own bound.
+        for (floor, filter) in [
+            ("pose_predict_unchecked", predict),
+            ("pose_position_update_unchecked", position),
+        ] {
+            let f = report.operation(floor).expect("floor probe");
+            assert_eq!(f.calls, 16, "{floor}");
+            assert!(f.m4_cycles < filter.m4_cycles, "{floor}");
+            assert!(f.m4_cycles > f.bound, "{floor}");
+        }
 
         // The U-D twins, on the same scenario and the same demo rates.
         let ud_predict = report
