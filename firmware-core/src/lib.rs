@@ -67,6 +67,8 @@ mod model;
 pub mod pose;
 mod scalar;
 mod steady;
+// The default f32 sin/cos; unused when a feature picks another kernel.
+#[cfg_attr(any(feature = "fast-trig", feature = "libm-trig"), allow(dead_code))]
 mod trig;
 mod ud;
 
