@@ -283,19 +283,7 @@ fn conventional_scalar<T: Scalar, const N: usize, const COLUMNS: bool>(
 mod tests {
     use super::*;
     use crate::kernel::mirror_upper;
-
-    /// Deterministic values in [-1, 1): Press et al.'s 32-bit LCG
-    /// (*Numerical Recipes*, 2nd ed., ch. 7.1).
-    struct Lcg(u32);
-    impl Lcg {
-        fn unit(&mut self) -> f64 {
-            self.0 = self.0.wrapping_mul(1_664_525).wrapping_add(1_013_904_223);
-            f64::from(self.0 >> 8) / f64::from(1u32 << 24) * 2.0 - 1.0
-        }
-        fn matrix<T: Scalar, const R: usize, const C: usize>(&mut self) -> SMatrix<T, R, C> {
-            SMatrix::from_fn(|_, _| T::of(self.unit()))
-        }
-    }
+    use crate::kernel::testing::Lcg;
 
     /// The upper triangles (the forms' output) agree bit for bit.
     fn same_bits<T: Scalar, const N: usize>(a: &SMatrix<T, N, N>, b: &SMatrix<T, N, N>) -> bool {

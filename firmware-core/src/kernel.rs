@@ -263,28 +263,37 @@ pub(crate) fn innovation_shaped<T: Scalar, const N: usize, const M: usize, const
     (b, s)
 }
 
+/// Deterministic test inputs shared by the kernel and form tests.
 #[cfg(test)]
-mod tests {
+pub(crate) mod testing {
     use super::*;
 
     /// Deterministic values in [-1, 1): Press et al.'s 32-bit LCG
     /// (*Numerical Recipes*, 2nd ed., ch. 7.1).
-    struct Lcg(u32);
+    pub(crate) struct Lcg(pub(crate) u32);
     impl Lcg {
-        fn unit(&mut self) -> f64 {
+        pub(crate) fn unit(&mut self) -> f64 {
             self.0 = self.0.wrapping_mul(1_664_525).wrapping_add(1_013_904_223);
             f64::from(self.0 >> 8) / f64::from(1u32 << 24) * 2.0 - 1.0
         }
-        fn matrix<T: Scalar, const R: usize, const C: usize>(&mut self) -> SMatrix<T, R, C> {
+        pub(crate) fn matrix<T: Scalar, const R: usize, const C: usize>(
+            &mut self,
+        ) -> SMatrix<T, R, C> {
             SMatrix::from_fn(|_, _| T::of(self.unit()))
         }
-        fn covariance<T: Scalar, const N: usize>(&mut self) -> SMatrix<T, N, N> {
+        pub(crate) fn covariance<T: Scalar, const N: usize>(&mut self) -> SMatrix<T, N, N> {
             let a: SMatrix<T, N, N> = self.matrix();
             let mut p = a * a.transpose();
             mirror_upper(&mut p);
             p
         }
     }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::testing::Lcg;
+    use super::*;
 
     /// The bits of the upper triangle (diagonal included).
     fn bits<T: Scalar, const N: usize>(m: &SMatrix<T, N, N>) -> [u64; 256] {
