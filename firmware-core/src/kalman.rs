@@ -241,7 +241,12 @@ impl<T: Scalar, const N: usize, F: CovarianceForm> Kalman<T, N, F> {
         let r = model.noise(&self.x);
         let mut post = self.p;
         let weighed = self.weigh(nu, &h, &r, gate, &mut post)?;
-        self.finish(weighed, &post, |x| model.normalize(x))
+        self.finish(
+            weighed,
+            &post,
+            #[inline(always)]
+            |x| model.normalize(x),
+        )
     }
 
     /// Linear update with uncorrelated measurement noise, processed one

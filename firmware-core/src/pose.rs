@@ -46,12 +46,14 @@ impl<T: Scalar> PlanarOdometry<T> {
 impl<T: Scalar> ProcessModel<T, 3> for PlanarOdometry<T> {
     type Input = Odometry<T>;
 
+    #[inline(always)]
     fn transition(&self, x: &Vector3<T>, u: &Odometry<T>, dt: T) -> Vector3<T> {
         let (s, c) = Self::midpoint(x, u, dt);
         let d = u.speed * dt;
         Vector3::new(x[0] + d * c, x[1] + d * s, x[2] + u.yaw_rate * dt)
     }
 
+    #[inline(always)]
     fn jacobian(&self, x: &Vector3<T>, u: &Odometry<T>, dt: T) -> SMatrix<T, 3, 3> {
         let (s, c) = Self::midpoint(x, u, dt);
         let d = u.speed * dt;
@@ -61,12 +63,14 @@ impl<T: Scalar> ProcessModel<T, 3> for PlanarOdometry<T> {
         f
     }
 
+    #[inline(always)]
     fn noise(&self, x: &Vector3<T>, u: &Odometry<T>, dt: T) -> SMatrix<T, 3, 3> {
         let (s, c) = Self::midpoint(x, u, dt);
         let (g, q) = self.sources_at(s, c, u, dt);
         noise_from(&g, &q)
     }
 
+    #[inline(always)]
     fn noise_input(
         &self,
         x: &Vector3<T>,
@@ -94,6 +98,7 @@ impl<T: Scalar> ProcessModel<T, 3> for PlanarOdometry<T> {
         }
     }
 
+    #[inline(always)]
     fn normalize(&self, x: &mut Vector3<T>) {
         x[2] = wrap_angle(x[2]);
     }
@@ -162,15 +167,19 @@ impl<T: Scalar> PositionFix<T> {
 }
 
 impl<T: Scalar> MeasurementModel<T, 3, 2> for PositionFix<T> {
+    #[inline(always)]
     fn predict(&self, x: &Vector3<T>) -> Vector2<T> {
         Vector2::new(x[0], x[1])
     }
+    #[inline(always)]
     fn jacobian(&self, _x: &Vector3<T>) -> SMatrix<T, 2, 3> {
         Self::h()
     }
+    #[inline(always)]
     fn noise(&self, _x: &Vector3<T>) -> Matrix2<T> {
         self.r
     }
+    #[inline(always)]
     fn normalize(&self, x: &mut Vector3<T>) {
         x[2] = wrap_angle(x[2]);
     }
@@ -186,18 +195,23 @@ pub struct HeadingFix<T> {
 }
 
 impl<T: Scalar> MeasurementModel<T, 3, 1> for HeadingFix<T> {
+    #[inline(always)]
     fn predict(&self, x: &Vector3<T>) -> SVector<T, 1> {
         SVector::<T, 1>::new(x[2])
     }
+    #[inline(always)]
     fn jacobian(&self, _x: &Vector3<T>) -> SMatrix<T, 1, 3> {
         SMatrix::<T, 1, 3>::new(T::zero(), T::zero(), T::one())
     }
+    #[inline(always)]
     fn noise(&self, _x: &Vector3<T>) -> SMatrix<T, 1, 1> {
         SMatrix::<T, 1, 1>::new(self.var)
     }
+    #[inline(always)]
     fn residual(&self, z: &SVector<T, 1>, predicted: &SVector<T, 1>) -> SVector<T, 1> {
         SVector::<T, 1>::new(wrap_angle(z[0] - predicted[0]))
     }
+    #[inline(always)]
     fn normalize(&self, x: &mut Vector3<T>) {
         x[2] = wrap_angle(x[2]);
     }

@@ -359,7 +359,14 @@ impl<T: Scalar, const N: usize> UdKalman<T, N> {
         let h = model.jacobian(&self.x);
         check::finite(&h, Operand::MeasurementMatrix)?;
         let r = model.noise(&self.x);
-        self.update_innovation(nu, &h, &r, gate, |x| model.normalize(x))
+        self.update_innovation(
+            nu,
+            &h,
+            &r,
+            gate,
+            #[inline(always)]
+            |x| model.normalize(x),
+        )
     }
 
     /// Update with uncorrelated noise (variances `r`), component by
