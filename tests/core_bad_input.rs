@@ -154,6 +154,45 @@ fn bad_time_steps_and_transitions() {
             0.01,
         )
     });
+    // The pose model gives its noise as independent sources; the filter
+    // forms Q from them and checks only the variances (a negative or NaN
+    // variance is not a variance).
+    for (bad, index) in [(-1e-4, 0), (f32::NAN, 0)] {
+        let expected = if bad.is_nan() {
+            FilterError::NonFinite(Operand::ProcessNoise)
+        } else {
+            FilterError::NotPositiveDefinite {
+                operand: Operand::ProcessNoise,
+                index,
+            }
+        };
+        refused(expected, |kf| {
+            kf.predict_with(
+                &PlanarOdometry {
+                    speed_var: bad,
+                    ..motion
+                },
+                &u,
+                0.01,
+            )
+        });
+    }
+    refused(
+        FilterError::NotPositiveDefinite {
+            operand: Operand::ProcessNoise,
+            index: 2,
+        },
+        |kf| {
+            kf.predict_with(
+                &PlanarOdometry {
+                    heading_drift_var: -1e-9,
+                    ..motion
+                },
+                &u,
+                0.01,
+            )
+        },
+    );
     let mut f = Matrix3::identity();
     f[(0, 1)] = f32::NEG_INFINITY;
     refused(FilterError::NonFinite(Operand::Transition), |kf| {

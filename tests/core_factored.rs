@@ -275,3 +275,66 @@ fn joseph_stays_positive_definite_where_its_expansion_does_not() {
         "f32 Joseph smallest eigenvalue {got} vs {want}"
     );
 }
+
+/// The pose model with its noise sources hidden: filters must take its Q
+/// as a matrix and check it in full.
+struct OnlyQ(cairn_core::pose::PlanarOdometry<f32>);
+
+impl cairn_core::ProcessModel<f32, 3> for OnlyQ {
+    type Input = cairn_core::pose::Odometry<f32>;
+    fn transition(&self, x: &Vector3<f32>, u: &Self::Input, dt: f32) -> Vector3<f32> {
+        self.0.transition(x, u, dt)
+    }
+    fn jacobian(&self, x: &Vector3<f32>, u: &Self::Input, dt: f32) -> Matrix3<f32> {
+        self.0.jacobian(x, u, dt)
+    }
+    fn noise(&self, x: &Vector3<f32>, u: &Self::Input, dt: f32) -> Matrix3<f32> {
+        self.0.noise(x, u, dt)
+    }
+    fn normalize(&self, x: &mut Vector3<f32>) {
+        self.0.normalize(x);
+    }
+}
+
+#[test]
+fn predict_from_noise_sources_equals_predict_from_q() {
+    // Q = G diag(q) G' (common practice): the filter forming Q from the
+    // model's sources (checking q >= 0 only) and the filter given Q (checked
+    // in full) compute the same f32 covariance, step for step, to the
+    // rounding of a zero's sign at most.
+    use cairn_core::ProcessModel;
+    use cairn_core::pose::{Odometry, PlanarOdometry};
+    let motion = PlanarOdometry {
+        speed_var: 4e-4,
+        yaw_rate_var: 1e-4,
+        heading_drift_var: 1e-8,
+    };
+    assert!(
+        motion
+            .noise_input(
+                &Vector3::zeros(),
+                &Odometry {
+                    speed: 1.0,
+                    yaw_rate: 0.0
+                },
+                0.01
+            )
+            .is_some()
+    );
+    let start = Kalman::<f32, 3, Joseph>::try_new(Vector3::zeros(), Matrix3::identity() * 1e-2)
+        .expect("P0 is a covariance");
+    let (mut a, mut b) = (start, start);
+    for k in 0..500 {
+        let u = Odometry {
+            speed: 0.5 + 0.001 * k as f32,
+            yaw_rate: 0.2 - 0.0005 * k as f32,
+        };
+        a.predict_with(&motion, &u, 0.005).expect("sources path");
+        b.predict_with(&OnlyQ(motion), &u, 0.005)
+            .expect("matrix path");
+        for (x, y) in a.covariance().iter().zip(b.covariance().iter()) {
+            assert!(x == y, "step {k}: {x:e} against {y:e}");
+        }
+        assert_eq!(a.state(), b.state());
+    }
+}

@@ -8,7 +8,7 @@ use nalgebra::{SMatrix, SVector};
 use crate::check;
 use crate::error::{FilterError, Operand, Outcome, idx};
 use crate::form::{CovarianceForm, Joseph};
-use crate::kernel::{innovation, mirror_upper, propagate};
+use crate::kernel::{from_sources, innovation, mirror_upper, propagate};
 use crate::ldl::Ldl;
 use crate::model::{Linearized, MeasurementModel, ProcessModel};
 use crate::scalar::Scalar;
@@ -155,7 +155,9 @@ impl<T: Scalar, const N: usize, F: CovarianceForm> Kalman<T, N, F> {
     }
 
     /// Extended predict through a process model: x = f(x, u, dt),
-    /// P = F P F' + Q with F and Q from the model at the prior state.
+    /// P = F P F' + Q with F and Q from the model at the prior state. When
+    /// the model gives its noise as independent sources (`sources` of its
+    /// [`Linearized`]), Q is formed from them as G diag(q) G'.
     ///
     /// # Errors
     /// [`FilterError::InvalidTimeStep`] for dt that is zero, negative or not
@@ -175,13 +177,24 @@ impl<T: Scalar, const N: usize, F: CovarianceForm> Kalman<T, N, F> {
             mut next,
             jacobian,
             noise,
-            ..
+            sources,
         } = model.linearize(&self.x, u, dt);
         check::finite(&jacobian, Operand::Transition)?;
         check::finite(&next, Operand::Control)?;
         model.normalize(&mut next);
-        check::noise(&noise, Operand::ProcessNoise, false)?;
-        let p = propagate(&jacobian, &self.p, &noise);
+        // Noise given as independent sources makes its own Q, symmetric and
+        // semidefinite by construction: only the variances need checking.
+        let q = match sources {
+            Some((g, q)) => {
+                check::sources(&g, &q)?;
+                from_sources(&g, &q)
+            }
+            None => {
+                check::noise(&noise, Operand::ProcessNoise, false)?;
+                noise
+            }
+        };
+        let p = propagate(&jacobian, &self.p, &q);
         self.commit(&next, &p)
     }
 

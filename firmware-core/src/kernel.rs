@@ -19,7 +19,7 @@
 //! the unit tests check, bit for bit, that they agree: a host run of the
 //! verifier computes exactly what the microcontroller computes.
 
-use nalgebra::SMatrix;
+use nalgebra::{SMatrix, SVector};
 
 use crate::scalar::Scalar;
 
@@ -199,6 +199,29 @@ pub(crate) fn propagate_dots<T: Scalar, const N: usize>(
                 v += a[(e, i)] * ft[(e, j)];
             }
             out[(i, j)] = v + q[(i, j)];
+        }
+    }
+    out
+}
+
+/// Q = G diag(q) G' from independent noise sources: entry (i, j) is
+/// `sum_k (G[i,k] G[j,k]) q[k]` (k ascending from zero), exactly symmetric,
+/// and positive semidefinite by construction when every q[k] >= 0, which
+/// is all a caller has to check.
+#[inline(always)]
+pub(crate) fn from_sources<T: Scalar, const N: usize>(
+    g: &SMatrix<T, N, N>,
+    q: &SVector<T, N>,
+) -> SMatrix<T, N, N> {
+    let mut out = SMatrix::<T, N, N>::zeros();
+    for j in 0..N {
+        for i in 0..=j {
+            let mut v = neg_zero::<T>();
+            for k in 0..N {
+                v += g[(i, k)] * g[(j, k)] * q[k];
+            }
+            out[(i, j)] = v;
+            out[(j, i)] = v;
         }
     }
     out

@@ -16,6 +16,8 @@ pub struct Linearized<T: Scalar, const N: usize> {
     /// The discrete process noise Q.
     pub noise: SMatrix<T, N, N>,
     /// Q as independent sources G diag(q) G', when the model knows them.
+    /// The filters then form Q from these (`noise` must equal G diag(q) G'):
+    /// it is semidefinite by construction, so only q >= 0 is checked.
     pub sources: Option<(SMatrix<T, N, N>, SVector<T, N>)>,
 }
 
