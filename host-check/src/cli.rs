@@ -335,8 +335,9 @@ fn demo(a: &DemoArgs) -> Result<u8, Failure> {
     check(plan, a.seconds, a.mode, &a.output)
 }
 
-/// `--recentre M`: a finite distance of at least 1 m, for the pose model.
-fn recentre(plan: &mut Plan, distance: Option<f64>) -> Result<(), Failure> {
+/// `--recentre M`: a finite distance of at least 1 m, for the pose model
+/// (`check`, `demo` and `trials`).
+pub(crate) fn recentre(plan: &mut Plan, distance: Option<f64>) -> Result<(), Failure> {
     let Some(d) = distance else {
         return Ok(());
     };

@@ -279,6 +279,20 @@ fn the_report_does_not_depend_on_the_thread_count() {
     // A different seed gives a different study.
     let c = consistency::run(&cart(120, 6), &opts).unwrap();
     assert_ne!(ja, serde_json::to_string(&c).unwrap());
+    // The same with pose filters that re-centre.
+    let mut rover = rover(120);
+    rover.recentre_m = Some(1.0);
+    let opts = Options {
+        variants: crate::two(),
+        ..options(20, 120, 1.0)
+    };
+    let a = one.install(|| consistency::run(&rover, &opts)).unwrap();
+    let b = two.install(|| consistency::run(&rover, &opts)).unwrap();
+    assert!(a.variants.iter().all(|v| v.recentres_per_run > 0.0));
+    assert_eq!(
+        serde_json::to_string(&a).unwrap(),
+        serde_json::to_string(&b).unwrap()
+    );
 }
 
 #[test]
@@ -464,5 +478,154 @@ fn one_step_far_outside_is_judged_even_alone() {
         let nees = bad.nees.as_ref().unwrap();
         assert_eq!((nees.points, nees.far_outside), (1, 1), "{}", report.text());
         assert_eq!(bad.verdict, Verdict::Optimistic, "{}", report.text());
+    }
+}
+
+fn far_rover() -> Plan {
+    cairn_host_check::spec::load(std::path::Path::new(concat!(
+        env!("CARGO_MANIFEST_DIR"),
+        "/tests/data/far-rover.toml"
+    )))
+    .unwrap()
+}
+
+/// f64 Joseph and f32 Joseph.
+fn joseph_pair() -> Vec<Variant> {
+    [Precision::F64, Precision::F32]
+        .into_iter()
+        .map(|precision| Variant {
+            precision,
+            form: Form::Joseph,
+        })
+        .collect()
+}
+
+#[test]
+fn re_centring_makes_the_far_rover_consistent_in_f32() {
+    // 20 km out IEEE 754 binary32 spaces coordinates 2^-9 m apart while a
+    // 5 ms step adds about 4 mm, so the f32 state drifts from the truth by
+    // more than its covariance admits: average NEES far above the two-sided
+    // 95% chi-square interval of Bar-Shalom, Li & Kirubarajan 2001. Moved
+    // to a local origin (whole metres, exact in f32) the same filter is
+    // consistent and its NEES, taken on origin + local state in f64, matches
+    // the f64 filter's.
+    let opts = Options {
+        variants: joseph_pair(),
+        ..options(10, 600, 1.0)
+    };
+    let far = consistency::run(&far_rover(), &opts).unwrap();
+    assert_eq!(far.recentre_m, None);
+    let (f64_far, f32_far) = (&far.variants[0], &far.variants[1]);
+    assert_eq!(f64_far.verdict, Verdict::Consistent, "{}", far.text());
+    assert_eq!(f32_far.verdict, Verdict::Optimistic, "{}", far.text());
+    let nees = f32_far.nees.as_ref().unwrap();
+    assert!(
+        nees.time_average > 3.0 * nees.interval.upper && nees.above > 0.5,
+        "{}",
+        far.text()
+    );
+    assert_eq!(f32_far.recentres_per_run, 0.0);
+
+    let mut plan = far_rover();
+    plan.recentre_m = Some(10.0);
+    let local = consistency::run(&plan, &opts).unwrap();
+    assert_eq!(local.recentre_m, Some(10.0));
+    for v in &local.variants {
+        assert_eq!(v.verdict, Verdict::Consistent, "{}", local.text());
+        // The start (20 km out) moves the origin once; 3 s at 0.8 m/s stays
+        // within 10 m of it.
+        assert_eq!(v.recentres_per_run, 1.0, "{}", local.text());
+    }
+    let (a, b) = (
+        local.variants[0].nees.as_ref().unwrap().time_average,
+        local.variants[1].nees.as_ref().unwrap().time_average,
+    );
+    assert!((a - b).abs() <= 1e-3 * a, "f64 {a} vs f32 {b}");
+    // The f64 filter gains nothing from the shift: whole metres are exact.
+    let before = f64_far.nees.as_ref().unwrap().time_average;
+    assert!((a - before).abs() <= 1e-9 * a, "{before} vs {a}");
+    assert!(local.text().contains("re-centred 1.0 times per run"));
+}
+
+#[test]
+fn re_centring_leaves_the_innovations_unchanged() {
+    // The innovation z - H x is the same whatever the frame: the fix and
+    // the state move by the same offset, and the pose model's Jacobians
+    // depend on heading only (common practice). In f64 the average NIS of
+    // every channel, and the NEES taken on origin + local state, must agree
+    // with the unshifted run to rounding, while the lawn rover does move
+    // its origin (1 m).
+    let variants = vec![Variant {
+        precision: Precision::F64,
+        form: Form::Ud,
+    }];
+    let opts = Options {
+        variants,
+        ..options(10, 300, 1.0)
+    };
+    let plain = consistency::run(&rover(300), &opts).unwrap();
+    let mut plan = rover(300);
+    plan.recentre_m = Some(1.0);
+    let moved = consistency::run(&plan, &opts).unwrap();
+    let (p, m) = (&plain.variants[0], &moved.variants[0]);
+    assert!(m.recentres_per_run >= 3.0, "{}", moved.text());
+    let close = |a: f64, b: f64| (a - b).abs() <= 1e-9 * a.abs().max(b.abs());
+    for (cp, cm) in p.nis.iter().zip(&m.nis) {
+        let (sp, sm) = (cp.nis.as_ref().unwrap(), cm.nis.as_ref().unwrap());
+        assert_eq!(sp.points, sm.points);
+        assert!(
+            close(sp.time_average, sm.time_average),
+            "NIS {}: {} vs {}",
+            cp.channel,
+            sp.time_average,
+            sm.time_average
+        );
+        for ((i, a), (j, b)) in sp.series.iter().zip(&sm.series) {
+            assert_eq!(i, j);
+            assert!(close(*a, *b), "NIS {} at {i}: {a} vs {b}", cp.channel);
+        }
+    }
+    let (np, nm) = (p.nees.as_ref().unwrap(), m.nees.as_ref().unwrap());
+    assert!(close(np.time_average, nm.time_average));
+}
+
+#[test]
+fn the_trials_subcommand_re_centres_on_request() {
+    let far = concat!(env!("CARGO_MANIFEST_DIR"), "/tests/data/far-rover.toml");
+    let json = std::env::temp_dir().join(format!("cairn-trials-rc-{}.json", std::process::id()));
+    let json_arg = json.to_str().unwrap();
+    let common = [
+        "trials",
+        far,
+        "--runs",
+        "5",
+        "--seconds",
+        "2",
+        "--variant",
+        "f32-joseph",
+    ];
+    // 20 km out, f32 is optimistic (exit 1); with --recentre 10 it is
+    // consistent (exit 0) and the report says the lanes re-centre.
+    assert_eq!(cairn(&common).status.code(), Some(1));
+    let out = cairn(&[&common[..], &["--recentre", "10", "--json", json_arg]].concat());
+    let text = String::from_utf8_lossy(&out.stdout).into_owned();
+    assert_eq!(out.status.code(), Some(0), "{text}");
+    assert!(text.contains("Lanes re-centre") && text.contains("passes 10 m"));
+    let report: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(&json).unwrap()).unwrap();
+    let _ = std::fs::remove_file(&json);
+    assert_eq!(report["recentre_m"], 10.0);
+    assert_eq!(report["variants"][0]["recentres_per_run"], 1.0);
+    // The same validation as `cairn check --recentre`.
+    let linear = concat!(env!("CARGO_MANIFEST_DIR"), "/specs/wna-tracker.toml");
+    for (args, word) in [
+        (vec!["trials", far, "--recentre", "0.5"], "at least 1 m"),
+        (vec!["trials", far, "--recentre", "inf"], "finite"),
+        (vec!["trials", linear, "--recentre", "10"], "planar-pose"),
+    ] {
+        let out = cairn(&args);
+        assert_eq!(out.status.code(), Some(2), "{args:?}");
+        let err = String::from_utf8_lossy(&out.stderr);
+        assert!(err.contains(word), "{args:?}: {err}");
     }
 }

@@ -35,6 +35,11 @@ pub struct TrialsArgs {
     /// small does.
     #[arg(long, value_name = "X", default_value_t = 1.0)]
     pub filter_q_scale: f64,
+    /// Pose model: each variant moves its origin to its x, y (whole metres,
+    /// origin kept in f64) whenever |x| or |y| passes M metres, and is
+    /// judged on origin + local state (overrides the spec's `recentre_m`).
+    #[arg(long, value_name = "M")]
+    pub recentre: Option<f64>,
     /// Confidence of the two-sided chi-square intervals.
     #[arg(long, value_name = "P", default_value_t = 0.95)]
     pub confidence: f64,
@@ -79,7 +84,7 @@ fn parse_variant(text: &str) -> Option<Variant> {
 /// # Errors
 /// A [`Failure`] with exit code 2 for a bad spec, option or output file.
 pub fn execute(a: &TrialsArgs) -> Result<u8, Failure> {
-    let plan: Plan = match &a.spec {
+    let mut plan: Plan = match &a.spec {
         Some(path) => spec::load(path).map_err(|e| Failure {
             code: EXIT_BAD_INPUT,
             error: Box::new(e),
@@ -89,6 +94,7 @@ pub fn execute(a: &TrialsArgs) -> Result<u8, Failure> {
             error: Box::new(e),
         })?,
     };
+    crate::cli::recentre(&mut plan, a.recentre)?;
     let mut variants = Vec::new();
     for v in &a.variants {
         let parsed = parse_variant(v).ok_or_else(|| {

@@ -10,6 +10,7 @@ use nalgebra::{DMatrix, SMatrix, SVector};
 use serde::Serialize;
 
 use super::sim::{RunData, Sensor, Setup, World};
+use crate::run::lane::{OriginShift, recentre_offset};
 use crate::spec::Precision;
 
 /// Largest state dimension the dispatch covers.
@@ -86,6 +87,9 @@ pub struct Trace {
     pub nis: Vec<Vec<f64>>,
     /// The step and the core's error, when the filter refused to go on.
     pub failure: Option<(usize, FilterError)>,
+    /// Times the filter moved its origin (pose model with re-centring; a
+    /// start beyond the distance counts once).
+    pub recentres: u64,
 }
 
 impl Trace {
@@ -94,6 +98,7 @@ impl Trace {
             nees: vec![f64::NAN; steps],
             nis: vec![Vec::new(); channels],
             failure: None,
+            recentres: 0,
         }
     }
 }
@@ -102,15 +107,19 @@ fn to_s<T: Scalar, const R: usize, const C: usize>(m: &DMatrix<f64>) -> SMatrix<
     SMatrix::from_fn(|i, j| T::of(m[(i, j)]))
 }
 
-/// NEES e' P^-1 e in f64 from the variant's estimate; `wrap` wraps the
-/// heading error. Infinity when P is not positive definite.
+/// NEES e' P^-1 e in f64 from the variant's estimate, expressed in a frame
+/// whose origin (x, y, in f64) is `origin`: e = truth - (origin + x), all in
+/// f64; `wrap` wraps the heading error. Infinity when P is not positive
+/// definite.
 fn nees<T: Scalar, const N: usize>(
     x: &SVector<T, N>,
     p: &SMatrix<T, N, N>,
     truth: &[f64],
+    origin: [f64; 2],
     wrap: bool,
 ) -> f64 {
-    let mut e = SVector::<f64, N>::from_fn(|i, _| truth[i] - x[i].to_f64());
+    let shift = |i: usize| origin.get(i).copied().unwrap_or(0.0);
+    let mut e = SVector::<f64, N>::from_fn(|i, _| truth[i] - (shift(i) + x[i].to_f64()));
     if wrap && N >= 3 {
         e[2] = wrap_angle(e[2]);
     }
@@ -207,13 +216,24 @@ fn run_linear<T: Scalar, E: Estimator<T, N>, const N: usize>(s: &Setup, d: &RunD
             }
         }
         let truth = &d.truth[(k - 1) * N..k * N];
-        trace.nees[k - 1] = nees(filter.state(), &filter.covariance_matrix(), truth, false);
+        trace.nees[k - 1] = nees(
+            filter.state(),
+            &filter.covariance_matrix(),
+            truth,
+            [0.0; 2],
+            false,
+        );
     }
     trace
 }
 
-/// Runs the planar pose model's filter of form `E` over one run.
-fn run_pose<T: Scalar, E: Estimator<T, 3>>(s: &Setup, d: &RunData) -> Trace {
+/// Runs the planar pose model's filter of form `E` over one run. With
+/// re-centring the filter keeps its own frame as `cairn check`'s
+/// end-to-end lanes do: it starts at x0 minus the origin (formed in f64),
+/// shifts before each step's predict whenever [`recentre_offset`] says so,
+/// reads position fixes minus the origin (in f64) and is judged on origin +
+/// local state.
+fn run_pose<T: Scalar, E: Estimator<T, 3> + OriginShift<T, 3>>(s: &Setup, d: &RunData) -> Trace {
     let mut trace = Trace::new(s.steps, s.channels.len());
     let World::Pose { filter: model, .. } = &s.world else {
         trace.failure = Some((0, FilterError::InvalidTimeStep));
@@ -225,7 +245,15 @@ fn run_pose<T: Scalar, E: Estimator<T, 3>>(s: &Setup, d: &RunData) -> Trace {
         heading_drift_var: T::of(model.heading_drift_var),
     };
     let dt = T::of(s.dt);
-    let mut filter = match initial::<T, E, 3>(s) {
+    let mut origin = [0.0_f64; 2];
+    let mut x0 = s.x0.clone();
+    if let Some(o) = s.recentre_m.and_then(|m| recentre_offset(x0[0], x0[1], m)) {
+        x0[0] -= o[0];
+        x0[1] -= o[1];
+        origin = o;
+        trace.recentres = 1;
+    }
+    let mut filter = match E::try_new(SVector::from_fn(|i, _| T::of(x0[i])), to_s(&s.p0)) {
         Ok(filter) => filter,
         Err(e) => {
             trace.failure = Some((0, e));
@@ -234,6 +262,19 @@ fn run_pose<T: Scalar, E: Estimator<T, 3>>(s: &Setup, d: &RunData) -> Trace {
     };
     let mut cursor = 0;
     for k in 1..=s.steps {
+        if let Some(m) = s.recentre_m {
+            let x = filter.state();
+            if let Some(o) = recentre_offset(x[0].to_f64(), x[1].to_f64(), m) {
+                let offset = SVector::<T, 3>::new(T::of(o[0]), T::of(o[1]), T::of(0.0));
+                if let Err(e) = filter.shift_origin(&offset) {
+                    trace.failure = Some((k, e));
+                    return trace;
+                }
+                origin[0] += o[0];
+                origin[1] += o[1];
+                trace.recentres += 1;
+            }
+        }
         let u = d.odometry[k - 1];
         let u = cairn_core::pose::Odometry {
             speed: T::of(u.speed),
@@ -253,7 +294,8 @@ fn run_pose<T: Scalar, E: Estimator<T, 3>>(s: &Setup, d: &RunData) -> Trace {
                     let fix = PositionFix {
                         r: to_s::<T, 2, 2>(&ch.r),
                     };
-                    let z = SVector::<T, 2>::new(T::of(z[0]), T::of(z[1]));
+                    // The fix in the filter's frame, formed in f64.
+                    let z = SVector::<T, 2>::new(T::of(z[0] - origin[0]), T::of(z[1] - origin[1]));
                     filter.update_with(&fix, &z, gate)
                 }
                 Sensor::Heading => {
@@ -264,7 +306,7 @@ fn run_pose<T: Scalar, E: Estimator<T, 3>>(s: &Setup, d: &RunData) -> Trace {
                 }
                 Sensor::Linear => match Chan::<T, 3>::new(&ch.h, &ch.r) {
                     Some(chan) => chan
-                        .update(&mut filter, z, gate)
+                        .update(&mut filter, &local(&ch.h, z, origin), gate)
                         .map(|nis| cairn_core::Outcome::Applied { nis: T::of(nis) }),
                     None => Err(FilterError::NonFinite(
                         cairn_core::Operand::MeasurementMatrix,
@@ -280,9 +322,24 @@ fn run_pose<T: Scalar, E: Estimator<T, 3>>(s: &Setup, d: &RunData) -> Trace {
             }
         }
         let truth = &d.truth[(k - 1) * 3..k * 3];
-        trace.nees[k - 1] = nees(filter.state(), &filter.covariance_matrix(), truth, true);
+        trace.nees[k - 1] = nees(
+            filter.state(),
+            &filter.covariance_matrix(),
+            truth,
+            origin,
+            true,
+        );
     }
     trace
+}
+
+/// A linear measurement z = H x + v in a frame whose origin is (x, y) =
+/// `origin`: z - H (origin, 0), in f64.
+fn local(h: &DMatrix<f64>, z: &[f64], origin: [f64; 2]) -> Vec<f64> {
+    z.iter()
+        .enumerate()
+        .map(|(i, &zi)| zi - h[(i, 0)] * origin[0] - h[(i, 1)] * origin[1])
+        .collect()
 }
 
 fn run_sized<const N: usize>(v: Variant, s: &Setup, d: &RunData) -> Trace {

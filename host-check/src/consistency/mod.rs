@@ -204,6 +204,8 @@ pub fn run(plan: &Plan, options: &Options) -> Result<Report, ConsistencyError> {
         filter_q_scale: options.filter_q_scale,
         confidence: options.confidence,
         seed: plan.seed,
+        run_seconds: steps as f64 * setup.dt,
+        recentre_m: setup.recentre_m,
         variants,
     })
 }

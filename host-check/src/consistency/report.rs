@@ -237,6 +237,9 @@ pub struct VariantReport {
     pub verdict: Verdict,
     /// Why, in words.
     pub reason: String,
+    /// Times the filter moved its origin, per run on average (0 without
+    /// re-centring; a start beyond the distance counts once).
+    pub recentres_per_run: f64,
 }
 
 /// Accumulates the traces of one variant over the runs, in run order.
@@ -246,6 +249,7 @@ pub struct Accumulator {
     nis: Vec<Sums>,
     failed_runs: usize,
     first_failure: Option<String>,
+    recentres: u64,
 }
 
 impl Accumulator {
@@ -257,12 +261,14 @@ impl Accumulator {
             nis: vec![Sums::default(); channels],
             failed_runs: 0,
             first_failure: None,
+            recentres: 0,
         }
     }
 
     /// Adds run `run`'s trace.
     pub fn add(&mut self, run: usize, trace: &Trace) {
         self.nees.add(&trace.nees);
+        self.recentres += trace.recentres;
         for (sums, values) in self.nis.iter_mut().zip(&trace.nis) {
             sums.add(values);
         }
@@ -344,6 +350,7 @@ impl Accumulator {
             nis,
             verdict,
             reason,
+            recentres_per_run: self.recentres as f64 / runs.max(1) as f64,
         })
     }
 }
@@ -367,6 +374,11 @@ pub struct Report {
     pub confidence: f64,
     /// Seed of the study (run i uses a seed derived from it and i).
     pub seed: u64,
+    /// Seconds one run covers (steps x the step length).
+    pub run_seconds: f64,
+    /// The re-centring distance the pose filters used, m (`None`: they
+    /// kept the spec's frame).
+    pub recentre_m: Option<f64>,
     /// One entry per variant.
     pub variants: Vec<VariantReport>,
 }
@@ -397,6 +409,14 @@ impl Report {
             100.0 * (1.0 - FAR_RATE),
             100.0 * SIGNIFICANCE
         );
+        if let Some(d) = self.recentre_m {
+            let _ = writeln!(
+                out,
+                "Lanes re-centre: each variant moves its origin to its x, y (whole metres, kept in f64)\n\
+                 through the core's shift_origin_mut when |x| or |y| passes {d} m (a start beyond it counts\n\
+                 once); fixes reach it minus the origin and NEES is taken on origin + local state, in f64\n"
+            );
+        }
         let width = self
             .variants
             .iter()
@@ -447,6 +467,13 @@ impl Report {
             let _ = writeln!(out, "  => {}: {}", v.verdict.word(), v.reason);
             if let Some(f) = &v.first_failure {
                 let _ = writeln!(out, "     first failure: {f}");
+            }
+            if self.recentre_m.is_some() {
+                let _ = writeln!(
+                    out,
+                    "     re-centred {:.1} times per run of {} s on average",
+                    v.recentres_per_run, self.run_seconds
+                );
             }
         }
         out

@@ -87,6 +87,10 @@ pub struct Setup {
     pub due: Vec<u32>,
     /// Seed of the whole study.
     pub seed: u64,
+    /// Pose model: each variant moves its origin to its x, y (whole
+    /// metres, origin kept in f64) whenever |x| or |y| passes this many
+    /// metres, as `cairn check`'s end-to-end lanes do (`None`: never).
+    pub recentre_m: Option<f64>,
 }
 
 /// One run's simulated data.
@@ -244,6 +248,7 @@ impl Setup {
             channels,
             due,
             seed: plan.seed,
+            recentre_m: plan.recentre_m.filter(|_| !plan.is_linear()),
         })
     }
 

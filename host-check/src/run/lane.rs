@@ -119,6 +119,16 @@ impl<T: Scalar, const N: usize> OriginShift<T, N> for UdKalman<T, N> {
     }
 }
 
+/// The re-centring rule shared by `cairn check`'s end-to-end lanes and
+/// `cairn trials`: once |x| or |y| (in the lane's own frame) passes
+/// `distance`, the origin moves by x and y rounded to whole metres (exact
+/// in f32 and f64, so the shift adds no rounding); `None` while both stay
+/// within it (or either is NaN).
+#[must_use]
+pub fn recentre_offset(x: f64, y: f64, distance: f64) -> Option<[f64; 2]> {
+    (x.abs() > distance || y.abs() > distance).then(|| [x.round(), y.round()])
+}
+
 /// A cairn-core estimator `E` over `N` states in scalar `T`, as a [`Lane`].
 pub struct CoreLane<T: Scalar, const N: usize, E: Estimator<T, N> + OriginShift<T, N>> {
     filter: E,

@@ -183,10 +183,10 @@ fn recentre(r: &mut Running, distance: f64, k: u64, t: f64) {
         return;
     };
     lane.state(&mut r.x);
-    if r.x[0].abs() <= distance && r.x[1].abs() <= distance {
+    let Some([ox, oy]) = lane::recentre_offset(r.x[0], r.x[1], distance) else {
         return;
-    }
-    let offset = [r.x[0].round(), r.x[1].round(), 0.0];
+    };
+    let offset = [ox, oy, 0.0];
     match lane.shift_origin(&offset) {
         Ok(()) => {
             r.origin[0] += offset[0];
@@ -226,15 +226,15 @@ pub fn run(plan: &Plan, opts: RunOptions) -> Result<RunResult, RunError> {
     // Lanes. With re-centring, a lane that starts far out starts in its own
     // frame: x0 - origin is formed in f64 before it is rounded to the lane's
     // precision, as firmware would initialise it.
-    let (start_origin, start_recentres, lane_x0) = match recentre_m {
-        Some(d) if plan.x0[0].abs() > d || plan.x0[1].abs() > d => {
-            let o = [plan.x0[0].round(), plan.x0[1].round()];
+    let start = recentre_m.and_then(|d| lane::recentre_offset(plan.x0[0], plan.x0[1], d));
+    let (start_origin, start_recentres, lane_x0) = match start {
+        Some(o) => {
             let mut x = plan.x0.clone();
             x[0] -= o[0];
             x[1] -= o[1];
             (o, 1, x)
         }
-        _ => ([0.0; 2], 0, plan.x0.clone()),
+        None => ([0.0; 2], 0, plan.x0.clone()),
     };
     let mut lanes: Vec<Running> = Vec::new();
     for v in variants::VARIANTS {
