@@ -60,15 +60,14 @@ and misses growth that starts later; confirm it with a longer horizon.",
     );
     for v in &m.variants {
         let (g, a, b, r2) = match &v.fit {
-            Some(f) => (
-                f.growth.name(),
-                sci(f.a),
-                sci(f.b),
-                format!("{:.3}", f.r_squared),
-            ),
-            None => ("-", "-".into(), "-".into(), "-".into()),
+            Some(f) => (f.label(), sci(f.a), sci(f.b), format!("{:.3}", f.r_squared)),
+            None => ("-".into(), "-".into(), "-".into(), "-".into()),
         };
-        let g = if v.level.is_some() { "level*" } else { g };
+        let g = if v.level.is_some() {
+            "level*".into()
+        } else {
+            g
+        };
         let _ = writeln!(
             o,
             "  {:<18} {:<12} {:>10} {:>10} {:>6} {:>10} {:>10} {:>14}  {}",
@@ -85,9 +84,10 @@ and misses growth that starts later; confirm it with a longer horizon.",
     }
     let _ = writeln!(
         o,
-        "  (fits: ordinary least squares of the per-bucket largest error on a, a + b k or a + b sqrt(k), \
-k in steps, chosen by Schwarz's criterion; the first 10% of the horizon is left out; 'state sd' is the \
-state difference from the f64 run in standard deviations, projected the same way)"
+        "  (fits: ordinary least squares of the per-bucket largest error on a, a + b k, a + b sqrt(k) \
+or a + b k^p (p fitted in 0.1 to 2, golden-section search), k in steps, chosen by Schwarz's \
+criterion; the first 10% of the horizon is left out; 'state sd' is the state difference from \
+the f64 run in standard deviations, projected the same way)"
     );
     if m.variants
         .iter()
