@@ -319,3 +319,47 @@ fn the_mission_is_read_from_the_command_line_and_the_spec() {
     .expect("valid");
     assert_eq!(plan.thresholds.mission_seconds, Some(3.0 * 86_400.0));
 }
+
+#[test]
+fn the_wna_state_difference_grows_faster_than_linearly_and_the_power_fit_sees_it() {
+    // The WNA tracker's f32 state difference from the f64 run over the
+    // spec's 10-minute horizon is best fitted by a + b k^p with p > 1 (the
+    // shuttle wanders ever farther from the origin, where f32 resolves its
+    // position ever more coarsely). The check is against the tool's own
+    // longer run, not a published figure: the projection to 20 minutes is
+    // compared with what a 20-minute run measures.
+    let mut plan = spec::load(&specs().join("wna-tracker.toml")).expect("loads");
+    let horizon = plan.steps;
+    plan.thresholds.mission_seconds = Some(2.0 * horizon as f64 / plan.step_hz);
+    let r = run_plan(&plan);
+    let m = mission(&r);
+    let v = m
+        .variants
+        .iter()
+        .find(|v| v.name == "f32 conventional")
+        .expect("run");
+    let f = v.state_fit.expect("the state difference is fitted");
+    assert_eq!(f.growth, cairn_host_check::mission::Growth::Power, "{f:?}");
+    assert!(f.exponent > 1.0 + 0.05, "{f:?}");
+    assert_eq!(f.label(), format!("power {:.2}", f.exponent));
+    let projected = v.projected_state_sigma.expect("projected");
+    plan.steps = 2 * horizon;
+    let longer = run_plan(&plan);
+    let measured = longer
+        .variants
+        .iter()
+        .find(|v| v.name == "f32 conventional")
+        .expect("run")
+        .figures
+        .max_state_difference_sigma;
+    assert!(
+        (projected / measured - 1.0).abs() < 0.3,
+        "projected {projected}, measured {measured}"
+    );
+    // The JSON carries the model and its exponent.
+    let json: Value =
+        serde_json::from_str(&Report::new(&plan, &r).to_json().expect("json")).expect("parses");
+    let fit = &json["run"]["mission"]["variants"][0]["state_fit"];
+    assert_eq!(fit["growth"], "power", "{fit}");
+    assert!(fit["exponent"].as_f64().is_some_and(|p| p > 1.0), "{fit}");
+}
