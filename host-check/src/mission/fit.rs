@@ -82,12 +82,21 @@ pub struct Fit {
 
 impl Fit {
     /// The model in reports: its name, with the exponent for the power
-    /// model ("power 0.73").
+    /// model ("power 0.73"); "power 2.00+" when the exponent sits at the top
+    /// of its search range, where the growth may be faster still.
     pub fn label(&self) -> String {
         match self.growth {
+            Growth::Power if self.at_top_of_range() => format!("power {:.2}+", self.exponent),
             Growth::Power => format!("power {:.2}", self.exponent),
             g => g.name().to_string(),
         }
+    }
+
+    /// `true` for a power fit whose exponent reached the top of
+    /// [`EXPONENT_RANGE`].
+    pub fn at_top_of_range(&self) -> bool {
+        self.growth == Growth::Power
+            && self.exponent >= EXPONENT_RANGE.1 - 10.0 * EXPONENT_TOLERANCE
     }
 
     /// The model's value at step `k`.
@@ -337,6 +346,19 @@ mod tests {
             .map(|(i, &k)| f(k) * (1.0 + if i % 2 == 0 { wobble } else { -wobble }))
             .collect();
         (k, e)
+    }
+
+    #[test]
+    fn an_exponent_at_the_top_of_its_range_is_marked() {
+        // Cubic growth cannot be told apart above p = 2: the label says so.
+        let k: Vec<f64> = (1..=200).map(|i| f64::from(i) * 1000.0).collect();
+        let e: Vec<f64> = k.iter().map(|&k| 1e-6 + 1e-15 * k * k * k).collect();
+        let f = fit(&k, &e).expect("fits");
+        assert_eq!(f.growth, Growth::Power, "{f:?}");
+        assert!(f.at_top_of_range(), "{f:?}");
+        assert!(f.label().ends_with('+'), "{}", f.label());
+        let square_root: Vec<f64> = k.iter().map(|&k| 1e-6 + 1e-8 * k.sqrt()).collect();
+        assert!(!fit(&k, &square_root).expect("fits").label().ends_with('+'));
     }
 
     #[test]

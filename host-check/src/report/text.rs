@@ -85,8 +85,8 @@ and misses growth that starts later; confirm it with a longer horizon.",
     let _ = writeln!(
         o,
         "  (fits: ordinary least squares of the per-bucket largest error on a, a + b k, a + b sqrt(k) \
-or a + b k^p (p fitted in 0.1 to 2, golden-section search), k in steps, chosen by Schwarz's \
-criterion; the first 10% of the horizon is left out; 'state sd' is the state difference from \
+or a + b k^p (p fitted in 0.1 to 2, golden-section search; '2.00+' marks p at the top of that \
+range, where growth may be faster), k in steps, chosen by Schwarz's criterion; the first 10% of the horizon is left out; 'state sd' is the state difference from \
 the f64 run in standard deviations, projected the same way)"
     );
     if m.variants
