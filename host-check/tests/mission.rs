@@ -341,7 +341,18 @@ fn the_wna_state_difference_grows_faster_than_linearly_and_the_power_fit_sees_it
     let f = v.state_fit.expect("the state difference is fitted");
     assert_eq!(f.growth, cairn_host_check::mission::Growth::Power, "{f:?}");
     assert!(f.exponent > 1.0 + 0.05, "{f:?}");
-    assert_eq!(f.label(), format!("power {:.2}", f.exponent));
+    // Reported with its exponent, marked when at the top of its range.
+    assert!(
+        f.label().starts_with(&format!("power {:.2}", f.exponent)),
+        "{}",
+        f.label()
+    );
+    assert_eq!(
+        f.label().ends_with('+'),
+        f.at_top_of_range(),
+        "{}",
+        f.label()
+    );
     let projected = v.projected_state_sigma.expect("projected");
     plan.steps = 2 * horizon;
     let longer = run_plan(&plan);
