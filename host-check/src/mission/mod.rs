@@ -263,9 +263,11 @@ fn variant_mission(
             "no fit (too few points)".to_string()
         }
         None => "never".to_string(),
-        Some(s) if crossing_what == "state" => {
-            format!("after {} (state)", duration_words(s))
-        }
+        Some(s) if crossing_what == "state" => match state.as_ref().and_then(|p| p.fit) {
+            // Which growth model the state projection took.
+            Some(f) => format!("after {} (state, {})", duration_words(s), f.label()),
+            None => format!("after {} (state)", duration_words(s)),
+        },
         Some(s) => format!("after {}", duration_words(s)),
     };
     let passes_mission = v.verdict.passes && crossing_s.is_none_or(|s| s > mission_s);

@@ -53,9 +53,17 @@ and misses growth that starts later; confirm it with a longer horizon.",
             m.seconds / horizon_s
         );
     }
+    // The crossing column is as wide as its longest entry.
+    let cw = m
+        .variants
+        .iter()
+        .map(|v| v.crossing.trim_start_matches("after ").len())
+        .max()
+        .unwrap_or(0)
+        .max(14);
     let _ = writeln!(
         o,
-        "  {:<18} {:<12} {:>10} {:>10} {:>6} {:>10} {:>10} {:>14}  mission",
+        "  {:<18} {:<12} {:>10} {:>10} {:>6} {:>10} {:>10} {:>cw$}  mission",
         "variant", "growth", "a", "b", "R^2", "at end", "state sd", "crossing"
     );
     for v in &m.variants {
@@ -70,7 +78,7 @@ and misses growth that starts later; confirm it with a longer horizon.",
         };
         let _ = writeln!(
             o,
-            "  {:<18} {:<12} {:>10} {:>10} {:>6} {:>10} {:>10} {:>14}  {}",
+            "  {:<18} {:<12} {:>10} {:>10} {:>6} {:>10} {:>10} {:>cw$}  {}",
             v.name,
             g,
             a,
