@@ -285,7 +285,8 @@ fn the_mission_is_read_from_the_command_line_and_the_spec() {
     assert_eq!(out.status.code(), Some(1));
     let text = String::from_utf8_lossy(&out.stdout);
     assert!(text.contains("Mission: 30.0 days"), "{text}");
-    assert!(text.contains("(state)"), "{text}");
+    // The crossing is the state's, and names the model that projected it.
+    assert!(text.contains("(state"), "{text}");
     assert!(
         text.contains("What to flash for the mission: f64"),
         "{text}"
