@@ -167,3 +167,106 @@ pub fn run(steps: u32) -> Summary {
     }
     summary
 }
+
+/// Steps of the nine-state run (6 s at 100 Hz).
+pub const LINEAR_STEPS: u32 = 600;
+
+/// What the nine-state run produced: a hash of the covariance bits after
+/// every step for each form (Joseph, conventional, U-D), and the count of
+/// refused operations (expected: none).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct LinearSummary {
+    /// FNV-1a over P's bits after every step: Joseph, conventional, U-D
+    /// (the U-D filter's packed factors).
+    pub traces: [u32; 3],
+    /// Operations refused with an error.
+    pub refused: u32,
+}
+
+/// A nine-state run with the core's general kernels (n = 9, m = 3), which
+/// take different loop shapes on a host and on a microcontroller: an
+/// invented survey sled ("Plover") with position, velocity and a drifting
+/// velocity-sensor bias per axis, 100 Hz steps, a 3-axis position fix every
+/// 10 steps and a biased velocity reading every 5 (invented figures).
+pub fn run_linear(steps: u32) -> LinearSummary {
+    use cairn_core::{Conventional, UdKalman};
+    use nalgebra::{SMatrix, SVector};
+    const DT9: f32 = 0.01;
+    let f = SMatrix::<f32, 9, 9>::from_fn(|i, j| match (i, j) {
+        _ if i == j => 1.0,
+        (0..=2, 3..=5) if j == i + 3 => DT9,
+        _ => 0.0,
+    });
+    let q = SMatrix::<f32, 9, 9>::from_diagonal(&SVector::<f32, 9>::from_fn(|i, _| match i {
+        0..=2 => 1e-6,
+        3..=5 => 1e-4,
+        _ => 1e-8,
+    }));
+    let h_pos = SMatrix::<f32, 3, 9>::from_fn(|i, j| if j == i { 1.0 } else { 0.0 });
+    let h_vel =
+        SMatrix::<f32, 3, 9>::from_fn(|i, j| if j == i + 3 || j == i + 6 { 1.0 } else { 0.0 });
+    let r_pos = SMatrix::<f32, 3, 3>::from_fn(|i, j| if i == j { 4e-4 } else { 1e-4 });
+    let r_vel = SMatrix::<f32, 3, 3>::from_diagonal_element(2.5e-3);
+    let p0 = SMatrix::<f32, 9, 9>::from_diagonal(&SVector::<f32, 9>::from_fn(|i, _| match i {
+        0..=2 => 1.0,
+        3..=5 => 0.25,
+        _ => 0.01,
+    }));
+    let x0 = SVector::<f32, 9>::zeros();
+    let mut joseph = Kalman::<f32, 9, Joseph>::new_unchecked(x0, p0);
+    let mut conventional = Kalman::<f32, 9, Conventional>::new_unchecked(x0, p0);
+    let Ok(mut ud) = UdKalman::<f32, 9>::try_new(x0, p0) else {
+        return LinearSummary {
+            traces: [0; 3],
+            refused: 1,
+        };
+    };
+    let mut noise = Lcg(0x51ed_0009);
+    let mut truth = SVector::<f32, 9>::from_fn(|i, _| match i {
+        3 => 0.5,
+        4 => -0.2,
+        6 => 0.03,
+        _ => 0.0,
+    });
+    let mut summary = LinearSummary {
+        traces: [0x811c_9dc5; 3],
+        refused: 0,
+    };
+    for k in 0..steps {
+        truth = f * truth;
+        for i in 3..6 {
+            truth[i] += 0.01 * noise.signed_unit();
+        }
+        let mut refused = 0;
+        refused += u32::from(joseph.predict(&f, &q).is_err());
+        refused += u32::from(conventional.predict(&f, &q).is_err());
+        refused += u32::from(ud.predict(&f, &q).is_err());
+        let fix = |h: &SMatrix<f32, 3, 9>, sd: f32, noise: &mut Lcg| {
+            let mut z = h * truth;
+            for v in z.iter_mut() {
+                *v += sd * noise.signed_unit();
+            }
+            z
+        };
+        if k % 10 == 9 {
+            let z = fix(&h_pos, 0.02, &mut noise);
+            refused += u32::from(joseph.update(&z, &h_pos, &r_pos, None).is_err());
+            refused += u32::from(conventional.update(&z, &h_pos, &r_pos, None).is_err());
+            refused += u32::from(ud.update(&z, &h_pos, &r_pos, None).is_err());
+        }
+        if k % 5 == 4 {
+            let z = fix(&h_vel, 0.05, &mut noise);
+            refused += u32::from(joseph.update(&z, &h_vel, &r_vel, None).is_err());
+            refused += u32::from(conventional.update(&z, &h_vel, &r_vel, None).is_err());
+            refused += u32::from(ud.update(&z, &h_vel, &r_vel, None).is_err());
+        }
+        summary.refused += refused;
+        let mats = [joseph.covariance(), conventional.covariance(), ud.factors()];
+        for (trace, m) in summary.traces.iter_mut().zip(mats) {
+            for v in m.iter() {
+                *trace = fnv1a(*trace, v.to_bits());
+            }
+        }
+    }
+    summary
+}

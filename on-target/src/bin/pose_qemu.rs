@@ -1,6 +1,7 @@
-//! Runs the pose scenario in f32 on a Cortex-M4F (QEMU's `mps2-an386`) and
-//! prints the covariance and state as bit patterns over semihosting, for the
-//! host test that compares them with its own f32 run.
+//! Runs the pose scenario and the nine-state run in f32 on a Cortex-M4F
+//! (QEMU's `mps2-an386`) and prints the covariance and state as bit patterns
+//! over semihosting, for the host test that compares them with its own f32
+//! run.
 //! `cargo run --release --bin pose_qemu` in `on-target/`.
 #![no_std]
 #![no_main]
@@ -31,5 +32,12 @@ fn main() -> ! {
         .text(" refused ")
         .dec(s.refused)
         .send();
-    exit(s.refused == 0)
+    let l = scenario::run_linear(core::hint::black_box(scenario::LINEAR_STEPS));
+    line.text("linear-trace");
+    for v in l.traces {
+        line.text(" ").hex(v);
+    }
+    line.send();
+    line.text("linear-refused ").dec(l.refused).send();
+    exit(s.refused == 0 && l.refused == 0)
 }
