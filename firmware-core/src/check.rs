@@ -4,7 +4,7 @@
 use nalgebra::{SMatrix, SVector};
 
 use crate::error::{FilterError, Operand, idx};
-use crate::model::{Linearized, ProcessModel};
+use crate::model::ProcessModel;
 use crate::scalar::Scalar;
 
 pub(crate) use crate::kernel::all_finite;
@@ -109,8 +109,9 @@ fn first_indefinite<T: Scalar, const N: usize>(a: SMatrix<T, N, N>, strict: bool
             return i;
         }
         for j in 0..i {
-            let c = a[(i, j)];
-            if c * c > a[(i, i)] * a[(j, j)] * grow {
+            // The entry `pairs` tested: the upper one, (j, i).
+            let c = a[(j, i)];
+            if c * c > a[(j, j)] * a[(i, i)] * grow {
                 return i;
             }
         }
@@ -170,19 +171,21 @@ pub(crate) fn time_step<T: Scalar>(dt: T) -> Result<(), FilterError> {
     }
 }
 
-/// One extended predict's model evaluation, checked in place: the Jacobian
-/// finite, the propagated state finite, then normalised. Q (or its
-/// sources) is left for the caller's form to check. (In place rather than
-/// returned in a `Result`: a large enum payload would make the compiler
-/// build the whole evaluation in memory.)
+/// One extended predict's model evaluation, checked: the Jacobian finite,
+/// the propagated state finite, then normalised. Q (or its sources) is left
+/// for the caller to check. Takes the parts of the model's [`crate::model::Linearized`]
+/// rather than the whole: callers take it apart at once, so each part stays
+/// in registers where it fits instead of the whole evaluation being built in
+/// memory.
 #[inline(always)]
 pub(crate) fn linearized<T: Scalar, const N: usize, P: ProcessModel<T, N>>(
     model: &P,
-    lin: &mut Linearized<T, N>,
+    jacobian: &SMatrix<T, N, N>,
+    next: &mut SVector<T, N>,
 ) -> Result<(), FilterError> {
-    finite(&lin.jacobian, Operand::Transition)?;
-    finite(&lin.next, Operand::Control)?;
-    model.normalize(&mut lin.next);
+    finite(jacobian, Operand::Transition)?;
+    finite(next, Operand::Control)?;
+    model.normalize(next);
     Ok(())
 }
 

@@ -179,9 +179,7 @@ impl<T: Scalar, const N: usize, F: CovarianceForm> Kalman<T, N, F> {
             noise,
             sources,
         } = model.linearize(&self.x, u, dt);
-        check::finite(&jacobian, Operand::Transition)?;
-        check::finite(&next, Operand::Control)?;
-        model.normalize(&mut next);
+        check::linearized(model, &jacobian, &mut next)?;
         // Noise given as independent sources makes its own Q, symmetric and
         // semidefinite by construction: only the variances need checking.
         let q = match sources {

@@ -3,6 +3,7 @@
 
 use nalgebra::{Matrix2, SMatrix, SVector, Vector2, Vector3};
 
+use crate::kernel::from_sources;
 use crate::model::{Linearized, MeasurementModel, ProcessModel};
 use crate::scalar::{Scalar, wrap_angle};
 
@@ -67,7 +68,7 @@ impl<T: Scalar> ProcessModel<T, 3> for PlanarOdometry<T> {
     fn noise(&self, x: &Vector3<T>, u: &Odometry<T>, dt: T) -> SMatrix<T, 3, 3> {
         let (s, c) = Self::midpoint(x, u, dt);
         let (g, q) = self.sources_at(s, c, u, dt);
-        noise_from(&g, &q)
+        from_sources(&g, &q)
     }
 
     #[inline(always)]
@@ -93,7 +94,7 @@ impl<T: Scalar> ProcessModel<T, 3> for PlanarOdometry<T> {
         Linearized {
             next: Vector3::new(x[0] + d * c, x[1] + d * s, x[2] + u.yaw_rate * dt),
             jacobian: f,
-            noise: noise_from(&g, &q),
+            noise: from_sources(&g, &q),
             sources: Some((g, q)),
         }
     }
@@ -125,23 +126,6 @@ impl<T: Scalar> PlanarOdometry<T> {
         let q = Vector3::new(self.speed_var, self.yaw_rate_var, self.heading_drift_var);
         (g, q)
     }
-}
-
-/// Q = G diag(q) G', upper triangle computed and mirrored.
-#[inline(always)]
-fn noise_from<T: Scalar>(g: &SMatrix<T, 3, 3>, q: &Vector3<T>) -> SMatrix<T, 3, 3> {
-    let mut out = SMatrix::<T, 3, 3>::zeros();
-    for j in 0..3 {
-        for i in 0..=j {
-            let mut v = T::zero();
-            for k in 0..3 {
-                v += g[(i, k)] * g[(j, k)] * q[k];
-            }
-            out[(i, j)] = v;
-            out[(j, i)] = v;
-        }
-    }
-    out
 }
 
 /// A position fix (x, y) in metres, with noise covariance `r` (m^2).

@@ -6,7 +6,7 @@ use nalgebra::{SMatrix, SVector};
 use crate::check;
 use crate::error::{FilterError, Operand, Outcome, idx};
 use crate::ldl::Ldl;
-use crate::model::{MeasurementModel, ProcessModel};
+use crate::model::{Linearized, MeasurementModel, ProcessModel};
 use crate::scalar::Scalar;
 
 /// A Kalman filter that carries its covariance as U-D factors.
@@ -201,19 +201,24 @@ impl<T: Scalar, const N: usize> UdKalman<T, N> {
         dt: T,
     ) -> Result<(), FilterError> {
         check::time_step(dt)?;
-        let mut lin = model.linearize(&self.x, u, dt);
-        check::linearized(model, &mut lin)?;
-        let ud = match lin.sources {
+        let Linearized {
+            mut next,
+            jacobian,
+            noise,
+            sources,
+        } = model.linearize(&self.x, u, dt);
+        check::linearized(model, &jacobian, &mut next)?;
+        let ud = match sources {
             Some((g, q)) => {
                 check::sources(&g, &q)?;
-                self.gram_schmidt(&lin.jacobian, &g, &q)?
+                self.gram_schmidt(&jacobian, &g, &q)?
             }
             None => {
-                check::noise(&lin.noise, Operand::ProcessNoise, false)?;
-                self.time_update(&lin.jacobian, &lin.noise)?
+                check::noise(&noise, Operand::ProcessNoise, false)?;
+                self.time_update(&jacobian, &noise)?
             }
         };
-        self.commit(lin.next, ud)
+        self.commit(next, ud)
     }
 
     #[inline(always)]
