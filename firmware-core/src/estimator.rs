@@ -31,6 +31,13 @@ pub trait Estimator<T: Scalar, const N: usize>: Sized {
     /// from the factors).
     fn covariance_matrix(&self) -> SMatrix<T, N, N>;
 
+    /// Moves the origin the state is expressed in: x -= offset, covariance
+    /// unchanged (keeps f32 positions near a local origin).
+    ///
+    /// # Errors
+    /// As [`Kalman::shift_origin_mut`]; nothing changes on error.
+    fn shift_origin_mut(&mut self, offset: &SVector<T, N>) -> Result<(), FilterError>;
+
     /// Linear predict.
     ///
     /// # Errors
@@ -103,6 +110,9 @@ pub trait Estimator<T: Scalar, const N: usize>: Sized {
 
 macro_rules! forward {
     () => {
+        fn shift_origin_mut(&mut self, offset: &SVector<T, N>) -> Result<(), FilterError> {
+            Self::shift_origin_mut(self, offset)
+        }
         fn predict(
             &mut self,
             f: &SMatrix<T, N, N>,

@@ -10,7 +10,7 @@ use nalgebra::{DMatrix, SMatrix, SVector};
 use serde::Serialize;
 
 use super::sim::{RunData, Sensor, Setup, World};
-use crate::run::lane::{OriginShift, recentre_offset};
+use crate::run::lane::recentre_offset;
 use crate::spec::Precision;
 
 /// Largest state dimension the dispatch covers.
@@ -233,7 +233,7 @@ fn run_linear<T: Scalar, E: Estimator<T, N>, const N: usize>(s: &Setup, d: &RunD
 /// shifts before each step's predict whenever [`recentre_offset`] says so,
 /// reads position fixes minus the origin (in f64) and is judged on origin +
 /// local state.
-fn run_pose<T: Scalar, E: Estimator<T, 3> + OriginShift<T, 3>>(s: &Setup, d: &RunData) -> Trace {
+fn run_pose<T: Scalar, E: Estimator<T, 3>>(s: &Setup, d: &RunData) -> Trace {
     let mut trace = Trace::new(s.steps, s.channels.len());
     let World::Pose { filter: model, .. } = &s.world else {
         trace.failure = Some((0, FilterError::InvalidTimeStep));
@@ -266,7 +266,7 @@ fn run_pose<T: Scalar, E: Estimator<T, 3> + OriginShift<T, 3>>(s: &Setup, d: &Ru
             let x = filter.state();
             if let Some(o) = recentre_offset(x[0].to_f64(), x[1].to_f64(), m) {
                 let offset = SVector::<T, 3>::new(T::of(o[0]), T::of(o[1]), T::of(0.0));
-                if let Err(e) = filter.shift_origin(&offset) {
+                if let Err(e) = filter.shift_origin_mut(&offset) {
                     trace.failure = Some((k, e));
                     return trace;
                 }

@@ -4,10 +4,7 @@
 use core::marker::PhantomData;
 
 use cairn_core::pose::{HeadingFix, Odometry, PlanarOdometry, PositionFix};
-use cairn_core::{
-    CovarianceForm, Estimator, FilterError, Kalman, Ldl, Linearized, MeasurementModel,
-    ProcessModel, Scalar, UdKalman,
-};
+use cairn_core::{Estimator, FilterError, Ldl, Linearized, MeasurementModel, ProcessModel, Scalar};
 use nalgebra::{DMatrix, DVector, Matrix2, Matrix3, SMatrix, SVector, Vector2, Vector3};
 
 /// What one update did in a lane.
@@ -97,28 +94,6 @@ pub trait Lane {
     fn shift_origin(&mut self, offset: &[f64]) -> Result<(), FilterError>;
 }
 
-/// The core's origin shift, an inherent method of every filter form (not
-/// part of [`Estimator`]), gathered here so a lane can call it generically.
-pub trait OriginShift<T: Scalar, const N: usize> {
-    /// x -= offset, covariance unchanged.
-    ///
-    /// # Errors
-    /// As [`Kalman::shift_origin_mut`].
-    fn shift_origin(&mut self, offset: &SVector<T, N>) -> Result<(), FilterError>;
-}
-
-impl<T: Scalar, const N: usize, F: CovarianceForm> OriginShift<T, N> for Kalman<T, N, F> {
-    fn shift_origin(&mut self, offset: &SVector<T, N>) -> Result<(), FilterError> {
-        self.shift_origin_mut(offset)
-    }
-}
-
-impl<T: Scalar, const N: usize> OriginShift<T, N> for UdKalman<T, N> {
-    fn shift_origin(&mut self, offset: &SVector<T, N>) -> Result<(), FilterError> {
-        self.shift_origin_mut(offset)
-    }
-}
-
 /// The re-centring rule shared by `cairn check`'s end-to-end lanes and
 /// `cairn trials`: once |x| or |y| (in the lane's own frame) passes
 /// `distance`, the origin moves by x and y rounded to whole metres (exact
@@ -130,7 +105,7 @@ pub fn recentre_offset(x: f64, y: f64, distance: f64) -> Option<[f64; 2]> {
 }
 
 /// A cairn-core estimator `E` over `N` states in scalar `T`, as a [`Lane`].
-pub struct CoreLane<T: Scalar, const N: usize, E: Estimator<T, N> + OriginShift<T, N>> {
+pub struct CoreLane<T: Scalar, const N: usize, E: Estimator<T, N>> {
     filter: E,
     scalar: PhantomData<T>,
 }
@@ -143,9 +118,7 @@ fn to_d<T: Scalar, const R: usize, const C: usize>(m: &SMatrix<T, R, C>) -> DMat
     DMatrix::from_fn(R, C, |i, j| m[(i, j)].to_f64())
 }
 
-impl<T: Scalar, const N: usize, E: Estimator<T, N> + OriginShift<T, N> + 'static>
-    CoreLane<T, N, E>
-{
+impl<T: Scalar, const N: usize, E: Estimator<T, N> + 'static> CoreLane<T, N, E> {
     /// A boxed lane from x0 and P0 (rounded to `T`).
     ///
     /// # Errors
@@ -306,9 +279,7 @@ impl<T: Scalar, const N: usize> MeasurementModel<T, N, 1> for PoseHeading<T> {
     }
 }
 
-impl<T: Scalar, const N: usize, E: Estimator<T, N> + OriginShift<T, N> + 'static> Lane
-    for CoreLane<T, N, E>
-{
+impl<T: Scalar, const N: usize, E: Estimator<T, N> + 'static> Lane for CoreLane<T, N, E> {
     fn predict(&mut self, f: &DMatrix<f64>, q: &DMatrix<f64>) -> Result<(), FilterError> {
         self.filter.predict(&to_s(f), &to_s(q))
     }
@@ -417,6 +388,6 @@ impl<T: Scalar, const N: usize, E: Estimator<T, N> + OriginShift<T, N> + 'static
 
     fn shift_origin(&mut self, offset: &[f64]) -> Result<(), FilterError> {
         let o = SVector::<T, N>::from_fn(|i, _| T::of(offset.get(i).copied().unwrap_or(0.0)));
-        self.filter.shift_origin(&o)
+        self.filter.shift_origin_mut(&o)
     }
 }

@@ -4,13 +4,13 @@
 use cairn_core::{Conventional, Estimator, FilterError, Joseph, Kalman, Scalar, UdKalman};
 use nalgebra::DMatrix;
 
-use super::lane::{CoreLane, Lane, OriginShift};
+use super::lane::{CoreLane, Lane};
 use crate::spec::Precision;
 
 /// A covariance form of cairn-core, for every state count.
 pub trait Family {
     /// The estimator type at scalar `T` and `N` states.
-    type At<T: Scalar, const N: usize>: Estimator<T, N> + OriginShift<T, N> + 'static;
+    type At<T: Scalar, const N: usize>: Estimator<T, N> + 'static;
 }
 
 /// [`Kalman`] with the conventional update.
