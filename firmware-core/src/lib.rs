@@ -82,3 +82,5 @@ pub use model::{Linearized, MeasurementModel, ProcessModel};
 pub use scalar::{Scalar, wrap_angle};
 pub use steady::SteadyGain;
 pub use ud::UdKalman;
+// The nalgebra the core is built on, so users name the same version.
+pub use nalgebra;
