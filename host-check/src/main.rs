@@ -1,9 +1,11 @@
 //! The `cairn` command-line tool: parses the command line, runs it and maps
 //! the outcome to the documented exit codes.
 
+use std::io::Write;
 use std::process::ExitCode;
 
 use cairn_host_check::cli::{self, Cli};
+use cairn_host_check::output::printable;
 use clap::Parser;
 
 fn main() -> ExitCode {
@@ -11,10 +13,13 @@ fn main() -> ExitCode {
     match cli::execute(cli) {
         Ok(code) => ExitCode::from(code),
         Err(failure) => {
-            eprintln!("error: {}", failure.error);
+            // Text from the input (names, file names) is shown with its
+            // control characters escaped; a closed stderr is ignored.
+            let mut err = std::io::stderr().lock();
+            let _ = writeln!(err, "error: {}", printable(&failure.error.to_string()));
             let mut source = failure.error.source();
             while let Some(e) = source {
-                eprintln!("  caused by: {e}");
+                let _ = writeln!(err, "  caused by: {}", printable(&e.to_string()));
                 source = e.source();
             }
             ExitCode::from(failure.code)

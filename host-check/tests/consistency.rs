@@ -56,6 +56,7 @@ fn cart(steps: u64, seed: u64) -> Plan {
             rate_hz: 10.0,
             dropouts: vec![],
             gate: None,
+            line: 0,
         }],
         thresholds: Thresholds::default(),
         flash: Flash {
@@ -119,6 +120,7 @@ fn rover(steps: u64) -> Plan {
                 rate_hz: 5.0,
                 dropouts: vec![],
                 gate: None,
+                line: 0,
             },
             ChannelPlan {
                 name: "compass".into(),
@@ -128,6 +130,7 @@ fn rover(steps: u64) -> Plan {
                 rate_hz: 10.0,
                 dropouts: vec![],
                 gate: None,
+                line: 0,
             },
         ],
         thresholds: Thresholds::default(),

@@ -344,6 +344,7 @@ fn gauge(q: f64, r: f64, meas_hz: f64) -> Plan {
             rate_hz: meas_hz,
             dropouts: vec![],
             gate: None,
+            line: 0,
         }],
         thresholds: Thresholds::default(),
         flash: Flash {

@@ -283,6 +283,16 @@ pub fn convert(
             format!("converts to an unusable value {result}"),
         ));
     }
+    if (result == 0.0 && v != 0.0) || (result > 0.0 && result < f64::MIN_POSITIVE) {
+        return Err(loc.error(
+            value.span(),
+            &vfield,
+            format!(
+                "converts to {result:e}: the value underflows f64 (below {:e}); give a larger figure or a coarser unit",
+                f64::MIN_POSITIVE
+            ),
+        ));
+    }
     let mut given = format!("{kind} = {v} {unit_text}");
     if let Some(s) = &raw.sided {
         given.push_str(&format!(", {}-sided", s.get_ref()));
