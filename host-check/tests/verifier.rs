@@ -596,8 +596,14 @@ fn external_reference_disagreement_is_reported() {
         text.replace("random-walk-reference.csv", csv.to_str().unwrap()),
     )
     .unwrap();
-    let (_, r) = check_json(&spec, "rw-off", &[]);
+    let (code, r) = check_json(&spec, "rw-off", &[]);
     assert_eq!(r["run"]["external"]["agrees"], false);
+    // One of the two references is wrong, so nothing measured against ours
+    // passes: exit 1, with the reason in every verdict.
+    assert_eq!(code, 1);
+    for v in r["run"]["variants"].as_array().expect("variants") {
+        assert_eq!(v["verdict"]["passes"], false, "{}", v["name"]);
+    }
 }
 
 #[test]
