@@ -632,3 +632,102 @@ fn the_trials_subcommand_re_centres_on_request() {
         assert!(err.contains(word), "{args:?}: {err}");
     }
 }
+
+/// `cairn trials SPEC --runs N --json ...` on the one-state random walk
+/// (20 steps, one channel); returns the report.
+fn trials_json(runs: &str, tag: &str) -> serde_json::Value {
+    let spec = concat!(env!("CARGO_MANIFEST_DIR"), "/tests/data/random-walk.toml");
+    let json = std::env::temp_dir().join(format!("cairn-trials-{tag}-{}.json", std::process::id()));
+    let out = cairn(&[
+        "trials",
+        spec,
+        "--runs",
+        runs,
+        "--variant",
+        "f64-joseph",
+        "-q",
+        "--json",
+        json.to_str().unwrap(),
+    ]);
+    assert!(
+        matches!(out.status.code(), Some(0 | 1)),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let report = serde_json::from_str(&std::fs::read_to_string(&json).unwrap()).unwrap();
+    let _ = std::fs::remove_file(&json);
+    report
+}
+
+fn figure(v: &serde_json::Value) -> f64 {
+    v.as_f64()
+        .unwrap_or_else(|| panic!("expected a number in the report, found {v}"))
+}
+
+#[test]
+fn trial_intervals_match_published_chi_square_quantiles() {
+    // 5 runs x 20 steps of a 1-dof NEES: the per-step average of 5 runs is
+    // chi2(5)/5 and the time average over all 100 values is chi2(100)/100
+    // (Bar-Shalom, Li & Kirubarajan 2001). The 95% two-sided quantiles from
+    // the NIST/SEMATECH e-Handbook of Statistical Methods, table 1.3.6.7.4
+    // (from memory): chi2(5): 0.831, 12.833; chi2(100): 74.222, 129.561.
+    // The table's 3 decimals allow 5e-4 on each quantile.
+    let r = trials_json("5", "nist");
+    for stat in [
+        &r["variants"][0]["nees"],
+        &r["variants"][0]["nis"][0]["nis"],
+    ] {
+        assert_eq!(stat["dof"], 1);
+        let step = &stat["interval"];
+        assert!(
+            (figure(&step["lower"]) * 5.0 - 0.831).abs() <= 5e-4,
+            "{step}"
+        );
+        assert!(
+            (figure(&step["upper"]) * 5.0 - 12.833).abs() <= 5e-4,
+            "{step}"
+        );
+        let whole = &stat["time_average_interval"];
+        assert!(
+            (figure(&whole["lower"]) * 100.0 - 74.222).abs() <= 5e-4,
+            "{whole}"
+        );
+        assert!(
+            (figure(&whole["upper"]) * 100.0 - 129.561).abs() <= 5e-4,
+            "{whole}"
+        );
+    }
+}
+
+#[test]
+fn trial_time_average_interval_counts_every_sample() {
+    // 37 runs x 20 steps: the time average pools 740 one-dof values, so its
+    // interval is the 2.5% and 97.5% quantiles of chi2(740) over 740, here
+    // from statrs directly (a general-purpose statistics library) to full
+    // precision: a wrong count (runs, steps or dof) moves it by far more.
+    use statrs::distribution::{ChiSquared, ContinuousCDF};
+    let r = trials_json("37", "count");
+    let chi = ChiSquared::new(740.0).unwrap();
+    let (lo, hi) = (
+        chi.inverse_cdf(0.025) / 740.0,
+        chi.inverse_cdf(0.975) / 740.0,
+    );
+    let whole = &r["variants"][0]["nees"]["time_average_interval"];
+    assert!(
+        (figure(&whole["lower"]) / lo - 1.0).abs() < 1e-12,
+        "{whole} vs {lo}"
+    );
+    assert!(
+        (figure(&whole["upper"]) / hi - 1.0).abs() < 1e-12,
+        "{whole} vs {hi}"
+    );
+    // A cross-check that does not use statrs: the Wilson-Hilferty cube-root
+    // approximation (Wilson & Hilferty, PNAS 17, 1931): at 740 degrees of
+    // freedom its relative error here is 2.7e-6 (lower) and 1.7e-6 (upper)
+    // as measured against statrs; 1e-5 leaves room for nothing more.
+    let k = 740.0_f64;
+    let z = 1.959_963_984_540_054; // the 97.5% normal quantile (from memory)
+    let wh = |z: f64| (1.0 - 2.0 / (9.0 * k) + z * (2.0 / (9.0 * k)).sqrt()).powi(3);
+    assert!((wh(-z) / lo - 1.0).abs() < 1e-5, "{} vs {lo}", wh(-z));
+    assert!((wh(z) / hi - 1.0).abs() < 1e-5, "{} vs {hi}", wh(z));
+}
