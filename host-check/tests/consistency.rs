@@ -173,7 +173,7 @@ fn options(runs: usize, steps: u64, scale: f64) -> Options {
 fn statrs_quantiles_reproduce_the_published_intervals() {
     // Bar-Shalom, Li & Kirubarajan 2001, two-sided 95% intervals for the
     // N-run average of an n-dof chi-square statistic (values as listed in
-    // REFERENCES.md, computed).
+    // docs/references.md, computed).
     let cases: [(usize, u64, f64, f64, f64); 6] = [
         (3, 50, 2.3597, 3.7160, 5e-5),
         (2, 50, 1.484, 2.591, 5e-4),
@@ -434,7 +434,7 @@ fn the_ill_conditioned_update_fails_in_f32_but_not_in_u_d() {
     // Dyer & McReynolds 1969 (reproduced by Grewal & Andrews): at d = 1e-4,
     // near the square root of f32's epsilon, the conventional and Joseph f32
     // updates lose the answer while the factored U-D form survives; f64 is
-    // fine (REFERENCES.md).
+    // fine (docs/references.md).
     let plan = cairn_host_check::spec::load(std::path::Path::new(concat!(
         env!("CARGO_MANIFEST_DIR"),
         "/specs/dyer-mcreynolds-1e-4.toml"

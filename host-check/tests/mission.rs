@@ -24,7 +24,7 @@ fn mission(r: &RunResult) -> &MissionResult {
         .expect("every run carries a mission verdict")
 }
 
-/// A scalar random walk observed in white noise (REFERENCES.md, closed
+/// A scalar random walk observed in white noise (docs/references.md, closed
 /// form), started far from its steady state.
 fn random_walk(q: f64, r: f64, p0: f64, steps: u64, extra: &str) -> Plan {
     let text = format!(
@@ -100,7 +100,7 @@ fn the_wna_tracker_reaches_steady_state_and_its_error_is_level() {
 #[test]
 fn the_fixed_gain_variance_converges_to_the_closed_form() {
     // q = 0.01, r = 1: steady prior (q + sqrt(q^2 + 4 q r)) / 2 = 0.1051249,
-    // gain q / P = 0.0951249 (REFERENCES.md, steady state of a random walk
+    // gain q / P = 0.0951249 (docs/references.md, steady state of a random walk
     // in white noise, computed).
     let (q, r) = (0.01, 1.0);
     let plan = random_walk(q, r, 4.0, 400, "");
@@ -160,7 +160,7 @@ fn the_fixed_gain_variance_converges_to_the_closed_form() {
 #[test]
 fn constant_gain_is_chosen_when_its_transient_is_accepted() {
     // Started at the steady posterior variance P = 1.618034 - 1 (q = r = 1,
-    // REFERENCES.md): no transient, so the constant gain is cheapest.
+    // docs/references.md): no transient, so the constant gain is cheapest.
     let plan = random_walk(1.0, 1.0, 0.618_033_988_749_894_9, 200, "");
     let res = run_plan(&plan);
     let m = mission(&res);
@@ -207,7 +207,7 @@ fn dropouts_withhold_the_constant_gain_with_a_reason() {
 fn dyer_mcreynolds_at_1e_4_names_u_d_or_f64() {
     // Dyer & McReynolds 1969, reproduced in Grewal & Andrews: at d = 1e-4,
     // near sqrt(eps) of f32, conventional and Joseph forms break while the
-    // factored form survives (REFERENCES.md).
+    // factored form survives (docs/references.md).
     let mut plan = spec::load(&specs().join("dyer-mcreynolds-1e-4.toml")).expect("loads");
     plan.thresholds.mission_seconds = Some(30.0 * 86_400.0);
     let r = run_plan(&plan);

@@ -178,8 +178,8 @@ fn an_external_reference_line_without_end_is_capped() {
 
 #[test]
 fn a_full_disk_is_exit_two_with_a_message() {
-    // /dev/full fails every write with ENOSPC (Linux null_blk-style device
-    // documented in the kernel's devices.txt; common practice for tests).
+    // /dev/full fails every write with ENOSPC (Linux, documented in the
+    // kernel's admin-guide/devices.txt: "1 char 7 = /dev/full"; from memory).
     let full = || {
         std::fs::OpenOptions::new()
             .write(true)

@@ -70,7 +70,7 @@ fn dyer_mcreynolds_near_sqrt_eps_fails_f32_conventional_and_joseph() {
     // Dyer and McReynolds (1969), reproduced in Grewal and Andrews, "Kalman
     // Filtering: Theory and Practice" (matrices from memory): at d = 1e-4,
     // near sqrt(eps_f32), both the conventional and the Joseph f32 updates
-    // lose the answer; the U-D factored form keeps it (REFERENCES.md:
+    // lose the answer; the U-D factored form keeps it (docs/references.md:
     // factored forms stay accurate until d nears eps).
     let (code, r) = check_json(&specs().join("dyer-mcreynolds-1e-4.toml"), "dm-1e-4", &[]);
     assert_eq!(
@@ -157,7 +157,7 @@ fn dyer_mcreynolds_exact(h33: f64, r: f64) -> ([[f64; 3]; 3], f64) {
 
 #[test]
 fn dyer_mcreynolds_well_conditioned_passes_every_form() {
-    // Same example at d = 1e-1 (REFERENCES.md): every form keeps the answer.
+    // Same example at d = 1e-1 (docs/references.md): every form keeps the answer.
     let (code, r) = check_json(&specs().join("dyer-mcreynolds-1e-1.toml"), "dm-1e-1", &[]);
     assert_eq!(code, 0);
     for v in r["run"]["variants"].as_array().unwrap() {
@@ -200,7 +200,7 @@ fn dyer_mcreynolds_well_conditioned_passes_every_form() {
 #[test]
 fn flashing_a_passing_form_exits_zero() {
     // The exit code follows the variant the spec names: with the U-D form
-    // flashed, the d = 1e-4 example passes (REFERENCES.md: factored forms
+    // flashed, the d = 1e-4 example passes (docs/references.md: factored forms
     // survive where conventional and Joseph fail).
     let text = std::fs::read_to_string(specs().join("dyer-mcreynolds-1e-4.toml")).unwrap();
     let path = scratch("dm-ud.toml");
@@ -369,7 +369,7 @@ fn wna_steady_gain_meets_the_alpha_beta_relation() {
 #[test]
 fn noise_subcommand_converts_an_angle_random_walk() {
     // 0.1 deg/sqrt(h) = 2.909e-5 rad/s/sqrt(Hz); per-sample sigma at 100 Hz
-    // is 2.91e-4 rad/s (REFERENCES.md, IEEE Std 952-1997, computed).
+    // is 2.91e-4 rad/s (docs/references.md, IEEE Std 952-1997, computed).
     let out = cairn(&[
         "noise",
         "random_walk=0.1",
@@ -396,7 +396,7 @@ fn noise_subcommand_converts_an_angle_random_walk() {
 #[test]
 fn noise_subcommand_converts_an_accelerometer_density() {
     // 100 ug/sqrt(Hz), one-sided, sampled at 100 Hz: sigma = ND sqrt(fs/2) =
-    // 6.93e-3 m/s^2 (REFERENCES.md, sensor noise figures, computed).
+    // 6.93e-3 m/s^2 (docs/references.md, sensor noise figures, computed).
     let out = cairn(&[
         "noise",
         "density=100",
@@ -642,7 +642,7 @@ fn data() -> PathBuf {
 fn external_reference_matches_the_random_walk_closed_form() {
     // A random walk with q = r = 1 has steady prior variance
     // (q + sqrt(q^2 + 4qr)) / 2 = 1.6180340 and posterior 0.6180340
-    // (REFERENCES.md, closed form, computed). Started there, the filter stays
+    // (docs/references.md, closed form, computed). Started there, the filter stays
     // there; the external CSV holds that value at every step.
     let (code, r) = check_json(&data().join("random-walk.toml"), "rw", &[]);
     assert_eq!(code, 0);

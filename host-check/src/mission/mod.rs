@@ -112,7 +112,7 @@ pub fn duration_words(s: f64) -> String {
 
 /// Cost order of the final verdict: constant gain, conventional, Joseph,
 /// U-D, every f32 form before any f64 one (f64 is software arithmetic on a
-/// Cortex-M4F, about 75x the f32 cost: REFERENCES.md, measured here).
+/// Cortex-M4F, about 75x the f32 cost: docs/references.md, measured here).
 pub fn cost_order() -> Vec<String> {
     let mut v = Vec::new();
     for p in ["f32", "f64"] {
