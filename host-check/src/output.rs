@@ -1,7 +1,7 @@
 //! Where the tool's output goes: standard output that may be a closed pipe
 //! or a full disk, and files written whole or not at all.
 //!
-//! Every command prints through [`print`] and writes files through
+//! Every command prints through [`print()`] and writes files through
 //! [`write_file`], after [`refuse_clashes`] has checked that no output names
 //! an input or another output.
 

@@ -113,7 +113,7 @@ fn dyer_mcreynolds_near_sqrt_eps_fails_f32_conventional_and_joseph() {
     // the reference's own double-double smallest eigenvalue against it to
     // 1e-12): 1.666_611_108_333_549_425e-9, d^2/6 to first order (d^2/8 is
     // the determinant; docs/references.md).
-    assert!((lambda_min / 1.666_611_108_333_549_425e-9 - 1.0).abs() < 1e-13);
+    assert!((lambda_min / 1.666_611_108_333_549_4e-9 - 1.0).abs() < 1e-13);
     // The report's figure is the smallest eigenvalue of the f64 rounding of
     // the reference's P, taken by an f64 eigensolver: rounding P's O(1)
     // entries moves an eigenvalue of 1.7e-9 by about 1e-16 / 1.7e-9 = 6e-8
