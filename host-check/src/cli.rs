@@ -20,9 +20,13 @@ pub const EXIT_BAD_INPUT: u8 = 2;
 
 const EXIT_CODES: &str = "Exit codes:
   0  the variant to flash (default f32 joseph) passes, for the whole mission
-  1  it fails, or is projected to cross a limit within the mission (a
-     numerical pass is not a safety case; see the report)
-  2  bad input: a malformed or inconsistent spec, an unreadable file, a bad option";
+  1  it fails, or is projected to cross a limit within the mission, or the
+     spec's external reference disagrees with ours (a numerical pass is not
+     a safety case; see the report)
+  2  bad input: a malformed or inconsistent spec, an unreadable file, a bad
+     option, an output that cannot be written or that names an input
+A closed standard output (a pipe whose reader has gone) ends the output
+quietly; the exit code is the one above.";
 
 /// Checks a Kalman filter's single-precision numerics before it is flashed:
 /// runs cairn-core's own code in f32 and f64, in every covariance form,
