@@ -6,10 +6,28 @@ use std::process::ExitCode;
 
 use cairn_host_check::cli::{self, Cli};
 use cairn_host_check::output::printable;
-use clap::Parser;
+use clap::Parser as _;
 
 fn main() -> ExitCode {
-    let cli = Cli::parse();
+    let cli = match Cli::try_parse() {
+        Ok(cli) => cli,
+        Err(e) if e.use_stderr() => {
+            // A usage error: clap's message on stderr, exit 2 (bad input).
+            let _ = e.print();
+            return ExitCode::from(cli::EXIT_BAD_INPUT);
+        }
+        // --help and --version: on standard output like every other text,
+        // so a full disk is reported and a closed pipe ends quietly.
+        Err(e) => {
+            return match cairn_host_check::output::print(&e.render().to_string()) {
+                Ok(()) => ExitCode::SUCCESS,
+                Err(f) => {
+                    let _ = writeln!(std::io::stderr(), "error: {f}");
+                    ExitCode::from(f.code)
+                }
+            };
+        }
+    };
     match cli::execute(cli) {
         Ok(code) => ExitCode::from(code),
         Err(failure) => {

@@ -190,6 +190,9 @@ fn a_full_disk_is_exit_two_with_a_message() {
         vec!["demo", "--print-spec"],
         vec!["noise", "std=1", "--unit", "m", "--at-hz", "10"],
         vec!["constants"],
+        vec!["--help"],
+        vec!["check", "--help"],
+        vec!["--version"],
     ] {
         let out = Command::new(env!("CARGO_BIN_EXE_cairn"))
             .args(&args)
@@ -216,6 +219,7 @@ fn a_closed_pipe_ends_quietly_with_the_commands_own_exit_code() {
     let spec = spec.to_str().unwrap();
     for (args, code) in [
         (vec!["demo", "--print-spec"], 0),
+        (vec!["--help"], 0),
         (vec!["constants"], 0),
         (vec!["noise", "std=1", "--unit", "m", "--at-hz", "10"], 0),
         (vec!["check", spec], 0),
@@ -232,6 +236,21 @@ fn a_closed_pipe_ends_quietly_with_the_commands_own_exit_code() {
         assert_eq!(out.status.code(), Some(code), "{args:?}: {}", stderr(&out));
         assert_eq!(stderr(&out), "", "{args:?}: a closed pipe is not reported");
     }
+}
+
+#[test]
+fn a_reader_that_leaves_early_is_not_an_error() {
+    // The shell pipeline itself: head takes one byte and exits while the
+    // report is still being written (whether a write then meets the closed
+    // pipe depends on timing; either way the run must end cleanly).
+    let out = Command::new("bash")
+        .arg("-c")
+        .arg("set -o pipefail; \"$0\" demo --seconds 5 | head -c 1 >/dev/null")
+        .arg(env!("CARGO_BIN_EXE_cairn"))
+        .output()
+        .expect("bash runs");
+    assert_eq!(out.status.code(), Some(0), "{}", stderr(&out));
+    assert_eq!(stderr(&out), "");
 }
 
 #[test]
