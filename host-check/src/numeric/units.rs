@@ -235,7 +235,7 @@ fn is_name_char(c: char) -> bool {
 
 fn tokenize(text: &str) -> Result<Vec<Tok>, NumericError> {
     let bad = |reason: String| NumericError::BadUnit {
-        text: text.to_string(),
+        text: quoted(text),
         reason,
     };
     let mut toks = Vec::new();
@@ -309,6 +309,19 @@ fn tokenize(text: &str) -> Result<Vec<Tok>, NumericError> {
 /// text of thousands of `(` is refused, not a stack overflow).
 pub const MAX_NESTING: usize = 16;
 
+/// A unit text as quoted in an error: whole when short, otherwise its
+/// first 60 characters and the length (a message should not repeat 40 000
+/// parentheses).
+fn quoted(text: &str) -> String {
+    let n = text.chars().count();
+    if n <= 80 {
+        text.to_string()
+    } else {
+        let head: String = text.chars().take(60).collect();
+        format!("{head}... ({n} characters)")
+    }
+}
+
 struct Parser<'a> {
     text: &'a str,
     toks: Vec<Tok>,
@@ -319,7 +332,7 @@ struct Parser<'a> {
 impl Parser<'_> {
     fn bad(&self, reason: impl Into<String>) -> NumericError {
         NumericError::BadUnit {
-            text: self.text.to_string(),
+            text: quoted(self.text),
             reason: reason.into(),
         }
     }

@@ -365,7 +365,19 @@ pub fn convert_standalone(doc: &str, rate: Option<f64>) -> Result<ConversionReco
     let loc = Locator::new("<command line>", doc);
     let fig: Spanned<RawNoise> = toml::from_str::<RawNoise>(doc)
         .map(|r| Spanned::new(0..doc.len(), r))
-        .map_err(|e| loc.from_toml(&e))?;
+        .map_err(|e| SpecError {
+            line: 0,
+            column: 0,
+            ..loc.from_toml(&e)
+        })?;
     let purpose = rate.map_or(Use::Intensity, Use::SampleVariance);
-    convert(&loc, &fig, "figure", purpose, rate.unwrap_or(1.0), None).map(|(_, r)| r)
+    // The text was put together from the options: a line and column in it
+    // would point at nothing the user wrote, so none is printed.
+    convert(&loc, &fig, "figure", purpose, rate.unwrap_or(1.0), None)
+        .map(|(_, r)| r)
+        .map_err(|e| SpecError {
+            line: 0,
+            column: 0,
+            ..e
+        })
 }
