@@ -289,7 +289,7 @@ fn cost(a: &CostArgs) -> Result<u8, Failure> {
         let plan = spec::load(path).map_err(bad)?;
         let wanted = crate::cost::plan_probes(&plan);
         for note in &wanted.notes {
-            eprintln!("note: {note}");
+            output::note(&format!("note: {note}"));
         }
         sizes.extend(wanted.sizes);
         rates = wanted.rates;

@@ -50,6 +50,14 @@ pub fn print(text: &str) -> Result<(), Failure> {
     }
 }
 
+/// Prints a note on standard error, with its control characters escaped;
+/// a standard error that cannot take it (a closed pipe) is ignored: a note
+/// is never worth failing a command for.
+pub fn note(text: &str) {
+    let mut err = io::stderr().lock();
+    let _ = writeln!(err, "{}", printable(text));
+}
+
 /// Writes `contents` to `path` whole or not at all: into a temporary file
 /// in the same directory, which then replaces `path` (so a failure part way
 /// leaves any earlier file as it was). A path that exists and is not a

@@ -63,7 +63,7 @@ pub fn execute(a: &ConstantsArgs) -> Result<u8, Failure> {
     match &a.output {
         Some(path) => {
             crate::output::write_file(path, generated.source.as_bytes())?;
-            eprintln!(
+            crate::output::note(&format!(
                 "wrote {} constants to {}{}",
                 generated.constants.len(),
                 path.display(),
@@ -71,7 +71,7 @@ pub fn execute(a: &ConstantsArgs) -> Result<u8, Failure> {
                     Some(why) => format!(" (no steady state: {why})"),
                     None => " (with the Riccati steady state)".into(),
                 }
-            );
+            ));
         }
         None => crate::output::print(&generated.source)?,
     }
