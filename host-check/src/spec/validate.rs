@@ -445,7 +445,7 @@ pub(super) fn plan(loc: &Locator<'_>, raw: RawSpec, base: Option<&Path>) -> R<Pl
 
     Ok(Plan {
         title: one_line(raw.title.as_deref().unwrap_or(loc.file())),
-        file: loc.file().to_string(),
+        file: one_line(loc.file()),
         states,
         step_hz,
         steps,
