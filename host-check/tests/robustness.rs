@@ -308,6 +308,11 @@ fn outputs_that_name_an_input_or_each_other_are_refused() {
     let csv = dir.join("random-walk-reference.csv");
     let fresh = dir.join("new.out");
     let fresh_dotted = dir.join(".").join("new.out");
+    // A symbolic link to the spec is the spec.
+    let link = dir.join("link.toml");
+    let _ = std::fs::remove_file(&link);
+    std::os::unix::fs::symlink(&spec, &link).expect("a symbolic link");
+    let l = link.to_str().unwrap();
     for args in [
         vec!["check", s, "--json", d],
         vec!["check", s, "--plot", s],
@@ -321,6 +326,8 @@ fn outputs_that_name_an_input_or_each_other_are_refused() {
             fresh_dotted.to_str().unwrap(),
         ],
         vec!["constants", s, "-o", d],
+        vec!["check", s, "--json", l],
+        vec!["constants", l, "-o", s],
         vec!["trials", s, "--json", s],
     ] {
         let out = cairn(&args);
