@@ -78,6 +78,14 @@ pub fn write_file(path: &Path, contents: &[u8]) -> Result<(), Failure> {
             }
             return write_direct(path, contents).map_err(fail);
         }
+        // Renaming over a read-only file would replace it although writing
+        // into it is refused: keep the file's own answer.
+        Ok(m) if m.permissions().readonly() => {
+            return Err(bad(format!(
+                "cannot write {}: the file is read-only",
+                path.display()
+            )));
+        }
         Ok(_) => fs::canonicalize(path).map_err(fail)?,
         Err(_) => path.to_path_buf(),
     };
@@ -227,6 +235,19 @@ mod tests {
             .filter(|e| e.file_name().to_string_lossy().ends_with(".tmp"))
             .collect();
         assert!(left.is_empty(), "temporary files left: {left:?}");
+    }
+
+    #[test]
+    fn a_read_only_file_is_left_alone() {
+        let p = scratch("read-only.txt");
+        let _ = fs::remove_file(&p);
+        fs::write(&p, "kept").unwrap();
+        let mut perm = fs::metadata(&p).unwrap().permissions();
+        perm.set_readonly(true);
+        fs::set_permissions(&p, perm).unwrap();
+        let e = write_file(&p, b"new").unwrap_err();
+        assert!(e.to_string().contains("read-only"), "{e}");
+        assert_eq!(fs::read_to_string(&p).unwrap(), "kept");
     }
 
     #[test]
