@@ -351,6 +351,13 @@ fn refuse_clashes(spec: Option<&Path>, plan: &Plan, out: &Output) -> Result<(), 
     if let Some(e) = &plan.external {
         inputs.push(("spec's reference CSV", &e.path));
     }
+    if let spec::ModelPlan::Pose {
+        profile_csv: Some(p),
+        ..
+    } = &plan.model
+    {
+        inputs.push(("spec's recorded profile", p));
+    }
     let mut outputs: Vec<(&str, &Path)> = Vec::new();
     if let Some(j) = &out.json {
         outputs.push(("--json", j));

@@ -98,6 +98,7 @@ fn rover(steps: u64) -> Plan {
             speed_var: 4e-3,
             yaw_rate_var: 1e-3,
             heading_drift_var: 1e-7,
+            profile_csv: None,
             profile: Profile::Segments(vec![
                 Segment {
                     seconds: 4.0,

@@ -342,6 +342,26 @@ fn outputs_that_name_an_input_or_each_other_are_refused() {
     }
 }
 
+#[test]
+fn a_report_naming_the_recorded_profile_is_refused() {
+    let dir = scratch("clash-profile");
+    std::fs::create_dir_all(&dir).unwrap();
+    for f in ["recorded-rover.toml", "recorded-odometry.csv"] {
+        std::fs::copy(data().join(f), dir.join(f)).unwrap();
+    }
+    let csv = dir.join("recorded-odometry.csv");
+    let before = std::fs::read(&csv).unwrap();
+    let spec = dir.join("recorded-rover.toml");
+    let out = cairn(&[
+        "check",
+        spec.to_str().unwrap(),
+        "--plot",
+        csv.to_str().unwrap(),
+    ]);
+    bad_input(&out, &["--plot", "recorded profile itself"]);
+    assert_eq!(std::fs::read(&csv).unwrap(), before);
+}
+
 // ---- The external reference ---------------------------------------------
 
 /// The random-walk spec against a CSV with `rows`; returns the output and

@@ -90,6 +90,9 @@ pub enum ModelPlan {
         heading_drift_var: f64,
         /// The odometry the robot sees.
         profile: Profile,
+        /// The file a recorded profile was read from (so that no report
+        /// overwrites it).
+        profile_csv: Option<PathBuf>,
     },
 }
 

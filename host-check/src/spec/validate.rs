@@ -307,6 +307,10 @@ pub(super) fn plan(loc: &Locator<'_>, raw: RawSpec, base: Option<&Path>) -> R<Pl
                     yaw_rate_var,
                     heading_drift_var,
                     profile,
+                    profile_csv: model
+                        .profile_csv
+                        .as_ref()
+                        .map(|c| base.map_or_else(|| c.get_ref().into(), |b| b.join(c.get_ref()))),
                 },
                 mode,
             )
