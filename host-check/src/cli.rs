@@ -6,6 +6,7 @@ use std::path::{Path, PathBuf};
 
 use clap::{Args, Parser, Subcommand, ValueEnum};
 
+use crate::output;
 use crate::report::{self, Report};
 use crate::run::{self, RunOptions};
 use crate::spec::{self, Mode, Plan};
@@ -19,9 +20,13 @@ pub const EXIT_BAD_INPUT: u8 = 2;
 
 const EXIT_CODES: &str = "Exit codes:
   0  the variant to flash (default f32 joseph) passes, for the whole mission
-  1  it fails, or is projected to cross a limit within the mission (a
-     numerical pass is not a safety case; see the report)
-  2  bad input: a malformed or inconsistent spec, an unreadable file, a bad option";
+  1  it fails, or is projected to cross a limit within the mission, or the
+     spec's external reference disagrees with ours (a numerical pass is not
+     a safety case; see the report)
+  2  bad input: a malformed or inconsistent spec, an unreadable file, a bad
+     option, an output that cannot be written or that names an input
+A closed standard output (a pipe whose reader has gone) ends the output
+quietly; the exit code is the one above.";
 
 /// Checks a Kalman filter's single-precision numerics before it is flashed:
 /// runs cairn-core's own code in f32 and f64, in every covariance form,
@@ -255,6 +260,7 @@ pub fn execute(cli: Cli) -> Result<u8, Failure> {
         Some(Command::Demo(a)) => demo(&a),
         Some(Command::Check(a)) => {
             let mut plan = spec::load(&a.spec).map_err(bad)?;
+            refuse_clashes(Some(&a.spec), &plan, &a.output)?;
             recentre(&mut plan, a.recentre)?;
             check(plan, a.seconds, a.mode, &a.output)
         }
@@ -283,7 +289,7 @@ fn cost(a: &CostArgs) -> Result<u8, Failure> {
         let plan = spec::load(path).map_err(bad)?;
         let wanted = crate::cost::plan_probes(&plan);
         for note in &wanted.notes {
-            eprintln!("note: {note}");
+            output::note(&format!("note: {note}"));
         }
         sizes.extend(wanted.sizes);
         rates = wanted.rates;
@@ -311,7 +317,7 @@ fn cost(a: &CostArgs) -> Result<u8, Failure> {
         ..crate::cost::CostConfig::default()
     };
     let report = crate::cost::estimate(&config).map_err(bad)?;
-    print!("{}", report.render());
+    output::print(&report.render())?;
     if let Some(name) = &a.profile {
         let Some(op) = report.operation(name) else {
             let known: Vec<&str> = report.operations.iter().map(|o| o.name.as_str()).collect();
@@ -320,19 +326,46 @@ fn cost(a: &CostArgs) -> Result<u8, Failure> {
                 known.join(", ")
             ))));
         };
-        print!("\n{}", op.render_profile());
+        output::print(&format!("\n{}", op.render_profile()))?;
     }
     Ok(EXIT_PASS)
 }
 
 fn demo(a: &DemoArgs) -> Result<u8, Failure> {
     if a.print_spec {
-        print!("{}", crate::demo::SPEC);
+        output::print(crate::demo::SPEC)?;
         return Ok(EXIT_PASS);
     }
     let mut plan = crate::demo::plan().map_err(bad)?;
+    refuse_clashes(None, &plan, &a.output)?;
     recentre(&mut plan, a.recentre)?;
     check(plan, a.seconds, a.mode, &a.output)
+}
+
+/// Refuses report files that name the spec, a file it reads, or each other.
+fn refuse_clashes(spec: Option<&Path>, plan: &Plan, out: &Output) -> Result<(), Failure> {
+    let mut inputs: Vec<(&str, &Path)> = Vec::new();
+    if let Some(s) = spec {
+        inputs.push(("spec", s));
+    }
+    if let Some(e) = &plan.external {
+        inputs.push(("spec's reference CSV", &e.path));
+    }
+    if let spec::ModelPlan::Pose {
+        profile_csv: Some(p),
+        ..
+    } = &plan.model
+    {
+        inputs.push(("spec's recorded profile", p));
+    }
+    let mut outputs: Vec<(&str, &Path)> = Vec::new();
+    if let Some(j) = &out.json {
+        outputs.push(("--json", j));
+    }
+    if let Some(p) = &out.plot {
+        outputs.push(("--plot", p));
+    }
+    output::refuse_clashes(&inputs, &outputs)
 }
 
 /// `--recentre M`: a finite distance of at least 1 m, for the pose model
@@ -372,6 +405,12 @@ fn check(
     if let Some(m) = &out.mission {
         plan.thresholds.mission_seconds = Some(parse_mission(m)?);
     }
+    if mode.is_some() && plan.is_linear() {
+        return Err(bad(Message(
+            "--mode applies to the planar-pose model only: a linear model has one mode (every variant runs the same F and H)"
+                .into(),
+        )));
+    }
     let opts = RunOptions {
         progress: !out.no_progress,
         mode: mode.map(|m| match m {
@@ -379,7 +418,8 @@ fn check(
             ModeArg::EndToEnd => Mode::EndToEnd,
         }),
     };
-    let mut result = run::run(&plan, opts).map_err(bad)?;
+    let mut result = run::run(&plan, opts).map_err(|e| bad(located(&plan, e)))?;
+    crate::mission::fail_on_external(&mut result);
     if out.cycles
         && let Some(m) = result.mission.as_mut()
     {
@@ -409,8 +449,8 @@ fn check(
         crate::mission::attach_cycles(m, estimate.as_ref().map_err(Clone::clone), plan.step_hz);
     }
     if out.quiet {
-        println!(
-            "{}: flash {} {}; cheapest passing: {}; for the mission: {}",
+        output::print(&format!(
+            "{}: flash {} {}; cheapest passing: {}; for the mission: {}\n",
             plan.title,
             result.flash,
             if result.flash_passes { "PASS" } else { "FAIL" },
@@ -420,24 +460,59 @@ fn check(
                 .as_ref()
                 .and_then(|m| m.verdict.choice.as_deref())
                 .unwrap_or("none")
-        );
+        ))?;
     } else {
-        print!("{}", report::render(&plan, &result));
+        output::print(&report::render(&plan, &result))?;
     }
     if let Some(path) = &out.json {
         let json = Report::new(&plan, &result)
             .to_json()
             .map_err(|e| bad(Message(format!("cannot write the JSON report: {e}"))))?;
-        write(path, &json)?;
+        output::write_file(path, json.as_bytes())?;
     }
     if let Some(path) = &out.plot {
         let svg = report::plot(&plan.title, &result, plan.thresholds.max_relative_error);
-        write(path, &svg)?;
+        output::write_file(path, svg.as_bytes())?;
     }
     Ok(if result.flash_passes {
         EXIT_PASS
     } else {
         EXIT_FAIL
+    })
+}
+
+/// A run error located in the spec: the file, and the line and field of
+/// the channel the message names (the reference refusing its update), or
+/// the file alone. An error that already starts with a file name (a
+/// malformed row of the external reference) keeps it.
+fn located(plan: &Plan, e: run::RunError) -> Box<dyn std::error::Error + Send + Sync> {
+    if let Some(ext) = &plan.external
+        && e.0.starts_with(&ext.path.display().to_string())
+    {
+        return Box::new(spec::SpecError {
+            file: plan.file.clone(),
+            line: 0,
+            column: 0,
+            field: "reference.csv".into(),
+            message: e.0,
+        });
+    }
+    let named = plan
+        .channels
+        .iter()
+        .enumerate()
+        .find(|(_, c)| e.0.contains(&format!("channel `{}`", c.name)));
+    let (line, column, field) = match named {
+        Some((i, c)) if c.line > 0 => (c.line, 1, format!("channel[{i}]")),
+        Some((i, _)) => (0, 0, format!("channel[{i}]")),
+        None => (0, 0, String::new()),
+    };
+    Box::new(spec::SpecError {
+        file: plan.file.clone(),
+        line,
+        column,
+        field,
+        message: e.0,
     })
 }
 
@@ -463,11 +538,6 @@ fn parse_mission(text: &str) -> Result<f64, Failure> {
             "--mission `{text}`: the length must be a positive number up to 100 years, e.g. 30d"
         )))),
     }
-}
-
-fn write(path: &Path, text: &str) -> Result<(), Failure> {
-    std::fs::write(path, text)
-        .map_err(|e| bad(Message(format!("cannot write {}: {e}", path.display()))))
 }
 
 fn noise(a: &NoiseArgs) -> Result<u8, Failure> {
@@ -502,13 +572,14 @@ fn noise(a: &NoiseArgs) -> Result<u8, Failure> {
         return Err(bad(Message(format!("--rate must be positive, got {r}"))));
     }
     let rec = spec::convert_standalone(&doc, a.rate).map_err(bad)?;
-    println!("{}", rec.given);
+    let mut text = format!("{}\n", rec.given);
     for s in &rec.steps {
-        println!(
-            "  {:<44} {:<28} = {:e} {}",
+        text.push_str(&format!(
+            "  {:<44} {:<28} = {:e} {}\n",
             s.what, s.formula, s.value, s.unit
-        );
+        ));
     }
-    println!("=> {} = {:e}", rec.result_is, rec.result);
+    text.push_str(&format!("=> {} = {:e}\n", rec.result_is, rec.result));
+    output::print(&text)?;
     Ok(EXIT_PASS)
 }

@@ -13,6 +13,7 @@
 //! | [`demo`]    | the built-in demo spec                                       |
 //! | [`mission`] | growth over the mission, constant-gain transient, what to flash |
 //! | [`numeric`] | double-double, Van Loan, Riccati, noise figures              |
+//! | [`output`]  | standard output and whole-or-nothing file writes             |
 
 pub mod cli;
 pub mod consistency;
@@ -21,6 +22,7 @@ pub mod cost;
 pub mod demo;
 pub mod mission;
 pub mod numeric;
+pub mod output;
 pub mod report;
 pub mod run;
 pub mod spec;

@@ -118,7 +118,7 @@ fn the_steady_gain_satisfies_the_alpha_beta_relation() {
     // Continuous white-noise-acceleration model: the steady gain K = [alpha,
     // beta/T]' satisfies beta^2 / (1 - alpha) = T^2 Qd22 / R (Kalata 1984,
     // IEEE Trans. AES-20(2), relation from memory; values computed in
-    // REFERENCES.md).
+    // docs/references.md).
     let plan = tracker();
     let generated = constants::generate(&plan, Precision::F32).unwrap();
     assert!(
@@ -344,6 +344,7 @@ fn gauge(q: f64, r: f64, meas_hz: f64) -> Plan {
             rate_hz: meas_hz,
             dropouts: vec![],
             gate: None,
+            line: 0,
         }],
         thresholds: Thresholds::default(),
         flash: Flash {
@@ -365,7 +366,7 @@ fn value(consts: &[(String, Vec<String>)], name: &str) -> f64 {
 #[test]
 fn a_slower_sensor_gets_the_lifted_steady_state() {
     // Random walk in white noise, steady prior P = (q + sqrt(q^2 + 4 q r)) / 2
-    // and gain K = P / (P + r) (closed form, REFERENCES.md). Read every 4th
+    // and gain K = P / (P + r) (closed form, docs/references.md). Read every 4th
     // step, the walk gathers 4 q between measurements: with 4 q = r = 1,
     // P = 1.6180340 and K = 0.6180340.
     let generated = constants::generate(&gauge(0.25, 1.0, 25.0), Precision::F32).unwrap();

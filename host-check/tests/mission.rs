@@ -24,7 +24,7 @@ fn mission(r: &RunResult) -> &MissionResult {
         .expect("every run carries a mission verdict")
 }
 
-/// A scalar random walk observed in white noise (REFERENCES.md, closed
+/// A scalar random walk observed in white noise (docs/references.md, closed
 /// form), started far from its steady state.
 fn random_walk(q: f64, r: f64, p0: f64, steps: u64, extra: &str) -> Plan {
     let text = format!(
@@ -100,7 +100,7 @@ fn the_wna_tracker_reaches_steady_state_and_its_error_is_level() {
 #[test]
 fn the_fixed_gain_variance_converges_to_the_closed_form() {
     // q = 0.01, r = 1: steady prior (q + sqrt(q^2 + 4 q r)) / 2 = 0.1051249,
-    // gain q / P = 0.0951249 (REFERENCES.md, steady state of a random walk
+    // gain q / P = 0.0951249 (docs/references.md, steady state of a random walk
     // in white noise, computed).
     let (q, r) = (0.01, 1.0);
     let plan = random_walk(q, r, 4.0, 400, "");
@@ -160,7 +160,7 @@ fn the_fixed_gain_variance_converges_to_the_closed_form() {
 #[test]
 fn constant_gain_is_chosen_when_its_transient_is_accepted() {
     // Started at the steady posterior variance P = 1.618034 - 1 (q = r = 1,
-    // REFERENCES.md): no transient, so the constant gain is cheapest.
+    // docs/references.md): no transient, so the constant gain is cheapest.
     let plan = random_walk(1.0, 1.0, 0.618_033_988_749_894_9, 200, "");
     let res = run_plan(&plan);
     let m = mission(&res);
@@ -207,7 +207,7 @@ fn dropouts_withhold_the_constant_gain_with_a_reason() {
 fn dyer_mcreynolds_at_1e_4_names_u_d_or_f64() {
     // Dyer & McReynolds 1969, reproduced in Grewal & Andrews: at d = 1e-4,
     // near sqrt(eps) of f32, conventional and Joseph forms break while the
-    // factored form survives (REFERENCES.md).
+    // factored form survives (docs/references.md).
     let mut plan = spec::load(&specs().join("dyer-mcreynolds-1e-4.toml")).expect("loads");
     plan.thresholds.mission_seconds = Some(30.0 * 86_400.0);
     let r = run_plan(&plan);
@@ -374,4 +374,145 @@ fn the_wna_state_difference_grows_faster_than_linearly_and_the_power_fit_sees_it
     let fit = &json["run"]["mission"]["variants"][0]["state_fit"];
     assert_eq!(fit["growth"], "power", "{fit}");
     assert!(fit["exponent"].as_f64().is_some_and(|p| p > 1.0), "{fit}");
+}
+
+/// 2 x 2 symmetric matrices as [a11, a12, a22], for the independent
+/// recomputation below (plain arithmetic, no linear-algebra library).
+type Sym2 = [f64; 3];
+
+/// The largest root of det(A - l B) = 0 for symmetric A and positive
+/// definite B: l^2 det B - l (a11 b22 + a22 b11 - 2 a12 b12) + det A = 0.
+fn largest_generalised_2(a: Sym2, b: Sym2) -> f64 {
+    let qa = b[0] * b[2] - b[1] * b[1];
+    let qb = -(a[0] * b[2] + a[2] * b[0] - 2.0 * a[1] * b[1]);
+    let qc = a[0] * a[2] - a[1] * a[1];
+    (-qb + (qb * qb - 4.0 * qa * qc).sqrt()) / (2.0 * qa)
+}
+
+#[test]
+fn a_two_state_constant_gain_transient_matches_an_independent_recursion() {
+    // A nearly-constant-velocity model, F = [[1, T], [0, 1]], with the
+    // discrete white-noise-acceleration Q = q [[T^3/3, T^2/2], [T^2/2, T]]
+    // (Bar-Shalom, Li & Kirubarajan 2001; from memory), position measured
+    // with variance r, started at P0 = diag(4, 1). The optimal filter
+    // (Riccati recursion with K = P- H' / (H P- H' + r)) and the fixed-gain
+    // filter (Joseph form with the steady K, valid for any gain; common
+    // practice) are recomputed here entry by entry, and the steady gain by
+    // iterating the Riccati recursion to its fixed point; its alpha-beta
+    // form must satisfy beta^2 / (1 - alpha) = T^2 Qd22 / R (Kalata 1984,
+    // docs/references.md).
+    let (t, q, r) = (0.1_f64, 1.0_f64, 0.25_f64);
+    let qd: Sym2 = [q * t.powi(3) / 3.0, q * t * t / 2.0, q * t];
+    let text = format!(
+        r#"
+title = "cart on a rail"
+[[state]]
+name = "position"
+unit = "m"
+[[state]]
+name = "velocity"
+unit = "m/s"
+[model]
+kind = "discrete"
+step_hz = 10.0
+f = [[1.0, {t:e}], [0.0, 1.0]]
+q = [[{:e}, {:e}], [{:e}, {:e}]]
+[[channel]]
+name = "tape"
+rate_hz = 10.0
+h = [[1.0, 0.0]]
+r = [[{r:e}]]
+[start]
+x = [0.0, 0.0]
+p_diag = [4.0, 1.0]
+[horizon]
+steps = 300
+"#,
+        qd[0], qd[1], qd[1], qd[2]
+    );
+    let plan = spec::parse("cart.toml", &text, None).expect("a valid spec");
+    let res = run_plan(&plan);
+    let cg = mission(&res)
+        .constant_gain
+        .as_ref()
+        .expect("offered: one channel at the step rate, no dropouts");
+    // One predict: P- = F P F' + Q for F = [[1, T], [0, 1]].
+    let predict = |p: Sym2| -> Sym2 {
+        [
+            p[0] + 2.0 * t * p[1] + t * t * p[2] + qd[0],
+            p[1] + t * p[2] + qd[1],
+            p[2] + qd[2],
+        ]
+    };
+    // Joseph update with H = [1, 0] and gain k: (I - k H) P (I - k H)' + k r k'.
+    let joseph = |p: Sym2, k: [f64; 2]| -> Sym2 {
+        let (a, b, c) = (p[0], p[1], p[2]);
+        [
+            (1.0 - k[0]) * (1.0 - k[0]) * a + k[0] * k[0] * r,
+            (1.0 - k[0]) * (b - k[1] * a) + k[0] * k[1] * r,
+            c - 2.0 * k[1] * b + k[1] * k[1] * a + k[1] * k[1] * r,
+        ]
+    };
+    let optimal_gain = |pm: Sym2| [pm[0] / (pm[0] + r), pm[1] / (pm[0] + r)];
+    // The steady gain: the Riccati recursion's fixed point.
+    let mut p: Sym2 = [4.0, 0.0, 1.0];
+    for _ in 0..20_000 {
+        let pm = predict(p);
+        p = joseph(pm, optimal_gain(pm));
+    }
+    let ks = optimal_gain(predict(p));
+    for (i, k) in ks.iter().enumerate() {
+        assert!(
+            (cg.gain[i][0] / k - 1.0).abs() < 1e-10,
+            "gain[{i}] {} vs {k}",
+            cg.gain[i][0]
+        );
+    }
+    let (alpha, beta) = (ks[0], ks[1] * t);
+    assert!((beta * beta / (1.0 - alpha) / (t * t * qd[2] / r) - 1.0).abs() < 1e-10);
+    // The transient, interval by interval, as the tool follows it.
+    let (mut po, mut pf): (Sym2, Sym2) = ([4.0, 0.0, 1.0], [4.0, 0.0, 1.0]);
+    let mut prior_fixed = pf;
+    let (mut max_excess, mut max_trace, mut last_above) = (0.0_f64, 0.0_f64, None);
+    for j in 1..=cg.intervals {
+        let pm = predict(po);
+        po = joseph(pm, optimal_gain(pm));
+        prior_fixed = predict(pf);
+        pf = joseph(prior_fixed, ks);
+        let e = largest_generalised_2(pf, po) - 1.0;
+        max_excess = max_excess.max(e);
+        max_trace = max_trace.max((pf[0] + pf[2]) / (po[0] + po[2]) - 1.0);
+        if e > cg.threshold {
+            last_above = Some(j);
+        }
+    }
+    assert!(max_excess > 1.0, "a large transient from P0 = diag(4, 1)");
+    assert!(
+        (cg.max_excess / max_excess - 1.0).abs() < 1e-9,
+        "{} vs {max_excess}",
+        cg.max_excess
+    );
+    assert!(
+        (cg.max_trace_excess / max_trace - 1.0).abs() < 1e-9,
+        "{} vs {max_trace}",
+        cg.max_trace_excess
+    );
+    let settle = cg.settle_time_s.expect("settles");
+    let last = last_above.expect("above the threshold at first");
+    assert!(
+        (settle - (last + 1) as f64 * t).abs() < 1e-9,
+        "{settle} vs {last}"
+    );
+    let got = &cg.final_posterior;
+    for (g, e) in [(got[0][0], pf[0]), (got[0][1], pf[1]), (got[1][1], pf[2])] {
+        assert!((g / e - 1.0).abs() < 1e-9, "{g} vs {e}");
+    }
+    let got = &cg.final_prior;
+    for (g, e) in [
+        (got[0][0], prior_fixed[0]),
+        (got[0][1], prior_fixed[1]),
+        (got[1][1], prior_fixed[2]),
+    ] {
+        assert!((g / e - 1.0).abs() < 1e-9, "{g} vs {e}");
+    }
 }

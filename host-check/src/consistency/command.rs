@@ -94,6 +94,9 @@ pub fn execute(a: &TrialsArgs) -> Result<u8, Failure> {
             error: Box::new(e),
         })?,
     };
+    if let (Some(spec), Some(json)) = (&a.spec, &a.json) {
+        crate::output::refuse_clashes(&[("spec", spec)], &[("--json", json)])?;
+    }
     crate::cli::recentre(&mut plan, a.recentre)?;
     let mut variants = Vec::new();
     for v in &a.variants {
@@ -130,17 +133,23 @@ pub fn execute(a: &TrialsArgs) -> Result<u8, Failure> {
         error: Box::new(e),
     })?;
     if a.quiet {
+        let mut text = String::new();
         for v in &report.variants {
-            println!("{}: {} ({})", v.label, v.verdict.word(), v.reason);
+            text.push_str(&format!(
+                "{}: {} ({})\n",
+                v.label,
+                v.verdict.word(),
+                v.reason
+            ));
         }
+        crate::output::print(&text)?;
     } else {
-        print!("{}", report.text());
+        crate::output::print(&report.text())?;
     }
     if let Some(path) = &a.json {
         let json = serde_json::to_string_pretty(&report)
             .map_err(|e| bad(format!("cannot write the JSON report: {e}")))?;
-        std::fs::write(path, json)
-            .map_err(|e| bad(format!("cannot write {}: {e}", path.display())))?;
+        crate::output::write_file(path, json.as_bytes())?;
     }
     let judged: Vec<&super::VariantReport> = if chosen {
         report.variants.iter().collect()

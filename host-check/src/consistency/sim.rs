@@ -175,6 +175,7 @@ impl Setup {
                 yaw_rate_var,
                 heading_drift_var,
                 profile,
+                ..
             } => {
                 if n != 3 {
                     return Err(ConsistencyError::Model(

@@ -52,6 +52,9 @@ pub fn execute(a: &ConstantsArgs) -> Result<u8, Failure> {
         Some(path) => spec::load(path).map_err(|e| bad(Box::new(e)))?,
         None => crate::demo::plan().map_err(|e| bad(Box::new(e)))?,
     };
+    if let (Some(spec), Some(out)) = (&a.spec, &a.output) {
+        crate::output::refuse_clashes(&[("spec", spec)], &[("-o", out)])?;
+    }
     let precision = match a.scalar {
         ScalarArg::F32 => Precision::F32,
         ScalarArg::F64 => Precision::F64,
@@ -59,9 +62,8 @@ pub fn execute(a: &ConstantsArgs) -> Result<u8, Failure> {
     let generated = super::generate(&plan, precision).map_err(|e| bad(Box::new(e)))?;
     match &a.output {
         Some(path) => {
-            std::fs::write(path, &generated.source)
-                .map_err(|e| bad(format!("cannot write {}: {e}", path.display()).into()))?;
-            eprintln!(
+            crate::output::write_file(path, generated.source.as_bytes())?;
+            crate::output::note(&format!(
                 "wrote {} constants to {}{}",
                 generated.constants.len(),
                 path.display(),
@@ -69,9 +71,9 @@ pub fn execute(a: &ConstantsArgs) -> Result<u8, Failure> {
                     Some(why) => format!(" (no steady state: {why})"),
                     None => " (with the Riccati steady state)".into(),
                 }
-            );
+            ));
         }
-        None => print!("{}", generated.source),
+        None => crate::output::print(&generated.source)?,
     }
     Ok(EXIT_PASS)
 }

@@ -30,6 +30,20 @@ pub enum ConstantsError {
         /// The value.
         value: f64,
     },
+    /// A non-zero number too small for the chosen precision: it would be
+    /// written as zero or as a subnormal that keeps few digits.
+    Underflows {
+        /// The constant.
+        name: String,
+        /// Row of the entry (0-based; 0 for vectors' first entry and scalars).
+        row: usize,
+        /// Column of the entry (0-based).
+        col: usize,
+        /// The value.
+        value: f64,
+        /// The precision's name.
+        precision: &'static str,
+    },
 }
 
 impl fmt::Display for ConstantsError {
@@ -41,6 +55,22 @@ impl fmt::Display for ConstantsError {
                     "{name} holds {value}, which the chosen precision cannot represent"
                 )
             }
+            ConstantsError::Underflows {
+                name,
+                row,
+                col,
+                value,
+                precision,
+            } => write!(
+                f,
+                "{name} entry ({row}, {col}) is {value:e}, below the smallest normal {precision}: \
+                 it would be written as {}; rescale the model's units or use --scalar f64",
+                if *precision == "f32" && (*value as f32) == 0.0 {
+                    "0.0".to_string()
+                } else {
+                    "a subnormal that keeps few digits".to_string()
+                }
+            ),
         }
     }
 }
@@ -79,15 +109,26 @@ struct Writer {
 }
 
 impl Writer {
-    fn check(&self, name: &str, values: &[f64]) -> Result<(), ConstantsError> {
-        let limit = match self.precision {
-            Precision::F32 => f64::from(f32::MAX),
-            Precision::F64 => f64::MAX,
+    /// Every value finite and within the precision's range; `rows` maps a
+    /// column-major index to its entry for the message.
+    fn check(&self, name: &str, values: &[f64], rows: usize) -> Result<(), ConstantsError> {
+        let (limit, smallest) = match self.precision {
+            Precision::F32 => (f64::from(f32::MAX), f64::from(f32::MIN_POSITIVE)),
+            Precision::F64 => (f64::MAX, f64::MIN_POSITIVE),
         };
-        match values.iter().find(|v| !(v.is_finite() && v.abs() <= limit)) {
-            Some(&value) => Err(ConstantsError::NotRepresentable {
+        if let Some(&value) = values.iter().find(|v| !(v.is_finite() && v.abs() <= limit)) {
+            return Err(ConstantsError::NotRepresentable {
                 name: name.into(),
                 value,
+            });
+        }
+        match values.iter().position(|v| *v != 0.0 && v.abs() < smallest) {
+            Some(i) => Err(ConstantsError::Underflows {
+                name: name.into(),
+                row: i % rows.max(1),
+                col: i / rows.max(1),
+                value: values[i],
+                precision: self.precision.name(),
             }),
             None => Ok(()),
         }
@@ -99,7 +140,7 @@ impl Writer {
         doc: &[String],
         m: &DMatrix<f64>,
     ) -> Result<(), ConstantsError> {
-        self.check(name, m.as_slice())?;
+        self.check(name, m.as_slice(), m.nrows())?;
         emit::matrix(&mut self.out, name, doc, m, self.precision);
         self.constants.push(Constant {
             name: name.into(),
@@ -111,7 +152,7 @@ impl Writer {
     }
 
     fn vector(&mut self, name: &str, doc: &[String], v: &[f64]) -> Result<(), ConstantsError> {
-        self.check(name, v)?;
+        self.check(name, v, v.len())?;
         emit::vector(&mut self.out, name, doc, v, self.precision);
         self.constants.push(Constant {
             name: name.into(),
@@ -123,7 +164,7 @@ impl Writer {
     }
 
     fn scalar(&mut self, name: &str, doc: &[String], v: f64) -> Result<(), ConstantsError> {
-        self.check(name, &[v])?;
+        self.check(name, &[v], 1)?;
         emit::scalar(&mut self.out, name, doc, v, self.precision);
         self.constants.push(Constant {
             name: name.into(),

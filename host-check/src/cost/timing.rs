@@ -14,7 +14,7 @@ pub enum Core {
 
 /// Pipeline refill after a taken branch with an immediate target (the P in
 /// "1 + P", P = 1 to 3): Arm Cortex-M4 Technical Reference Manual (DDI 0439),
-/// section 3.3, instruction timings (from memory, as in REFERENCES.md). We take
+/// section 3.3, instruction timings (from memory, as in docs/references.md). We take
 /// the usual case, 1.
 pub const M4_REFILL_IMMEDIATE: u32 = 1;
 /// Refill after a branch through a register or a load to the PC; the TRM
@@ -24,7 +24,7 @@ pub const M4_REFILL_REGISTER: u32 = 2;
 
 /// Cortex-M4F cycles of one executed instruction at zero wait states.
 ///
-/// Sources, as listed in REFERENCES.md:
+/// Sources, as listed in docs/references.md:
 /// - FPU: Arm Cortex-M4 TRM (DDI 0439), FPU instruction timing table, as
 ///   reproduced in TI SWCU192 (CC13x2/CC26x2 TRM, 2021) Table 3-27:
 ///   VADD/VSUB/VMUL/VNMUL 1; VMLA/VMLS/VNMLA/VNMLS 3; VFMA family 3;
@@ -185,7 +185,7 @@ mod tests {
 
     #[test]
     fn m4_multiply_add_costs_more_than_split_form() {
-        // REFERENCES.md (measured here): without -C target-cpu=cortex-m4,
+        // docs/references.md (measured here): without -C target-cpu=cortex-m4,
         // rustc emits VMLA (3 cycles) where VMUL + VADD (2 cycles) is cheaper.
         let fused = listing_cycles(&[("vmla.f32", "s0, s1, s2")]);
         let split = listing_cycles(&[("vmul.f32", "s3, s1, s2"), ("vadd.f32", "s0, s0, s3")]);

@@ -112,7 +112,7 @@ pub fn duration_words(s: f64) -> String {
 
 /// Cost order of the final verdict: constant gain, conventional, Joseph,
 /// U-D, every f32 form before any f64 one (f64 is software arithmetic on a
-/// Cortex-M4F, about 75x the f32 cost: REFERENCES.md, measured here).
+/// Cortex-M4F, about 75x the f32 cost: docs/references.md, measured here).
 pub fn cost_order() -> Vec<String> {
     let mut v = Vec::new();
     for p in ["f32", "f64"] {
@@ -404,6 +404,42 @@ pub fn analyze(inputs: &MissionInputs<'_>, run: &RunResult) -> MissionResult {
             cycles_note,
             passed_over,
         },
+    }
+}
+
+/// Fails every verdict when the spec's external reference disagrees with
+/// ours or gave no row to compare: one of the two references is wrong, so
+/// no figure measured against ours can be trusted. The reason goes into
+/// every variant's verdict and the final verdict's passed-over list.
+pub fn fail_on_external(run: &mut RunResult) {
+    let Some(e) = run.external.as_ref().filter(|e| !e.agrees) else {
+        return;
+    };
+    let reason = if e.rows == 0 {
+        "the external reference has no row at any step of the run: nothing was compared".to_string()
+    } else {
+        format!(
+            "the external reference disagrees with ours: largest relative difference {:.3e} > tolerance {:.1e} over {} rows",
+            e.max_difference, e.tolerance, e.rows
+        )
+    };
+    for v in &mut run.variants {
+        v.verdict.passes = false;
+        v.verdict.reasons.push(reason.clone());
+    }
+    run.flash_passes = false;
+    run.flash_passes_horizon = false;
+    run.cheapest_passing = None;
+    if let Some(m) = run.mission.as_mut() {
+        for v in &mut m.variants {
+            v.passes_mission = false;
+        }
+        if let Some(c) = m.verdict.choice.take() {
+            m.verdict.passed_over.push(format!("{c}: {reason}"));
+        }
+        m.verdict
+            .passed_over
+            .push(format!("every option: {reason}"));
     }
 }
 

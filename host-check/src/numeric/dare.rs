@@ -271,7 +271,7 @@ mod tests {
 
     #[test]
     fn random_walk_in_white_noise() {
-        // Closed form (REFERENCES.md, computed): P = (q + sqrt(q^2 + 4qr))/2,
+        // Closed form (docs/references.md, computed): P = (q + sqrt(q^2 + 4qr))/2,
         // K = q/P, posterior = P - q; and the tabulated values.
         for &(q, r, p_tab, k_tab, tol) in &[
             (1.0, 1.0, 1.618_034_0, 0.618_034_0, 1e-7),
@@ -294,7 +294,7 @@ mod tests {
     }
 
     fn kalata(lambda: f64) -> (f64, f64) {
-        // Kalata (1984), tracking index (REFERENCES.md; expressions from memory).
+        // Kalata (1984), tracking index (docs/references.md; expressions from memory).
         let r = (lambda * lambda + 8.0 * lambda).sqrt();
         let alpha = -(lambda * lambda + 8.0 * lambda - (lambda + 4.0) * r) / 8.0;
         let beta = (lambda * lambda + 4.0 * lambda - lambda * r) / 4.0;
@@ -306,7 +306,7 @@ mod tests {
         // Discrete white-noise-acceleration model: F = [[1,T],[0,1]],
         // Gamma = [T^2/2, T]', Q = sigma_w^2 Gamma Gamma', H = [1, 0],
         // R = sigma_v^2; lambda = sigma_w T^2 / sigma_v; K = [alpha, beta/T]
-        // (Kalata 1984, values computed in REFERENCES.md).
+        // (Kalata 1984, values computed in docs/references.md).
         let table = [
             (0.1, 0.36, 0.08),
             (0.5, 0.628_37, 0.304_81),
@@ -343,7 +343,7 @@ mod tests {
         // Continuous white-noise-acceleration model discretised with q = T = 1
         // (Qd = [[1/3, 1/2], [1/2, 1]], Bar-Shalom et al. 2001), sigma_v = 1:
         // alpha 0.75674, beta 0.49322, beta^2/(1-alpha) = T^2 Qd22 / R = 1
-        // (REFERENCES.md, computed).
+        // (docs/references.md, computed).
         let q = dmat![1.0 / 3.0, 0.5; 0.5, 1.0];
         let s = solve(
             &dmat![1.0, 1.0; 0.0, 1.0],

@@ -11,7 +11,7 @@
 //!   `W = ND^2 / 2`; sampled at `fs` with an ideal cut at Nyquist the
 //!   per-sample standard deviation is `ND sqrt(fs/2)` (with a one-pole
 //!   filter, use its noise-equivalent bandwidth `(pi/2) f_3dB` instead of
-//!   `fs/2`). REFERENCES.md "Sensor noise figures".
+//!   `fs/2`). docs/references.md "Sensor noise figures".
 //! - A **random walk coefficient** `N` (angle random walk in units/sqrt(s)
 //!   or units/sqrt(h), IEEE Std 952-1997: Allan variance `N^2 / tau`) is the
 //!   square root of the two-sided rate PSD: `W = N^2` with `N` per sqrt(s)
@@ -513,7 +513,7 @@ mod tests {
 
     #[test]
     fn accelerometer_density_example() {
-        // REFERENCES.md "Sensor noise figures" (computed): 100 ug/sqrt(Hz),
+        // docs/references.md "Sensor noise figures" (computed): 100 ug/sqrt(Hz),
         // one-sided, sampled at 100 Hz with an ideal cut at Nyquist:
         // sigma = ND sqrt(fs/2) = 6.93e-3 m/s^2; misread as two-sided 9.81e-3.
         let c = convert(100.0, "ug/sqrt(Hz)", "m/s^2", None, None).unwrap();
@@ -531,7 +531,7 @@ mod tests {
 
     #[test]
     fn angle_random_walk_example() {
-        // REFERENCES.md (IEEE Std 952-1997; values computed): 0.1 deg/sqrt(h)
+        // docs/references.md (IEEE Std 952-1997; values computed): 0.1 deg/sqrt(h)
         // = 1.667e-3 deg/s/sqrt(Hz) = 2.909e-5 rad/s/sqrt(Hz); per-sample
         // sigma at 100 Hz = 2.91e-4 rad/s; Qd of the integrated angle = N^2 Ts.
         let c = convert(0.1, "deg/sqrt(h)", "rad/s", None, None).unwrap();
@@ -613,7 +613,7 @@ mod tests {
 
     #[test]
     fn two_sided_per_hz_to_one_sided_per_rad_s_is_one_over_pi() {
-        // Common practice (REFERENCES.md): G(omega) = S(f)/pi when
+        // Common practice (docs/references.md): G(omega) = S(f)/pi when
         // sigma^2 = integral_0^inf G domega = integral_-inf^inf S df.
         let s = 2.5;
         let a = to_intensity(&NoiseFigure::Psd {

@@ -484,6 +484,22 @@ impl ReferenceFilter {
         &self.p
     }
 
+    /// The covariance's smallest eigenvalue, computed in double-double
+    /// (inverse iteration on its LDL' factor) while it is positive
+    /// definite, so that an eigenvalue far below `f64`'s epsilon times the
+    /// largest keeps its digits (rounding P to f64 first moves an eigenvalue
+    /// of 1.7e-9 by about 6e-8 relative on the Dyer-McReynolds example).
+    /// When P is not positive definite in double-double, or the iteration
+    /// stalls, the smallest eigenvalue of its `f64` rounding (NaN when none
+    /// is found).
+    #[must_use]
+    pub fn smallest_eigenvalue(&self) -> f64 {
+        match self.p.smallest_eigenvalue_spd() {
+            Ok(l) if l.hi() > 0.0 => l.to_f64(),
+            _ => crate::run::metrics::eigen_range(&self.p.to_f64()).map_or(f64::NAN, |(lo, _)| lo),
+        }
+    }
+
     /// The state rounded to `f64`.
     #[must_use]
     pub fn state(&self) -> DVector<f64> {
@@ -502,7 +518,7 @@ mod tests {
     use super::*;
 
     /// Dyer & McReynolds (1969), reproduced in Grewal & Andrews, *Kalman
-    /// Filtering: Theory and Practice* (matrices from memory, REFERENCES.md):
+    /// Filtering: Theory and Practice* (matrices from memory, docs/references.md):
     /// P0 = I3, H = [[1,1,1],[1,1,1+d]], R = d^2 I2.
     fn dyer_mcreynolds(d: f64) -> ReferenceFilter {
         let mut f = ReferenceFilter::new(&DVector::zeros(3), &DMatrix::identity(3, 3));
@@ -515,7 +531,7 @@ mod tests {
     #[test]
     #[allow(clippy::excessive_precision)] // the computed digits, as printed
     fn ill_conditioned_update_keeps_the_answer() {
-        // Exact posterior (REFERENCES.md): [[0.625,-0.375,-0.25],
+        // Exact posterior (docs/references.md): [[0.625,-0.375,-0.25],
         // [-0.375,0.625,-0.25],[-0.25,-0.25,0.5]] + O(d). Beyond that, the
         // entries to 20 digits, computed with 60-digit arithmetic (mpmath)
         // from P+ = (I + H'H/R)^-1 for the problem as stored in f64
@@ -573,16 +589,29 @@ mod tests {
             assert!((det.to_f64() / det_exact - 1.0).abs() < 1e-12, "{det}");
             // Smallest eigenvalue: computed (mpmath) above; to first order
             // it is det / (1 * 0.75) = d^2/6 (the other two eigenvalues
-            // tend to 1 and 0.75). Note: REFERENCES.md's "about d^2/8" is
-            // the determinant, not the eigenvalue.
+            // tend to 1 and 0.75); d^2/8 is the determinant, not the eigenvalue
+            // (docs/references.md).
             let lmin = f
                 .covariance_dd()
                 .smallest_eigenvalue_spd()
                 .unwrap()
                 .to_f64();
             assert!((lmin / lambda_min - 1.0).abs() < 1e-12, "d {d}: {lmin}");
+            // The same through the filter's own figure.
+            let own = f.smallest_eigenvalue();
+            assert!((own / lambda_min - 1.0).abs() < 1e-12, "d {d}: {own}");
             assert!((lmin / (d * d / 6.0) - 1.0).abs() < 10.0 * d);
         }
+    }
+
+    #[test]
+    fn a_singular_covariance_reports_its_f64_smallest_eigenvalue() {
+        // diag(2, 0): no LDL' factor with positive pivots; the f64 route
+        // gives the exact 0 (arithmetic).
+        let f = ReferenceFilter::new(&DVector::zeros(2), &dmat![2.0, 0.0; 0.0, 0.0]);
+        assert_eq!(f.smallest_eigenvalue(), 0.0);
+        let f = ReferenceFilter::new(&DVector::zeros(2), &dmat![2.0, 0.0; 0.0, 0.5]);
+        assert!((f.smallest_eigenvalue() - 0.5).abs() < 1e-15);
     }
 
     /// A small deterministic generator for test matrices (LCG of Knuth's
@@ -650,7 +679,7 @@ mod tests {
         // Random walk in white noise with q = r = 1: steady prior
         // (q + sqrt(q^2 + 4qr))/2 = (1 + sqrt 5)/2, posterior = prior - q =
         // (sqrt 5 - 1)/2 = 0.618033988749894848204586834365638117720...
-        // (REFERENCES.md closed form; digits of the golden ratio, common
+        // (docs/references.md closed form; digits of the golden ratio, common
         // knowledge). The iteration contracts by (1 - K)^2 ~ 0.15 per step,
         // so 100 steps leave only rounding: the double-double reference must
         // hold ~30 digits, where an f64 filter holds 16.

@@ -235,7 +235,7 @@ fn is_name_char(c: char) -> bool {
 
 fn tokenize(text: &str) -> Result<Vec<Tok>, NumericError> {
     let bad = |reason: String| NumericError::BadUnit {
-        text: text.to_string(),
+        text: quoted(text),
         reason,
     };
     let mut toks = Vec::new();
@@ -304,16 +304,35 @@ fn tokenize(text: &str) -> Result<Vec<Tok>, NumericError> {
     Ok(toks)
 }
 
+/// Deepest nesting of parentheses, `sqrt(` and `√` in one unit: far more
+/// than any real unit needs, and a bound on the parser's recursion (so a
+/// text of thousands of `(` is refused, not a stack overflow).
+pub const MAX_NESTING: usize = 16;
+
+/// A unit text as quoted in an error: whole when short, otherwise its
+/// first 60 characters and the length (a message should not repeat 40 000
+/// parentheses).
+fn quoted(text: &str) -> String {
+    let n = text.chars().count();
+    if n <= 80 {
+        text.to_string()
+    } else {
+        let head: String = text.chars().take(60).collect();
+        format!("{head}... ({n} characters)")
+    }
+}
+
 struct Parser<'a> {
     text: &'a str,
     toks: Vec<Tok>,
     pos: usize,
+    depth: usize,
 }
 
 impl Parser<'_> {
     fn bad(&self, reason: impl Into<String>) -> NumericError {
         NumericError::BadUnit {
-            text: self.text.to_string(),
+            text: quoted(self.text),
             reason: reason.into(),
         }
     }
@@ -405,6 +424,18 @@ impl Parser<'_> {
     }
 
     fn factor(&mut self) -> Result<Unit, NumericError> {
+        if self.depth >= MAX_NESTING {
+            return Err(self.bad(format!(
+                "nested more than {MAX_NESTING} deep (parentheses, sqrt or √)"
+            )));
+        }
+        self.depth += 1;
+        let u = self.factor_inner();
+        self.depth -= 1;
+        u
+    }
+
+    fn factor_inner(&mut self) -> Result<Unit, NumericError> {
         match self.next() {
             Some(Tok::Name(n)) if n == "sqrt" => {
                 self.expect(&Tok::Open, "`(` after sqrt")?;
@@ -461,7 +492,12 @@ fn describe(t: &Tok) -> &'static str {
 /// names without an operator, ...).
 pub fn parse_unit(text: &str) -> Result<Unit, NumericError> {
     let toks = tokenize(text)?;
-    let mut p = Parser { text, toks, pos: 0 };
+    let mut p = Parser {
+        text,
+        toks,
+        pos: 0,
+        depth: 0,
+    };
     if p.toks.is_empty() {
         return Err(p.bad("empty unit (write `1` for a dimensionless quantity)"));
     }
@@ -553,6 +589,19 @@ mod tests {
         assert_eq!(parse_unit("m/s/s").unwrap(), parse_unit("m/s^2").unwrap());
         assert_eq!(parse_unit("1/s").unwrap(), parse_unit("Hz").unwrap());
         assert_eq!(parse_unit(" m / s ").unwrap(), parse_unit("m/s").unwrap());
+    }
+
+    #[test]
+    fn nesting_is_bounded() {
+        let nested = |k: usize| format!("{}m{}/s", "(".repeat(k), ")".repeat(k));
+        assert_eq!(parse_unit(&nested(10)).unwrap(), parse_unit("m/s").unwrap());
+        // Thousands of parentheses: refused, not a stack overflow.
+        for k in [MAX_NESTING, 5_000, 200_000] {
+            let e = parse_unit(&nested(k)).unwrap_err().to_string();
+            assert!(e.contains("nested more than"), "{k}: {e:.80}");
+        }
+        let roots = format!("{}s", "√".repeat(100_000));
+        assert!(parse_unit(&roots).is_err());
     }
 
     #[test]

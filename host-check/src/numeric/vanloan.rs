@@ -264,7 +264,7 @@ mod tests {
     #[test]
     fn random_walk_qd_is_w_t() {
         // Van Loan (1978) on F = 0, G = 1: Qd = W T; W = 3, T = 0.25 -> 0.75
-        // (REFERENCES.md, computed).
+        // (docs/references.md, computed).
         let (phi, qd) = discretize(&dmat![0.0], &dmat![1.0], &dmat![3.0], 0.25).unwrap();
         assert_eq!(phi[(0, 0)], 1.0);
         assert!((qd[(0, 0)] - 0.75).abs() < 1e-15, "{qd}");
@@ -291,7 +291,7 @@ mod tests {
     #[test]
     fn gauss_markov_closed_form() {
         // First-order Gauss-Markov dx = -x/tau dt + dw, intensity W:
-        // Qd = (W tau / 2)(1 - e^(-2T/tau)), Phi = e^(-T/tau) (REFERENCES.md).
+        // Qd = (W tau / 2)(1 - e^(-2T/tau)), Phi = e^(-T/tau) (docs/references.md).
         // The stiff cases (T/tau = 1000, 1e5) overflow the plain block
         // exponential; the halving-and-doubling path must stay accurate.
         for &(w, tau, t) in &[

@@ -2,15 +2,20 @@
 //! P entries), read one row at a time alongside the run.
 
 use std::fs::File;
-use std::io::{BufRead, BufReader, Lines};
+use std::io::{BufRead, BufReader, Read};
 use std::path::{Path, PathBuf};
 
 use nalgebra::DMatrix;
 
+/// Longest line of the external reference, bytes (a row of 81 entries in
+/// full precision is under 2 KiB; the cap stops a file without line breaks
+/// from filling memory).
+pub const MAX_LINE_BYTES: u64 = 1 << 20;
+
 /// A streaming reader of the external reference.
 pub struct ExternalStream {
     path: PathBuf,
-    lines: Lines<BufReader<File>>,
+    reader: BufReader<File>,
     line_no: usize,
     n: usize,
     dt: f64,
@@ -28,7 +33,7 @@ impl ExternalStream {
         let file = File::open(path).map_err(|e| format!("{}: cannot open: {e}", path.display()))?;
         let mut s = Self {
             path: path.to_path_buf(),
-            lines: BufReader::new(file).lines(),
+            reader: BufReader::new(file),
             line_no: 0,
             n,
             dt,
@@ -41,10 +46,34 @@ impl ExternalStream {
 
     fn advance(&mut self) -> Result<(), String> {
         self.pending = None;
-        for line in self.lines.by_ref() {
+        let mut buf = Vec::new();
+        loop {
+            buf.clear();
             self.line_no += 1;
-            let line =
-                line.map_err(|e| format!("{}:{}: {e}", self.path.display(), self.line_no))?;
+            let read = self
+                .reader
+                .by_ref()
+                .take(MAX_LINE_BYTES + 1)
+                .read_until(b'\n', &mut buf)
+                .map_err(|e| format!("{}:{}: {e}", self.path.display(), self.line_no))?;
+            if read == 0 {
+                break;
+            }
+            if buf.len() as u64 > MAX_LINE_BYTES {
+                return Err(format!(
+                    "{}:{}: a line longer than {} KiB; a row of P entries is far shorter",
+                    self.path.display(),
+                    self.line_no,
+                    MAX_LINE_BYTES >> 10
+                ));
+            }
+            let Ok(line) = std::str::from_utf8(&buf) else {
+                return Err(format!(
+                    "{}:{}: not UTF-8 text",
+                    self.path.display(),
+                    self.line_no
+                ));
+            };
             let line = line.trim();
             if line.is_empty() || line.starts_with('#') {
                 continue;

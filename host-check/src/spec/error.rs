@@ -9,9 +9,10 @@ use std::ops::Range;
 pub struct SpecError {
     /// The file name as given on the command line (or `<demo>`).
     pub file: String,
-    /// 1-based line.
+    /// 1-based line (0: the problem is with the file as a whole, and no
+    /// position is printed).
     pub line: usize,
-    /// 1-based column.
+    /// 1-based column (0 with line 0).
     pub column: usize,
     /// The field the problem is about, as a dotted path.
     pub field: String,
@@ -21,11 +22,16 @@ pub struct SpecError {
 
 impl fmt::Display for SpecError {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
-        write!(
-            f,
-            "{}:{}:{}: field `{}`: {}",
-            self.file, self.line, self.column, self.field, self.message
-        )
+        if self.line == 0 {
+            write!(f, "{}: ", self.file)?;
+        } else {
+            write!(f, "{}:{}:{}: ", self.file, self.line, self.column)?;
+        }
+        if self.field.is_empty() {
+            f.write_str(&self.message)
+        } else {
+            write!(f, "field `{}`: {}", self.field, self.message)
+        }
     }
 }
 
@@ -70,11 +76,39 @@ impl<'a> Locator<'a> {
         }
     }
 
+    /// An error about the file as a whole (no position is printed).
+    pub fn whole_file(&self, field: &str, message: impl Into<String>) -> SpecError {
+        SpecError {
+            file: self.file.to_string(),
+            line: 0,
+            column: 0,
+            field: field.to_string(),
+            message: message.into(),
+        }
+    }
+
     /// Converts a TOML parse or type error, naming the key on the line it
-    /// points at when the message itself does not.
+    /// points at when the message itself does not. A missing field is
+    /// named itself: inside its table (at the table's header) or, for a
+    /// missing top-level table or key, without a position.
     pub fn from_toml(&self, err: &toml::de::Error) -> SpecError {
         let span = err.span().unwrap_or(0..0);
         let message = err.message().trim().to_string();
+        if let Some(missing) = message
+            .strip_prefix("missing field `")
+            .and_then(|m| m.split_once('`'))
+            .map(|(name, _)| name.to_string())
+        {
+            let offset = span.start.min(self.text.len());
+            let line_start = self.text[..offset].rfind('\n').map_or(0, |i| i + 1);
+            let line = self.text[line_start..].lines().next().unwrap_or("");
+            let in_table = line.trim_start().starts_with('[');
+            if in_table {
+                let table = self.key_near(offset);
+                return self.error(span, &format!("{table}.{missing}"), message);
+            }
+            return self.whole_file(&missing, message);
+        }
         let field = self.key_near(span.start);
         self.error(span, &field, message)
     }
@@ -125,5 +159,15 @@ mod tests {
         assert_eq!(loc.line_col(0), (1, 1));
         assert_eq!(loc.line_col(text.find("kind").unwrap()), (3, 1));
         assert_eq!(loc.key_near(text.find('2').unwrap()), "model.kind");
+    }
+
+    #[test]
+    fn a_whole_file_error_prints_no_position() {
+        let loc = Locator::new("x.toml", "");
+        let e = loc.whole_file("model", "missing field `model`");
+        assert_eq!(
+            e.to_string(),
+            "x.toml: field `model`: missing field `model`"
+        );
     }
 }

@@ -283,6 +283,16 @@ pub fn convert(
             format!("converts to an unusable value {result}"),
         ));
     }
+    if (result == 0.0 && v != 0.0) || (result > 0.0 && result < f64::MIN_POSITIVE) {
+        return Err(loc.error(
+            value.span(),
+            &vfield,
+            format!(
+                "converts to {result:e}: the value underflows f64 (below {:e}); give a larger figure or a coarser unit",
+                f64::MIN_POSITIVE
+            ),
+        ));
+    }
     let mut given = format!("{kind} = {v} {unit_text}");
     if let Some(s) = &raw.sided {
         given.push_str(&format!(", {}-sided", s.get_ref()));
@@ -355,7 +365,19 @@ pub fn convert_standalone(doc: &str, rate: Option<f64>) -> Result<ConversionReco
     let loc = Locator::new("<command line>", doc);
     let fig: Spanned<RawNoise> = toml::from_str::<RawNoise>(doc)
         .map(|r| Spanned::new(0..doc.len(), r))
-        .map_err(|e| loc.from_toml(&e))?;
+        .map_err(|e| SpecError {
+            line: 0,
+            column: 0,
+            ..loc.from_toml(&e)
+        })?;
     let purpose = rate.map_or(Use::Intensity, Use::SampleVariance);
-    convert(&loc, &fig, "figure", purpose, rate.unwrap_or(1.0), None).map(|(_, r)| r)
+    // The text was put together from the options: a line and column in it
+    // would point at nothing the user wrote, so none is printed.
+    convert(&loc, &fig, "figure", purpose, rate.unwrap_or(1.0), None)
+        .map(|(_, r)| r)
+        .map_err(|e| SpecError {
+            line: 0,
+            column: 0,
+            ..e
+        })
 }

@@ -90,6 +90,9 @@ pub enum ModelPlan {
         heading_drift_var: f64,
         /// The odometry the robot sees.
         profile: Profile,
+        /// The file a recorded profile was read from (so that no report
+        /// overwrites it).
+        profile_csv: Option<PathBuf>,
     },
 }
 
@@ -179,6 +182,9 @@ pub struct ChannelPlan {
     pub dropouts: Vec<(f64, f64)>,
     /// Chi-square gate, if any.
     pub gate: Option<f64>,
+    /// 1-based line of the channel's `[[channel]]` table in the spec, for
+    /// errors found while running it (0: the plan was built in code).
+    pub line: usize,
 }
 
 impl ChannelPlan {
@@ -322,14 +328,45 @@ impl Plan {
 /// inconsistent, or for a file that cannot be read.
 pub fn load(path: &Path) -> Result<Plan, SpecError> {
     let file = path.display().to_string();
-    let text = std::fs::read_to_string(path).map_err(|e| SpecError {
+    let whole = |message: String| SpecError {
         file: file.clone(),
         line: 0,
         column: 0,
-        field: "(file)".into(),
-        message: format!("cannot read the spec file: {e}"),
-    })?;
+        field: String::new(),
+        message,
+    };
+    let text = read_capped(path, MAX_SPEC_BYTES, "spec file")
+        .map_err(|e| whole(format!("cannot read the spec file: {e}")))?;
     parse(&file, &text, path.parent())
+}
+
+/// Largest spec file read, bytes (16 MiB: a spec is a page of TOML; the
+/// cap stops a device that never ends, such as `/dev/zero`).
+pub const MAX_SPEC_BYTES: u64 = 16 << 20;
+
+/// Largest recorded CSV log read whole (a profile), bytes (256 MiB: about
+/// ten million rows).
+pub const MAX_LOG_BYTES: u64 = 256 << 20;
+
+/// Reads a UTF-8 text file of at most `cap` bytes.
+///
+/// # Errors
+/// The I/O error, or one saying the file is larger than the cap or not
+/// UTF-8 text.
+pub fn read_capped(path: &Path, cap: u64, what: &str) -> std::io::Result<String> {
+    use std::io::Read;
+    let mut bytes = Vec::new();
+    std::fs::File::open(path)?
+        .take(cap + 1)
+        .read_to_end(&mut bytes)?;
+    if bytes.len() as u64 > cap {
+        return Err(std::io::Error::other(format!(
+            "larger than {} MiB, the limit for a {what}",
+            cap >> 20
+        )));
+    }
+    String::from_utf8(bytes)
+        .map_err(|_| std::io::Error::new(std::io::ErrorKind::InvalidData, "not UTF-8 text"))
 }
 
 /// Parses and validates spec text; `base` resolves relative file names.
@@ -355,6 +392,7 @@ mod tests {
             rate_hz,
             dropouts,
             gate: None,
+            line: 0,
         }
     }
 

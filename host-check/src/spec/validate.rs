@@ -15,6 +15,7 @@ use super::{
     Segment, StateInfo, Thresholds,
 };
 use crate::numeric::vanloan;
+use crate::output::one_line;
 use crate::run::variants;
 
 /// Largest supported state dimension.
@@ -44,7 +45,7 @@ pub(super) fn plan(loc: &Locator<'_>, raw: RawSpec, base: Option<&Path>) -> R<Pl
     let mut states = Vec::with_capacity(n);
     for s in &raw.state {
         let s = s.get_ref();
-        let name = s.name.get_ref().trim().to_string();
+        let name = one_line(s.name.get_ref().trim());
         if name.is_empty() {
             return Err(loc.error(s.name.span(), "state.name", "empty state name"));
         }
@@ -57,7 +58,7 @@ pub(super) fn plan(loc: &Locator<'_>, raw: RawSpec, base: Option<&Path>) -> R<Pl
         }
         states.push(StateInfo {
             name,
-            unit: s.unit.get_ref().clone(),
+            unit: one_line(s.unit.get_ref()),
         });
     }
 
@@ -306,6 +307,10 @@ pub(super) fn plan(loc: &Locator<'_>, raw: RawSpec, base: Option<&Path>) -> R<Pl
                     yaw_rate_var,
                     heading_drift_var,
                     profile,
+                    profile_csv: model
+                        .profile_csv
+                        .as_ref()
+                        .map(|c| base.map_or_else(|| c.get_ref().into(), |b| b.join(c.get_ref()))),
                 },
                 mode,
             )
@@ -324,6 +329,24 @@ pub(super) fn plan(loc: &Locator<'_>, raw: RawSpec, base: Option<&Path>) -> R<Pl
     let mut channels = Vec::with_capacity(raw.channel.len());
     for (ci, ch) in raw.channel.iter().enumerate() {
         let c = channel(loc, ch, ci, &states, step_hz, pose, &mut conversions)?;
+        // A dropout window that starts at or after the end of the horizon
+        // never takes effect: most likely a typo (seconds for hours).
+        let end_s = steps as f64 / step_hz;
+        if let Some(d) = &ch.get_ref().dropouts
+            && let Some((w, &(a, _))) = d
+                .get_ref()
+                .iter()
+                .zip(&c.dropouts)
+                .find(|(_, w)| w.0 >= end_s)
+        {
+            return Err(loc.error(
+                w.span(),
+                &format!("channel[{ci}].dropouts"),
+                format!(
+                    "the window starts at {a} s, at or after the end of the horizon ({end_s} s): it would never apply"
+                ),
+            ));
+        }
         if channels.iter().any(|o: &ChannelPlan| o.name == c.name) {
             return Err(loc.error(
                 ch.get_ref().name.span(),
@@ -425,8 +448,8 @@ pub(super) fn plan(loc: &Locator<'_>, raw: RawSpec, base: Option<&Path>) -> R<Pl
     let seed = raw.seed.as_ref().map_or(0x5eed_ca1f, |s| *s.get_ref());
 
     Ok(Plan {
-        title: raw.title.unwrap_or_else(|| loc.file().to_string()),
-        file: loc.file().to_string(),
+        title: one_line(raw.title.as_deref().unwrap_or(loc.file())),
+        file: one_line(loc.file()),
         states,
         step_hz,
         steps,
@@ -522,7 +545,7 @@ fn channel(
 ) -> R<ChannelPlan> {
     let c = ch.get_ref();
     let n = states.len();
-    let name = c.name.get_ref().trim().to_string();
+    let name = one_line(c.name.get_ref().trim());
     let at = |f: &str| format!("channel[{ci}].{f}");
     if name.is_empty() {
         return Err(loc.error(c.name.span(), &at("name"), "empty channel name"));
@@ -629,6 +652,9 @@ fn channel(
                     "the measurement variance must be positive",
                 ));
             }
+            if let Some(why) = unusable_variance(v, v, false, true) {
+                return Err(loc.error(fig.span(), &field, why));
+            }
             r[(i, i)] = v;
             conversions.push(rec);
         }
@@ -678,6 +704,7 @@ fn channel(
         rate_hz,
         dropouts,
         gate,
+        line: loc.line_col(ch.span().start).0,
     })
 }
 
@@ -711,13 +738,14 @@ fn profile(
         }
         (None, Some(csv)) => {
             let path = base.map_or_else(|| csv.get_ref().into(), |b| b.join(csv.get_ref()));
-            let text = std::fs::read_to_string(&path).map_err(|e| {
-                loc.error(
-                    csv.span(),
-                    "model.profile_csv",
-                    format!("cannot read {}: {e}", path.display()),
-                )
-            })?;
+            let text =
+                super::read_capped(&path, super::MAX_LOG_BYTES, "recorded log").map_err(|e| {
+                    loc.error(
+                        csv.span(),
+                        "model.profile_csv",
+                        format!("cannot read {}: {e}", path.display()),
+                    )
+                })?;
             let mut rows: Vec<[f64; 3]> = Vec::new();
             for (li, line) in text.lines().enumerate() {
                 let line = line.trim();
@@ -938,6 +966,11 @@ fn covariance_choice(
     }
     if let Some(m) = full.0 {
         let p = matrix(loc, m, full.1, n, n)?;
+        for i in 0..n {
+            if let Some(why) = unusable_variance(p[(i, i)], p[(i, i)], false, strict) {
+                return Err(loc.error(m.span(), full.1, format!("diagonal entry {i}: {why}")));
+            }
+        }
         check_covariance(loc, m.span(), full.1, &p, strict)?;
         return Ok(p);
     }
@@ -960,10 +993,51 @@ fn covariance_choice(
                 format!("entry {i}: a {what} must be {need}, got {e}"),
             ));
         }
-        p[(i, i)] = if is_std { e * e } else { e };
+        let var = if is_std { e * e } else { e };
+        if let Some(why) = unusable_variance(var, e, is_std, strict) {
+            return Err(loc.error(v.span(), name, format!("entry {i}: {why}")));
+        }
+        p[(i, i)] = var;
     }
     Ok(p)
 }
+
+/// Why a variance (`from`, its standard deviation when `is_std`) cannot be
+/// used, if it cannot: its square overflowed, it is subnormal (too small for
+/// f64 to hold it with full precision: its square root, inverse and
+/// products lose digits or overflow), or it is zero where a positive
+/// variance is required (`strict`) although the figure given was not.
+fn unusable_variance(v: f64, from: f64, is_std: bool, strict: bool) -> Option<String> {
+    let subject = if is_std {
+        format!("the standard deviation {from:e} gives the variance {v:e}, which")
+    } else {
+        format!("the variance {v:e}")
+    };
+    if !v.is_finite() {
+        Some(format!(
+            "the standard deviation {from:e} squares to more than f64 holds"
+        ))
+    } else if v != 0.0 && v.abs() < f64::MIN_POSITIVE {
+        Some(format!(
+            "{subject} is below the smallest normal f64 ({:e})",
+            f64::MIN_POSITIVE
+        ))
+    } else if v == 0.0 && from != 0.0 && strict {
+        Some(format!(
+            "the standard deviation {from:e} squares to zero in f64 (it underflows); give a positive variance"
+        ))
+    } else if v.abs() > MAX_VARIANCE {
+        Some(format!(
+            "{subject} is above {MAX_VARIANCE:e}: products with the filter's matrices would overflow f64"
+        ))
+    } else {
+        None
+    }
+}
+
+/// Largest variance accepted: its square must still fit f64 (P P' and
+/// (H P H')^2 appear in the update), with room to spare.
+const MAX_VARIANCE: f64 = 1e150;
 
 fn check_covariance(
     loc: &Locator<'_>,
