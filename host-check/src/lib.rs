@@ -3,6 +3,7 @@
 //!
 //! | module      | job                                                          |
 //! |-------------|--------------------------------------------------------------|
+//! | [`scenario`] | checking your own models from your crate's tests          |
 //! | [`spec`]    | the TOML model spec, parsed with spans and validated         |
 //! | [`engine`]  | the check engine: any model, every variant, the reference    |
 //! | [`run`]     | the spec's check: the spec's models through the engine       |
@@ -26,4 +27,5 @@ pub mod models;
 pub mod numeric;
 pub mod report;
 pub mod run;
+pub mod scenario;
 pub mod spec;
