@@ -29,5 +29,9 @@ step "no_std core for thumbv7em-none-eabihf (release)"
 cargo build -p cairn-core --release --target thumbv7em-none-eabihf --locked
 cargo build -p cairn-core --release --target thumbv7em-none-eabihf --features fast-trig,defmt --locked
 
+step "example user crates for thumbv7em-none-eabihf (release)"
+cargo build -p bramble-tug --release --target thumbv7em-none-eabihf --locked
+cargo build -p skerry-sled --release --target thumbv7em-none-eabihf --locked
+
 step "tests"
 cargo test --workspace --locked

@@ -15,14 +15,18 @@
 //! - Bounded time: every operation is straight-line loops over N and M.
 //! - No explicit inverse and no square root in the covariance path (S is
 //!   factored as LDL'); P is exactly symmetric after every operation.
-//! - Generic over the scalar: the same code runs in `f32` and `f64`, and
-//!   trigonometry goes through `libm`, so host and target compute the same
-//!   bits.
+//! - Generic over the scalar: the same code runs in `f32` and `f64`, with
+//!   the same bits on host and target. Sine and cosine
+//!   ([`Scalar::sin_cos_rad`]) never come from the platform's maths library:
+//!   for `f32` they are the crate's own kernel, all f32 adds and multiplies
+//!   (hardware on a Cortex-M4F; arguments beyond 8192 rad go to libm's
+//!   `sinf`/`cosf`), unless a feature below picks another; for `f64` they are
+//!   libm's portable `sin`/`cos`.
 //!
 //! ## Example
 //! ```
 //! use cairn_core::{Kalman, Joseph, Outcome, pose::{HeadingFix, Odometry, PlanarOdometry}};
-//! use nalgebra::{Matrix3, Vector1, Vector3};
+//! use cairn_core::nalgebra::{Matrix3, Vector1, Vector3};
 //!
 //! let mut filter: Kalman<f32, 3, Joseph> =
 //!     Kalman::try_new(Vector3::zeros(), Matrix3::from_diagonal_element(0.01))?;
@@ -33,6 +37,99 @@
 //! assert!(filter.covariance()[(2, 2)] < 0.01);
 //! # Ok::<(), cairn_core::FilterError>(())
 //! ```
+//!
+//! ## Your own model
+//! A model is two small trait implementations: [`ProcessModel`] (the
+//! transition, its Jacobian and the process noise, here as independent
+//! sources Q = G diag(q) G') and [`MeasurementModel`] (the prediction, its
+//! Jacobian and R). Written once over [`Scalar`], the same model runs in
+//! `f32` on the target and in `f64` (or `f32`) on the host. A turntable
+//! whose angle is read by a pair of Hall sensors:
+//! ```
+//! use cairn_core::nalgebra::{Matrix2, Vector2};
+//! use cairn_core::{Joseph, Kalman, MeasurementModel, Outcome, ProcessModel, Scalar, wrap_angle};
+//!
+//! /// Angle (rad, wrapped) and rate (rad/s), driven by a commanded angular
+//! /// acceleration; the torque disturbance is white, `accel_var` per step.
+//! struct Turntable<T> {
+//!     accel_var: T,
+//! }
+//!
+//! impl<T: Scalar> Turntable<T> {
+//!     /// The one noise source: an acceleration held over the step.
+//!     fn sources(&self, dt: T) -> (Matrix2<T>, Vector2<T>) {
+//!         let g = Matrix2::new(dt * dt * T::of(0.5), T::zero(), dt, T::zero());
+//!         (g, Vector2::new(self.accel_var, T::zero()))
+//!     }
+//! }
+//!
+//! impl<T: Scalar> ProcessModel<T, 2> for Turntable<T> {
+//!     type Input = T; // commanded angular acceleration, rad/s^2
+//!     fn transition(&self, x: &Vector2<T>, u: &T, dt: T) -> Vector2<T> {
+//!         Vector2::new(x[0] + x[1] * dt + *u * dt * dt * T::of(0.5), x[1] + *u * dt)
+//!     }
+//!     fn jacobian(&self, _x: &Vector2<T>, _u: &T, dt: T) -> Matrix2<T> {
+//!         Matrix2::new(T::one(), dt, T::zero(), T::one())
+//!     }
+//!     fn noise(&self, _x: &Vector2<T>, _u: &T, dt: T) -> Matrix2<T> {
+//!         let (g, q) = self.sources(dt);
+//!         g * Matrix2::from_diagonal(&q) * g.transpose()
+//!     }
+//!     fn noise_input(&self, _x: &Vector2<T>, _u: &T, dt: T) -> Option<(Matrix2<T>, Vector2<T>)> {
+//!         Some(self.sources(dt))
+//!     }
+//!     fn normalize(&self, x: &mut Vector2<T>) {
+//!         x[0] = wrap_angle(x[0]);
+//!     }
+//! }
+//!
+//! /// The two Hall channels read (cos, sin) of the angle, variance `var` each.
+//! struct HallPair<T> {
+//!     var: T,
+//! }
+//!
+//! impl<T: Scalar> MeasurementModel<T, 2, 2> for HallPair<T> {
+//!     fn predict(&self, x: &Vector2<T>) -> Vector2<T> {
+//!         let (s, c) = x[0].sin_cos_rad();
+//!         Vector2::new(c, s)
+//!     }
+//!     fn jacobian(&self, x: &Vector2<T>) -> Matrix2<T> {
+//!         let (s, c) = x[0].sin_cos_rad();
+//!         Matrix2::new(-s, T::zero(), c, T::zero())
+//!     }
+//!     fn noise(&self, _x: &Vector2<T>) -> Matrix2<T> {
+//!         Matrix2::from_diagonal_element(self.var)
+//!     }
+//!     fn normalize(&self, x: &mut Vector2<T>) {
+//!         x[0] = wrap_angle(x[0]);
+//!     }
+//! }
+//!
+//! let table = Turntable { accel_var: 0.04_f32 };
+//! let hall = HallPair { var: 1e-4 };
+//! let mut filter: Kalman<f32, 2, Joseph> =
+//!     Kalman::try_new(Vector2::new(3.1, 0.5), Matrix2::from_diagonal_element(0.01))?;
+//! for _ in 0..10 {
+//!     filter.predict_with(&table, &0.0, 0.01)?;
+//! }
+//! // 0.05 rad on from 3.1 rad: past pi, so the angle wrapped to about -3.133.
+//! assert!((filter.state()[0] + 3.1332).abs() < 1e-3);
+//! let (s, c) = (-3.1332_f32).sin_cos_rad();
+//! let outcome = filter.update_with(&hall, &Vector2::new(c, s), Some(9.21))?;
+//! assert!(matches!(outcome, Outcome::Applied { .. }));
+//! assert!(filter.covariance()[(0, 0)] < 1e-3);
+//! # Ok::<(), cairn_core::FilterError>(())
+//! ```
+//! The example crates `examples/bramble-tug` (n = 5) and
+//! `examples/skerry-sled` (n = 15) in the repository are fuller models.
+//!
+//! ## nalgebra
+//! The core is built on nalgebra 0.34 (default features off, with `libm`)
+//! and re-exports it as [`nalgebra`]. Write `cairn_core::nalgebra::...` in
+//! a model crate rather than depending on nalgebra yourself: a nalgebra of
+//! another version (0.35, say) is a different crate, its `SMatrix` a
+//! different type from the one the core's traits take, so the model would
+//! not fit the traits, and a firmware that needs both compiles two copies.
 //!
 //! ## Features
 //! - Default `f32` trigonometry is the crate's own single-precision sin/cos
@@ -79,6 +176,9 @@ pub use health::{HealthMonitor, HealthReport, NisBand, wilson_hilferty_bounds};
 pub use kalman::Kalman;
 pub use ldl::Ldl;
 pub use model::{Linearized, MeasurementModel, ProcessModel};
+/// The nalgebra the core is built on (0.34): models name its types through
+/// this path, so they are the core's own.
+pub use nalgebra;
 pub use scalar::{Scalar, wrap_angle};
 pub use steady::SteadyGain;
 pub use ud::UdKalman;
