@@ -3,8 +3,10 @@
 //!
 //! | module      | job                                                          |
 //! |-------------|--------------------------------------------------------------|
+//! | [`scenario`] | checking your own models from your crate's tests          |
 //! | [`spec`]    | the TOML model spec, parsed with spans and validated         |
-//! | [`run`]     | the streaming check: variants, reference, figures, verdicts  |
+//! | [`engine`]  | the check engine: any model, every variant, the reference    |
+//! | [`run`]     | the spec's check: the spec's models through the engine       |
 //! | [`report`]  | terminal text, JSON and the SVG drift plot                   |
 //! | [`cli`]     | the `cairn` command line                                     |
 //! | [`cost`]    | cycles per predict/update on a Cortex-M4F from QEMU traces   |
@@ -20,9 +22,12 @@ pub mod consistency;
 pub mod constants;
 pub mod cost;
 pub mod demo;
+pub mod engine;
 pub mod mission;
+pub mod models;
 pub mod numeric;
 pub mod output;
 pub mod report;
 pub mod run;
+pub mod scenario;
 pub mod spec;

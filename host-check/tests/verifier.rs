@@ -609,9 +609,9 @@ fn garbage_and_oversized_specs_exit_two_without_panic() {
             "{tag}: {err}"
         );
     }
-    // Ten states: the verifier is built for 1 to 9.
+    // 25 states: the spec's linear models run with 1 to 24.
     let mut text = String::new();
-    for i in 0..10 {
+    for i in 0..25 {
         text.push_str(&format!("[[state]]\nname = \"s{i}\"\nunit = \"1\"\n"));
     }
     text.push_str(
@@ -622,7 +622,7 @@ fn garbage_and_oversized_specs_exit_two_without_panic() {
     let out = cairn(&["check", path.to_str().unwrap()]);
     let err = String::from_utf8_lossy(&out.stderr);
     assert_eq!(out.status.code(), Some(2), "{err}");
-    assert!(err.contains("1 to 9"), "{err}");
+    assert!(err.contains("1 to 24"), "{err}");
 }
 
 #[test]
@@ -924,11 +924,15 @@ fn recentring_brings_f32_positions_far_from_the_origin_back_onto_the_f64_run() {
     for name in ["f32 conventional", "f32 u-d", "f32 joseph"] {
         let v = variant(&on, name);
         let f = &v["figures"];
-        // Under 1 mm (half the spacing at 20 km) and a hundredth of a
-        // standard deviation, against metres and many deviations without.
+        // A few millimetres and a few hundredths of a standard deviation,
+        // against metres and many deviations without. What remains is the
+        // f32 rounding of each step's increment near the origin: the
+        // simulated odometry is exactly constant here, so that rounding has
+        // the same sign every step and adds up over the 12 000 steps
+        // (heading 0.9 rad is spaced 6e-8 apart, each step adds 5e-5 rad).
         let xy = num(&f["max_state_difference"][0]).max(num(&f["max_state_difference"][1]));
-        assert!(xy < 1e-3 && xy < off_xy / 1000.0, "{name}: {f}");
-        assert!(num(&f["max_state_difference_sigma"]) < 0.01, "{name}: {f}");
+        assert!(xy < 5e-3 && xy < off_xy / 100.0, "{name}: {f}");
+        assert!(num(&f["max_state_difference_sigma"]) < 0.05, "{name}: {f}");
         assert_eq!(v["verdict"]["passes"], true, "{name}");
         // The start re-centres and so does every 10 m of the ~48 m run;
         // the origin is whole metres and within 10 m and a step of the

@@ -10,7 +10,7 @@ use nalgebra::{DMatrix, SMatrix, SVector};
 use serde::Serialize;
 
 use super::sim::{RunData, Sensor, Setup, World};
-use crate::run::lane::recentre_offset;
+use crate::engine::lanes::recentre_offset;
 use crate::spec::Precision;
 
 /// Largest state dimension the dispatch covers.

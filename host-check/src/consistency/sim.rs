@@ -165,6 +165,11 @@ impl Setup {
             ));
         }
         let world = match &plan.model {
+            ModelPlan::User { .. } => {
+                return Err(ConsistencyError::Model(
+                    "a user's own model runs its trials through the library (cairn_host_check::scenario)".into(),
+                ));
+            }
             ModelPlan::Linear { f, q, .. } => World::Linear {
                 f: f.clone(),
                 q_root: root(q, "Q")?,
@@ -212,6 +217,11 @@ impl Setup {
                 ChannelKind::Linear(_) => Sensor::Linear,
                 ChannelKind::Position => Sensor::Position,
                 ChannelKind::Heading => Sensor::Heading,
+                ChannelKind::User => {
+                    return Err(ConsistencyError::Model(
+                        "a user's own channel runs through the library".into(),
+                    ));
+                }
             };
             let h = c.h(n);
             if h.shape() != (c.m, n) || c.r.shape() != (c.m, c.m) {

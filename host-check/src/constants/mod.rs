@@ -44,11 +44,16 @@ pub enum ConstantsError {
         /// The precision's name.
         precision: &'static str,
     },
+    /// A user's own model has no spec matrices to write.
+    UserModel,
 }
 
 impl fmt::Display for ConstantsError {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
         match self {
+            ConstantsError::UserModel => {
+                f.write_str("a user's own model has no spec matrices to write: its constants are in its own crate")
+            }
             ConstantsError::NotRepresentable { name, value } => {
                 write!(
                     f,
@@ -337,6 +342,7 @@ pub fn generate(plan: &Plan, precision: Precision) -> Result<Generated, Constant
     )?;
 
     match &plan.model {
+        ModelPlan::User { .. } => return Err(ConstantsError::UserModel),
         ModelPlan::Linear { f, q, discretised } => {
             let origin = if *discretised {
                 "discretised from the continuous model by Van Loan's method (1978)"
@@ -425,6 +431,7 @@ pub fn generate(plan: &Plan, precision: Precision) -> Result<Generated, Constant
                 "Measurement matrix H of the pose model's position fix (x, y)."
             }
             ChannelKind::Heading => "Measurement matrix H of the pose model's heading fix.",
+            ChannelKind::User => "Measurement matrix H of a user's own model.",
         };
         w.matrix(&format!("{base}_H"), &[what.into()], &c.h(n))?;
         w.matrix(

@@ -559,7 +559,7 @@ pub fn plan_probes(plan: &crate::spec::Plan) -> SpecProbes {
                 match c.kind {
                     ChannelKind::Position => add(format!("{pose}_position_update"), c.rate_hz),
                     ChannelKind::Heading => add(format!("{pose}_heading_update"), c.rate_hz),
-                    ChannelKind::Linear(_) => notes.push(format!(
+                    ChannelKind::Linear(_) | ChannelKind::User => notes.push(format!(
                         "channel {}: no probe for a linear channel on the pose model",
                         c.name
                     )),

@@ -71,6 +71,7 @@ impl Matrices {
         };
         let (f, q, pose_variances) = match &plan.model {
             ModelPlan::Linear { f, q, .. } => (Some(rows(f)), Some(rows(q)), None),
+            ModelPlan::User { .. } => (None, None, None),
             ModelPlan::Pose {
                 speed_var,
                 yaw_rate_var,

@@ -181,6 +181,7 @@ pub fn render(plan: &Plan, run: &RunResult) -> String {
         } => "continuous (Van Loan discretised)",
         ModelPlan::Linear { .. } => "discrete",
         ModelPlan::Pose { .. } => "planar pose (cairn-core)",
+        ModelPlan::User { description } => description.as_str(),
     };
     let _ = writeln!(o, "  spec     {}", plan.file);
     let _ = writeln!(o, "  model    {kind}; states {}", states.join(", "));
@@ -218,6 +219,11 @@ when |x| or |y| passes {d} m;\n           states are compared as origin + local 
             ChannelKind::Linear(_) => format!("{} components", c.m),
             ChannelKind::Position => "position fix".into(),
             ChannelKind::Heading => "heading fix".into(),
+            ChannelKind::User => format!(
+                "own model, {} component{}",
+                c.m,
+                if c.m == 1 { "" } else { "s" }
+            ),
         };
         let _ = writeln!(
             o,

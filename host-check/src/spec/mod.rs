@@ -94,6 +94,13 @@ pub enum ModelPlan {
         /// overwrites it).
         profile_csv: Option<PathBuf>,
     },
+    /// A user's own model, checked through the library
+    /// ([`crate::scenario::Scenario`]): the engine runs its code; the plan
+    /// only carries its description.
+    User {
+        /// What the model is, for reports.
+        description: String,
+    },
 }
 
 /// An odometry profile: true speed and yaw rate against time.
@@ -163,6 +170,8 @@ pub enum ChannelKind {
     Position,
     /// The pose model's heading fix.
     Heading,
+    /// A user's own measurement model.
+    User,
 }
 
 /// A measurement channel, ready to run.
@@ -207,6 +216,7 @@ impl ChannelPlan {
             ChannelKind::Linear(h) => h.clone(),
             ChannelKind::Position => DMatrix::from_fn(2, n, |i, j| f64::from(u8::from(i == j))),
             ChannelKind::Heading => DMatrix::from_fn(1, n, |_, j| f64::from(u8::from(j == 2))),
+            ChannelKind::User => DMatrix::zeros(self.m, n),
         }
     }
 }
@@ -232,6 +242,10 @@ pub struct Thresholds {
     /// covariance over the optimal one during its transient (`None`: the
     /// largest relative covariance error applies).
     pub max_transient_excess: Option<f64>,
+    /// Largest accepted mismatch of a model's Jacobian against central
+    /// differences, relative to max(1, |entry|) (`None`: the engine's
+    /// default, 1e-5).
+    pub max_jacobian_mismatch: Option<f64>,
 }
 
 impl Default for Thresholds {
@@ -244,6 +258,7 @@ impl Default for Thresholds {
             max_state_difference_sigma: 1.0,
             mission_seconds: None,
             max_transient_excess: None,
+            max_jacobian_mismatch: None,
         }
     }
 }

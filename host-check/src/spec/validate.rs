@@ -16,12 +16,11 @@ use super::{
 };
 use crate::numeric::vanloan;
 use crate::output::one_line;
-use crate::run::variants;
 
 /// Largest supported state dimension.
-pub const MAX_STATES: usize = 9;
+pub const MAX_STATES: usize = crate::run::MAX_STATES;
 /// Largest supported measurement dimension per channel.
-pub const MAX_COMPONENTS: usize = 3;
+pub const MAX_COMPONENTS: usize = crate::run::MAX_COMPONENTS;
 /// Largest horizon in steps (about 58 days at 200 Hz).
 const MAX_STEPS: f64 = 1e9;
 
@@ -409,7 +408,7 @@ pub(super) fn plan(loc: &Locator<'_>, raw: RawSpec, base: Option<&Path>) -> R<Pl
         if let Some(f) = &fl.form {
             flash.form = f.get_ref().clone();
         }
-        if variants::find(flash.precision, &flash.form).is_none() {
+        if crate::engine::Variant::find(flash.precision, &flash.form).is_none() {
             let span = fl.form.as_ref().map_or(0..0, Spanned::span);
             return Err(loc.error(
                 span,
@@ -418,7 +417,7 @@ pub(super) fn plan(loc: &Locator<'_>, raw: RawSpec, base: Option<&Path>) -> R<Pl
                     "no variant `{} {}`; known forms: {}",
                     flash.precision.name(),
                     flash.form,
-                    variants::form_names().join(", ")
+                    crate::engine::filter::form_names().join(", ")
                 ),
             ));
         }
@@ -607,6 +606,7 @@ fn channel(
         ChannelKind::Linear(h) => h.nrows(),
         ChannelKind::Position => 2,
         ChannelKind::Heading => 1,
+        ChannelKind::User => 0,
     };
     let given = [c.r.is_some(), c.r_diag.is_some(), c.noise.is_some()]
         .iter()
@@ -633,6 +633,7 @@ fn channel(
             let quantity = match &kind {
                 ChannelKind::Position => Some("m".to_string()),
                 ChannelKind::Heading => Some("rad".to_string()),
+                ChannelKind::User => None,
                 ChannelKind::Linear(h) => {
                     selected_state(h, i, false).and_then(|j| parsed_unit(&states[j].unit))
                 }

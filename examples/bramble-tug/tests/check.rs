@@ -1,0 +1,189 @@
+//! The Bramble tug's own models checked by cairn, as a firmware project's
+//! host tests would: every precision and covariance form against the
+//! double-double reference, on a simulated shift and on the recorded log.
+
+use bramble_tug::{HeadingFix, ImuSample, RadioFix, STATES, TugMotion, WheelSpeed};
+use cairn_core::nalgebra::{SMatrix, SVector};
+use cairn_core::{ProcessModel, Scalar};
+use cairn_host_check::engine::{Sensor, System};
+use cairn_host_check::scenario::Scenario;
+use cairn_host_check::spec::Mode;
+
+/// The tug's noise figures (invented; the same as the recorded log's).
+const GYRO_ARW: f64 = 2.9e-4;
+const ACCEL_VRW: f64 = 4.0e-3;
+const GYRO_BIAS_RW: f64 = 2.0e-5;
+
+struct Tug;
+
+impl System<STATES> for Tug {
+    type Process<T: Scalar> = TugMotion<T>;
+    fn process<T: Scalar>(&self) -> TugMotion<T> {
+        TugMotion::new(T::of(GYRO_ARW), T::of(ACCEL_VRW), T::of(GYRO_BIAS_RW))
+    }
+    fn input_len(&self) -> usize {
+        2
+    }
+    fn input<T: Scalar>(&self, v: &[f64]) -> ImuSample<T> {
+        ImuSample {
+            gyro: T::of(v[0]),
+            accel: T::of(v[1]),
+        }
+    }
+    fn angle_states(&self) -> &[usize] {
+        &[bramble_tug::HEADING]
+    }
+    fn position_states(&self) -> &[usize] {
+        &[bramble_tug::X, bramble_tug::Y]
+    }
+}
+
+struct Wheel;
+impl Sensor<STATES, 1> for Wheel {
+    type Model<T: Scalar> = WheelSpeed<T>;
+    fn model<T: Scalar>(&self) -> WheelSpeed<T> {
+        WheelSpeed::new(T::of(0.03))
+    }
+}
+
+struct Radio;
+impl Sensor<STATES, 2> for Radio {
+    type Model<T: Scalar> = RadioFix<T>;
+    fn model<T: Scalar>(&self) -> RadioFix<T> {
+        RadioFix::new(T::of(0.10))
+    }
+    fn to_frame(&self, z: &mut [f64], origin: &SVector<f64, STATES>) {
+        z[0] -= origin[0];
+        z[1] -= origin[1];
+    }
+}
+
+struct Heading;
+impl Sensor<STATES, 1> for Heading {
+    type Model<T: Scalar> = HeadingFix<T>;
+    fn model<T: Scalar>(&self) -> HeadingFix<T> {
+        HeadingFix::new(T::of(0.02))
+    }
+}
+
+/// A shift of driving: gentle turns and speed changes (invented).
+fn shift(t: f64, out: &mut [f64]) {
+    out[0] = 0.15 * (0.05 * t).sin();
+    out[1] = 0.2 * (0.02 * t).cos();
+}
+
+fn scenario<S: System<STATES>>(system: S) -> Scenario<'static, STATES, S> {
+    Scenario::new(
+        "Bramble tug, simulated shift",
+        system,
+        [6.0, 4.0, std::f64::consts::FRAC_PI_2, 0.0, 0.0],
+        [0.01, 0.01, 1e-4, 1e-4, 1e-5],
+    )
+    .states(&[
+        ("x", "m"),
+        ("y", "m"),
+        ("heading", "rad"),
+        ("speed", "m/s"),
+        ("gyro bias", "rad/s"),
+    ])
+    .describe("Bramble tug (bramble-tug crate)")
+    .step_hz(100.0)
+    .horizon_s(300.0)
+    .inputs(shift)
+    .channel("wheel", Wheel, 10.0)
+    .channel("radio", Radio, 1.0)
+    .dropout(120.0, 180.0)
+    .channel("heading", Heading, 0.2)
+}
+
+#[test]
+fn the_tug_filter_passes_on_a_simulated_shift() {
+    let report = scenario(Tug).check().expect("a consistent scenario");
+    let text = report.text();
+    assert!(report.passes(), "{text}");
+    assert_eq!(report.exit_code(), 0);
+    // The f64 forms track the double-double reference to rounding level
+    // (common practice: some 1e-12 relative over 3e4 steps).
+    let f64j = report.variant("f64 joseph").expect("f64 joseph ran");
+    assert!(f64j.figures.max_relative_error < 1e-9, "{text}");
+    // The tug's own Jacobians match central differences of its own f and h.
+    let jac = report.run.jacobians.as_ref().expect("Jacobians compared");
+    assert!(jac.passes, "{text}");
+    assert!(jac.models.iter().all(|m| m.points > 0), "{text}");
+    assert!(report.json().expect("json").contains("\"jacobians\""));
+    assert!(report.svg().starts_with("<svg"));
+}
+
+#[test]
+fn the_tug_filter_runs_end_to_end_on_the_recorded_log() {
+    let log = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("data/bramble-shift.csv");
+    let report = scenario(Tug)
+        .mode(Mode::EndToEnd)
+        .recentre_m(10.0)
+        .log(&log)
+        .check()
+        .expect("the recorded log is well formed");
+    let text = report.text();
+    // 59 778 input rows: the first sets the start, each other is a step.
+    assert_eq!(report.run.steps, 59_777, "{text}");
+    let f64j = report.variant("f64 joseph").expect("f64 joseph ran");
+    // Against the log's truth rows (invented data, simulated independently
+    // by scripts/make-tug-log.py): the f64 filter's NEES stays finite and
+    // was computed at the truth rows.
+    assert!(f64j.max_nees.is_some_and(f64::is_finite), "{text}");
+    assert!(report.passes(), "{text}");
+}
+
+/// The tug's motion with one Jacobian entry's sign flipped, as a typing
+/// slip would: d x / d heading = +v sin(heading) dt instead of -.
+struct SlippedSign<T>(TugMotion<T>);
+
+impl<T: Scalar> ProcessModel<T, STATES> for SlippedSign<T> {
+    type Input = ImuSample<T>;
+    fn transition(&self, x: &SVector<T, STATES>, u: &ImuSample<T>, dt: T) -> SVector<T, STATES> {
+        self.0.transition(x, u, dt)
+    }
+    fn jacobian(&self, x: &SVector<T, STATES>, u: &ImuSample<T>, dt: T) -> SMatrix<T, STATES, STATES> {
+        let mut f = self.0.jacobian(x, u, dt);
+        f[(0, 2)] = -f[(0, 2)];
+        f
+    }
+    fn noise(&self, x: &SVector<T, STATES>, u: &ImuSample<T>, dt: T) -> SMatrix<T, STATES, STATES> {
+        self.0.noise(x, u, dt)
+    }
+    fn normalize(&self, x: &mut SVector<T, STATES>) {
+        self.0.normalize(x);
+    }
+}
+
+struct BrokenTug;
+
+impl System<STATES> for BrokenTug {
+    type Process<T: Scalar> = SlippedSign<T>;
+    fn process<T: Scalar>(&self) -> SlippedSign<T> {
+        SlippedSign(Tug.process::<T>())
+    }
+    fn input_len(&self) -> usize {
+        2
+    }
+    fn input<T: Scalar>(&self, v: &[f64]) -> ImuSample<T> {
+        Tug.input::<T>(v)
+    }
+    fn angle_states(&self) -> &[usize] {
+        &[bramble_tug::HEADING]
+    }
+}
+
+#[test]
+fn a_jacobian_with_a_sign_error_is_caught_with_its_entry() {
+    let report = scenario(BrokenTug).horizon_s(30.0).check().expect("runs");
+    assert!(!report.passes());
+    assert_eq!(report.exit_code(), 1);
+    let why = report
+        .variant("f32 joseph")
+        .and_then(|v| v.why.clone())
+        .unwrap_or_default();
+    // The one-line reason names the entry: d x / d heading (central
+    // differences of the model's own transition: common practice).
+    assert!(why.contains("d x / d heading"), "{why}");
+}

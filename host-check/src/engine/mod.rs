@@ -1,0 +1,40 @@
+//! The check engine: runs a model's own code, every precision and
+//! covariance form of cairn-core, against the double-double reference, on a
+//! simulated truth or a recorded log, and gathers the figures the verdicts
+//! and reports use. Nothing here knows whose models it runs: the spec's
+//! linear and pose models and a user's own implement the same traits.
+//!
+//! | module     | job                                                     |
+//! |------------|---------------------------------------------------------|
+//! | [`system`] | the traits a user's models implement ([`System`], [`Sensor`]) |
+//! | [`filter`] | the catalogue of variants and one running core filter each |
+//! | [`world`]  | the steps: a seeded truth, or a log's rows              |
+//! | [`log`]    | the recorded-log reader (docs/log-format.md)            |
+//! | [`stream`] | the reference stage, block by block                     |
+//! | [`lanes`]  | the variants' stage                                     |
+//! | [`jacobian`] | each model's Jacobian against central differences     |
+//! | [`check`]  | the stages of one check, in order                       |
+//! | [`result`] | what a check found                                      |
+//!
+//! Gate decisions: the reference decides each gated measurement on its own
+//! (double-double) innovation covariance, and every variant applies exactly
+//! what the reference applies; each variant's own gate decision is tried on
+//! a copy and counted when it differs, so covariances are always compared
+//! on the same decisions.
+
+pub mod check;
+pub mod filter;
+pub mod jacobian;
+pub mod lanes;
+pub mod log;
+pub mod result;
+pub mod stream;
+pub mod system;
+pub mod world;
+
+pub use check::{Steady, check, f32_spacing};
+pub use filter::{Filter, Form, VARIANTS, Variant};
+pub use jacobian::JacobianReport;
+pub use result::RunResult;
+pub use system::{Channel, Sensor, SensorChannel, System};
+pub use world::{InputProfile, Source};

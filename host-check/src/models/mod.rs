@@ -1,0 +1,9 @@
+//! The spec's own models as engine models: a linear model (continuous
+//! models arrive here already discretised) and the core's planar pose
+//! model, each with its measurement channels.
+
+pub mod linear;
+pub mod pose;
+
+pub use linear::{LinearMeasurement, LinearProcess, LinearSensor, LinearSystem};
+pub use pose::{HeadingSensor, PoseSystem, PositionSensor};
