@@ -258,7 +258,10 @@ impl<'a, const N: usize, S: System<N>> Scenario<'a, N, S> {
         let p = &self.plan;
         let bad = |m: String| Err(ScenarioError(m));
         if !(p.step_hz.is_finite() && p.step_hz > 0.0) {
-            return bad(format!("the step rate {} Hz is not a positive number", p.step_hz));
+            return bad(format!(
+                "the step rate {} Hz is not a positive number",
+                p.step_hz
+            ));
         }
         if p.x0.iter().chain(p.p0.iter()).any(|v| !v.is_finite()) {
             return bad("x0 or P0 holds NaN or infinity".into());
@@ -268,15 +271,27 @@ impl<'a, const N: usize, S: System<N>> Scenario<'a, N, S> {
         }
         for c in &p.channels {
             if !(c.rate_hz.is_finite() && c.rate_hz > 0.0) {
-                return bad(format!("channel `{}`: the rate {} Hz is not a positive number", c.name, c.rate_hz));
+                return bad(format!(
+                    "channel `{}`: the rate {} Hz is not a positive number",
+                    c.name, c.rate_hz
+                ));
             }
             if let Some(g) = c.gate
                 && !(g.is_finite() && g > 0.0)
             {
-                return bad(format!("channel `{}`: the gate {g} is not a positive number", c.name));
+                return bad(format!(
+                    "channel `{}`: the gate {g} is not a positive number",
+                    c.name
+                ));
             }
-            if c.dropouts.iter().any(|&(a, b)| !(a.is_finite() && b.is_finite() && a < b)) {
-                return bad(format!("channel `{}`: a dropout window is empty or not finite", c.name));
+            if c.dropouts
+                .iter()
+                .any(|&(a, b)| !(a.is_finite() && b.is_finite() && a < b))
+            {
+                return bad(format!(
+                    "channel `{}`: a dropout window is empty or not finite",
+                    c.name
+                ));
             }
             if p.channels.iter().filter(|d| d.name == c.name).count() > 1 {
                 return bad(format!("two channels are named `{}`", c.name));
@@ -300,7 +315,11 @@ impl<'a, const N: usize, S: System<N>> Scenario<'a, N, S> {
     /// the function), or a reference that refuses the schedule.
     pub fn check(&self) -> Result<Report, ScenarioError> {
         self.validate()?;
-        let refs: Vec<&dyn Channel<N>> = self.channels.iter().map(|c| c.as_ref() as &dyn Channel<N>).collect();
+        let refs: Vec<&dyn Channel<N>> = self
+            .channels
+            .iter()
+            .map(|c| c.as_ref() as &dyn Channel<N>)
+            .collect();
         let source = match &self.log {
             Some(path) => Source::Log { path: path.clone() },
             None => Source::Simulated {

@@ -143,7 +143,12 @@ impl<T: Scalar> ProcessModel<T, STATES> for SlippedSign<T> {
     fn transition(&self, x: &SVector<T, STATES>, u: &ImuSample<T>, dt: T) -> SVector<T, STATES> {
         self.0.transition(x, u, dt)
     }
-    fn jacobian(&self, x: &SVector<T, STATES>, u: &ImuSample<T>, dt: T) -> SMatrix<T, STATES, STATES> {
+    fn jacobian(
+        &self,
+        x: &SVector<T, STATES>,
+        u: &ImuSample<T>,
+        dt: T,
+    ) -> SMatrix<T, STATES, STATES> {
         let mut f = self.0.jacobian(x, u, dt);
         f[(0, 2)] = -f[(0, 2)];
         f

@@ -185,7 +185,7 @@ impl JacobianCheck {
         input: &[f64],
         dt: f64,
     ) {
-        if (k - 1) % self.every != 0 {
+        if !(k - 1).is_multiple_of(self.every) {
             return;
         }
         self.due.iter_mut().for_each(|d| *d = true);

@@ -314,7 +314,7 @@ impl<'a, const N: usize, S: System<N>> ReferenceStage<'a, N, S> {
 
         let p = self.reference.covariance();
         let p_norm = p.norm();
-        let eig_now = k % self.eig_every == 0 || k == self.steps || self.steps <= 5_000;
+        let eig_now = k.is_multiple_of(self.eig_every) || k == self.steps || self.steps <= 5_000;
         if eig_now {
             // In double-double, from the reference's own covariance.
             let m = self.reference.smallest_eigenvalue();
