@@ -452,6 +452,7 @@ when |x| or |y| passes {d} m;\n           states are compared as origin + local 
             }
         }
     }
+    engine_figures(&mut o, plan, run);
     let _ = writeln!(
         o,
         "\nGain errors and rounding of S are separate: the Joseph form keeps a gain error out of P to \
@@ -501,4 +502,74 @@ first order, but no covariance form recovers information lost when S = HPH' + R 
     }
     let _ = writeln!(o, "\n{NOT_A_SAFETY_CASE}");
     o
+}
+
+/// The Jacobian comparison, gate decisions and how far the states went.
+fn engine_figures(o: &mut String, plan: &Plan, run: &RunResult) {
+    if let Some(j) = &run.jacobians {
+        let _ = writeln!(
+            o,
+            "\nJacobians against central differences of the model's own f and h (f64, along the reference; limit {:.0e} of max(1, |entry|))",
+            j.tolerance
+        );
+        for m in &j.models {
+            let worst = m.worst.as_ref().map_or("-".to_string(), |w| {
+                format!(
+                    "largest mismatch {:.1e} at row {}, column {} (step {})",
+                    w.mismatch, w.row, w.column, w.step
+                )
+            });
+            let _ = writeln!(
+                o,
+                "  {:<20} {} points, {worst}{}",
+                crate::output::one_line(&m.model),
+                m.points,
+                if m.worst
+                    .as_ref()
+                    .is_some_and(|w| w.mismatch > j.tolerance || w.mismatch.is_nan())
+                {
+                    "  FAIL"
+                } else {
+                    ""
+                }
+            );
+        }
+    }
+    if run.reference.gated > 0 || run.variants.iter().any(|v| v.gate_differences > 0) {
+        let _ = writeln!(
+            o,
+            "\nGate decisions: the reference gated {} measurement(s); every variant applies what the reference applies",
+            run.reference.gated
+        );
+        for v in run.variants.iter().filter(|v| v.gate_differences > 0) {
+            let _ = writeln!(
+                o,
+                "  {:<16} its own gate decided otherwise {} time(s), first at step {}",
+                v.name,
+                v.gate_differences,
+                v.first_gate_difference.unwrap_or(0)
+            );
+        }
+    }
+    let far: Vec<String> = run
+        .reach
+        .iter()
+        .zip(&plan.states)
+        .map(|(r, s)| {
+            let unit = if s.unit == "1" {
+                String::new()
+            } else {
+                format!(" {}", crate::output::one_line(&s.unit))
+            };
+            format!(
+                "{} {:.4e}{unit} (f32 spacing {:.1e})",
+                crate::output::one_line(&r.state),
+                r.max_abs,
+                r.f32_spacing
+            )
+        })
+        .collect();
+    if !far.is_empty() {
+        let _ = writeln!(o, "\nLargest |x| reached: {}", far.join("; "));
+    }
 }
