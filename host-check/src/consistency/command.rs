@@ -5,7 +5,7 @@ use std::path::PathBuf;
 
 use clap::Args;
 
-use super::{Form, Options, Variant, Verdict};
+use super::{Form, Options, Variant, Verdict, all_variants};
 use crate::cli::{EXIT_BAD_INPUT, EXIT_FAIL, EXIT_PASS, Failure};
 use crate::spec::{self, Plan, Precision};
 
@@ -73,10 +73,7 @@ fn parse_variant(text: &str) -> Option<Variant> {
         "f64" => Precision::F64,
         _ => return None,
     };
-    Some(Variant {
-        precision,
-        form: Form::parse(form)?,
-    })
+    Some(Variant::of(precision, Form::parse(form)?))
 }
 
 /// Runs `cairn trials`; returns the exit code.
@@ -111,7 +108,7 @@ pub fn execute(a: &TrialsArgs) -> Result<u8, Failure> {
     }
     let chosen = !variants.is_empty();
     if !chosen {
-        variants = Variant::all();
+        variants = all_variants();
     }
     let steps = match a.seconds {
         Some(s) if !(s.is_finite() && s > 0.0) => {
@@ -176,17 +173,11 @@ mod tests {
     fn variant_names_parse() {
         assert_eq!(
             parse_variant("f32-u-d"),
-            Some(Variant {
-                precision: Precision::F32,
-                form: Form::Ud
-            })
+            Some(Variant::of(Precision::F32, Form::Ud))
         );
         assert_eq!(
             parse_variant("F64-Joseph"),
-            Some(Variant {
-                precision: Precision::F64,
-                form: Form::Joseph
-            })
+            Some(Variant::of(Precision::F64, Form::Joseph))
         );
         assert_eq!(parse_variant("f16-joseph"), None);
         assert_eq!(parse_variant("f32-square-root"), None);

@@ -8,9 +8,7 @@
 
 pub mod chi2;
 pub mod command;
-pub mod lanes;
 pub mod report;
-pub mod sim;
 
 use std::fmt;
 use std::io::IsTerminal;
@@ -18,10 +16,14 @@ use std::io::IsTerminal;
 use indicatif::{ProgressBar, ProgressStyle};
 use rayon::prelude::*;
 
+pub use crate::engine::{Form, Variant};
 pub use chi2::{Interval, average_interval};
-pub use lanes::{Form, Variant};
 pub use report::{Report, Summary, VariantReport, Verdict};
 
+use crate::engine::check::Steady;
+use crate::engine::trials::{Trace, run_trial};
+use crate::engine::{Channel, InputProfile, System, VARIANTS};
+use crate::models::{Visit, with_models};
 use crate::spec::Plan;
 
 /// Steps per run when the options do not say (the spec's horizon if shorter).
@@ -86,7 +88,7 @@ impl Default for Options {
             steps: None,
             filter_q_scale: 1.0,
             confidence: 0.95,
-            variants: Variant::all(),
+            variants: all_variants(),
             progress: false,
         }
     }
@@ -129,18 +131,103 @@ pub fn run(plan: &Plan, options: &Options) -> Result<Report, ConsistencyError> {
                 "{steps} steps per run is too many (at most {MAX_STEPS}; consistency shows long before)"
             ))
         })?;
-    let setup = sim::Setup::new(plan, steps, options.filter_q_scale)?;
+    if !(options.filter_q_scale.is_finite() && options.filter_q_scale > 0.0) {
+        return Err(ConsistencyError::Option(format!(
+            "the filter's Q scale must be a positive number, got {}",
+            options.filter_q_scale
+        )));
+    }
+    if plan.x0.len() != plan.n() || plan.p0.shape() != (plan.n(), plan.n()) {
+        return Err(ConsistencyError::Model(
+            "x0 or P0 does not match the states".into(),
+        ));
+    }
+    if plan.p0.clone().cholesky().is_none() {
+        return Err(ConsistencyError::Model(
+            "P0 is not positive definite: the truth cannot be drawn from it".into(),
+        ));
+    }
     let channels: Vec<(String, usize)> = plan
         .channels
         .iter()
         .map(|c| (c.name.clone(), c.m))
         .collect();
+    let acc = with_models(
+        plan,
+        Study {
+            plan,
+            options,
+            steps,
+            channels: &channels,
+        },
+    )
+    .map_err(|e| ConsistencyError::Model(e.0))??;
+    let variants = acc
+        .into_iter()
+        .map(|a| a.finish(plan.n(), &channels, options.runs, options.confidence))
+        .collect::<Result<Vec<_>, _>>()?;
+    Ok(Report {
+        title: plan.title.clone(),
+        file: plan.file.clone(),
+        runs: options.runs,
+        steps,
+        spec_steps: plan.steps,
+        filter_q_scale: options.filter_q_scale,
+        confidence: options.confidence,
+        seed: plan.seed,
+        run_seconds: steps as f64 / plan.step_hz,
+        recentre_m: plan.recentre_m.filter(|_| !plan.is_linear()),
+        variants,
+    })
+}
+
+struct Study<'a> {
+    plan: &'a Plan,
+    options: &'a Options,
+    steps: usize,
+    channels: &'a [(String, usize)],
+}
+
+impl Visit for Study<'_> {
+    type Output = Result<Vec<report::Accumulator>, ConsistencyError>;
+
+    fn visit<const N: usize, S: System<N>>(
+        self,
+        system: &S,
+        channels: &[&dyn Channel<N>],
+        inputs: &dyn InputProfile,
+        _steady: Steady,
+    ) -> Self::Output {
+        study(
+            self.plan,
+            self.options,
+            self.steps,
+            self.channels,
+            system,
+            channels,
+            inputs,
+        )
+    }
+}
+
+/// The runs, in batches: each batch in parallel, then summed in run order.
+/// A run in flight holds every variant's trace; the batch keeps that under
+/// [`MEMORY_BUDGET`].
+#[allow(clippy::too_many_arguments)]
+pub fn study<const N: usize, S: System<N>>(
+    plan: &Plan,
+    options: &Options,
+    steps: usize,
+    names: &[(String, usize)],
+    system: &S,
+    channels: &[&dyn Channel<N>],
+    inputs: &dyn InputProfile,
+) -> Result<Vec<report::Accumulator>, ConsistencyError> {
     let mut acc: Vec<report::Accumulator> = options
         .variants
         .iter()
-        .map(|&v| report::Accumulator::new(v, channels.len()))
+        .map(|&v| report::Accumulator::new(v, names.len()))
         .collect();
-
     let bar = if options.progress && std::io::stderr().is_terminal() {
         let bar = ProgressBar::new(options.runs as u64);
         if let Ok(style) =
@@ -152,60 +239,43 @@ pub fn run(plan: &Plan, options: &Options) -> Result<Report, ConsistencyError> {
     } else {
         ProgressBar::hidden()
     };
-
-    // Runs go in batches: each batch in parallel, then summed in run order.
-    // A run in flight holds its truth, measurements and every variant's
-    // trace; the batch keeps that under MEMORY_BUDGET.
-    let per_step = 8
-        * (setup.n + options.variants.len() * (1 + plan.channels.len()) + 2 * MAX_COMPONENTS_TOTAL);
+    let per_step = 8 * (N + options.variants.len() * (1 + names.len()) + 2 * MAX_COMPONENTS_TOTAL);
     let per_run = (steps * per_step).max(1);
     let batch = (MEMORY_BUDGET / per_run).clamp(1, rayon::current_num_threads() * 4);
     let mut start = 0;
     while start < options.runs {
         let end = (start + batch).min(options.runs);
-        let traces: Vec<Vec<Option<lanes::Trace>>> = (start..end)
+        let traces: Vec<Result<Vec<Trace>, String>> = (start..end)
             .into_par_iter()
             .map(|i| {
-                let data = setup.simulate(i);
-                let t = options
-                    .variants
-                    .iter()
-                    .map(|&v| lanes::run(v, &setup, &data))
-                    .collect();
+                let t = run_trial(
+                    plan,
+                    system,
+                    channels,
+                    inputs,
+                    &options.variants,
+                    steps,
+                    options.filter_q_scale,
+                    i,
+                );
                 bar.inc(1);
                 t
             })
             .collect();
-        for (offset, run_traces) in traces.iter().enumerate() {
-            for (a, t) in acc.iter_mut().zip(run_traces) {
-                let t = t.as_ref().ok_or_else(|| {
-                    ConsistencyError::Model(format!(
-                        "{} states is beyond the supported sizes",
-                        setup.n
-                    ))
-                })?;
+        for (offset, run_traces) in traces.into_iter().enumerate() {
+            let run_traces = run_traces.map_err(ConsistencyError::Model)?;
+            for (a, t) in acc.iter_mut().zip(&run_traces) {
                 a.add(start + offset, t);
             }
         }
         start = end;
     }
     bar.finish_and_clear();
+    Ok(acc)
+}
 
-    let variants = acc
-        .into_iter()
-        .map(|a| a.finish(setup.n, &channels, options.runs, options.confidence))
-        .collect::<Result<Vec<_>, _>>()?;
-    Ok(Report {
-        title: plan.title.clone(),
-        file: plan.file.clone(),
-        runs: options.runs,
-        steps,
-        spec_steps: plan.steps,
-        filter_q_scale: options.filter_q_scale,
-        confidence: options.confidence,
-        seed: plan.seed,
-        run_seconds: steps as f64 * setup.dt,
-        recentre_m: setup.recentre_m,
-        variants,
-    })
+/// Every variant, in the catalogue's order.
+#[must_use]
+pub fn all_variants() -> Vec<Variant> {
+    VARIANTS.to_vec()
 }

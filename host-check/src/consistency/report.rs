@@ -7,7 +7,8 @@ use serde::Serialize;
 
 use super::ConsistencyError;
 use super::chi2::{self, Interval, Place};
-use super::lanes::{Trace, Variant};
+use crate::engine::Variant;
+use crate::engine::trials::Trace;
 
 /// Fraction of points that must fall inside the 95% interval for a
 /// statistic to be called consistent. With a consistent filter about 95%
@@ -342,7 +343,7 @@ impl Accumulator {
             )
         };
         Ok(VariantReport {
-            label: self.variant.label(),
+            label: self.variant.name(),
             variant: self.variant,
             failed_runs: self.failed_runs,
             first_failure: self.first_failure,

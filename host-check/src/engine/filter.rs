@@ -2,8 +2,7 @@
 //! filter of cairn-core's own code for each, behind a closed enum.
 
 use cairn_core::{
-    Conventional, Estimator, FilterError, Joseph, Kalman, Ldl, MeasurementModel, ProcessModel,
-    Scalar, UdKalman,
+    Conventional, Estimator, FilterError, Joseph, Kalman, Ldl, MeasurementModel, Scalar, UdKalman,
 };
 use nalgebra::{DMatrix, SMatrix, SVector};
 use serde::Serialize;
@@ -37,9 +36,12 @@ impl Form {
     /// The form with this name.
     #[must_use]
     pub fn parse(name: &str) -> Option<Form> {
-        [Form::Conventional, Form::Ud, Form::Joseph]
-            .into_iter()
-            .find(|f| f.name() == name)
+        match name.to_ascii_lowercase().as_str() {
+            "conventional" => Some(Form::Conventional),
+            "u-d" | "ud" => Some(Form::Ud),
+            "joseph" => Some(Form::Joseph),
+            _ => None,
+        }
     }
 }
 
@@ -60,6 +62,20 @@ impl Variant {
     #[must_use]
     pub fn name(&self) -> String {
         format!("{} {}", self.precision.name(), self.form.name())
+    }
+
+    /// The catalogued variant of this precision and form.
+    #[must_use]
+    pub fn of(precision: Precision, form: Form) -> Variant {
+        VARIANTS
+            .iter()
+            .copied()
+            .find(|v| v.precision == precision && v.form == form)
+            .unwrap_or(Variant {
+                precision,
+                form,
+                cost_rank: 0,
+            })
     }
 
     /// The variant with this precision and form name.
@@ -179,6 +195,9 @@ pub struct LaneUpdate {
     /// The variant's own gate decision (`true`: it would apply), when the
     /// channel has a gate.
     pub own_decision: Option<bool>,
+    /// The normalised innovation squared in the variant's precision (NaN
+    /// when neither tried nor applied).
+    pub nis: f64,
 }
 
 pub(crate) fn to_s<T: Scalar, const R: usize, const C: usize>(
@@ -279,8 +298,8 @@ impl<const N: usize> Filter<N> {
         each!(self, e, T => e.shift_origin_mut(&offset.map(T::of)))
     }
 
-    /// The NEES (x - truth)' P^-1 (x - truth) in f64, with `angles` wrapped,
-    /// or `None` when P cannot be factored.
+    /// The NEES (x + origin - truth)' P^-1 (x + origin - truth) in f64,
+    /// with `angles` wrapped, or `None` when P cannot be factored.
     #[must_use]
     pub fn nees(
         &self,
@@ -292,12 +311,8 @@ impl<const N: usize> Filter<N> {
         for &i in angles {
             e[i] = cairn_core::wrap_angle(e[i]);
         }
-        let p = self.covariance();
-        let dm = DMatrix::from_fn(N, N, |i, j| p[(i, j)]);
-        let c = dm.cholesky()?;
-        let ev = nalgebra::DVector::from_fn(N, |i, _| e[i]);
-        let y = c.l().solve_lower_triangular(&ev)?;
-        Some(y.norm_squared())
+        let c = self.covariance().cholesky()?;
+        Some(e.dot(&c.solve(&e)))
     }
 }
 
@@ -360,15 +375,20 @@ fn update_typed<
                 T::of(acc)
             });
             let (g, pivot_ratio) = gain(&p, &hs, &rs);
+            let mut nis = f64::NAN;
             let own_decision = match gate_t {
                 Some(_) => {
                     let mut trial = *e;
-                    Some(trial.update(&z, &hs, &rs, gate_t)?.is_applied())
+                    let o = trial.update(&z, &hs, &rs, gate_t)?;
+                    nis = o.nis().to_f64();
+                    Some(o.is_applied())
                 }
                 None => None,
             };
             let applied = if apply {
-                e.update(&z, &hs, &rs, None)?.is_applied()
+                let o = e.update(&z, &hs, &rs, None)?;
+                nis = o.nis().to_f64();
+                o.is_applied()
             } else {
                 false
             };
@@ -377,6 +397,7 @@ fn update_typed<
                 pivot_ratio,
                 applied,
                 own_decision,
+                nis,
             })
         }
         UpdateInput::Own { z } => {
@@ -385,15 +406,20 @@ fn update_typed<
             let hs = model.jacobian(e.state());
             let rs = model.noise(e.state());
             let (g, pivot_ratio) = gain(&p, &hs, &rs);
+            let mut nis = f64::NAN;
             let own_decision = match gate_t {
                 Some(_) => {
                     let mut trial = *e;
-                    Some(trial.update_with(&model, &zs, gate_t)?.is_applied())
+                    let o = trial.update_with(&model, &zs, gate_t)?;
+                    nis = o.nis().to_f64();
+                    Some(o.is_applied())
                 }
                 None => None,
             };
             let applied = if apply {
-                e.update_with(&model, &zs, None)?.is_applied()
+                let o = e.update_with(&model, &zs, None)?;
+                nis = o.nis().to_f64();
+                o.is_applied()
             } else {
                 false
             };
@@ -402,6 +428,7 @@ fn update_typed<
                 pivot_ratio,
                 applied,
                 own_decision,
+                nis,
             })
         }
     }
@@ -417,7 +444,3 @@ pub(crate) fn update_channel<const N: usize, const M: usize, S: Sensor<N, M>>(
 ) -> Result<LaneUpdate, FilterError> {
     each!(filter, e, T => update_typed::<T, _, S, N, M>(sensor, e, input, apply, gate))
 }
-
-/// `ProcessModel` is needed in scope for the macro bodies above.
-#[allow(dead_code)]
-fn _uses<T: Scalar, P: ProcessModel<T, 1>, Mm: MeasurementModel<T, 1, 1>>() {}

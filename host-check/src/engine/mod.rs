@@ -14,6 +14,7 @@
 //! | [`lanes`]  | the variants' stage                                     |
 //! | [`jacobian`] | each model's Jacobian against central differences     |
 //! | [`check`]  | the stages of one check, in order                       |
+//! | [`trials`] | Monte Carlo NEES/NIS runs on the same world             |
 //! | [`result`] | what a check found                                      |
 //!
 //! Gate decisions: the reference decides each gated measurement on its own
@@ -30,6 +31,7 @@ pub mod log;
 pub mod result;
 pub mod stream;
 pub mod system;
+pub mod trials;
 pub mod world;
 
 pub use check::{Steady, check, f32_spacing};

@@ -5,6 +5,7 @@ use cairn_core::{MeasurementModel, ProcessModel, Scalar};
 use nalgebra::{DMatrix, SMatrix, SVector};
 
 use crate::engine::{Sensor, System};
+use crate::spec::Plan;
 
 /// F and Q in the filter's scalar.
 #[derive(Debug, Clone, Copy)]
@@ -122,4 +123,59 @@ impl<const N: usize, const M: usize> Sensor<N, M> for LinearSensor<N, M> {
             r: self.r.map(T::of),
         }
     }
+}
+
+/// The LTI model between updates: (F^m, H stacked, sum F^i Q F^i', R
+/// block diagonal, m steps per update).
+pub type Lifted = (DMatrix<f64>, DMatrix<f64>, DMatrix<f64>, DMatrix<f64>, u64);
+
+/// The lifted LTI model between updates, when the spec has one: a linear
+/// model whose channels all update together every m steps without dropouts.
+pub fn steady_setup(
+    plan: &Plan,
+    f: &DMatrix<f64>,
+    q: &DMatrix<f64>,
+) -> (Option<Lifted>, Option<String>) {
+    if plan.channels.is_empty() {
+        return (None, Some("no steady state without measurements".into()));
+    }
+    let ratio = plan.step_hz / plan.channels[0].rate_hz;
+    let every = ratio.round();
+    if !(1.0..=1e5).contains(&every) {
+        return (
+            None,
+            Some("no steady state: more than 100 000 steps between updates".into()),
+        );
+    }
+    if (ratio - every).abs() > 1e-9 * ratio {
+        return (
+            None,
+            Some("no steady state: the update rate does not divide the step rate".into()),
+        );
+    }
+    if plan.channels.iter().any(|c| {
+        (c.rate_hz - plan.channels[0].rate_hz).abs() > 1e-12 * c.rate_hz || !c.dropouts.is_empty()
+    }) {
+        return (
+            None,
+            Some("no steady state: channels differ in rate or have dropouts".into()),
+        );
+    }
+    let n = plan.n();
+    let mut fl = DMatrix::identity(n, n);
+    let mut ql = DMatrix::zeros(n, n);
+    for _ in 0..every as u64 {
+        ql = f * &ql * f.transpose() + q;
+        fl = f * fl;
+    }
+    let m: usize = plan.channels.iter().map(|c| c.m).sum();
+    let mut h = DMatrix::zeros(m, n);
+    let mut r = DMatrix::zeros(m, m);
+    let mut row = 0;
+    for c in &plan.channels {
+        h.view_mut((row, 0), (c.m, n)).copy_from(&c.h(n));
+        r.view_mut((row, row), (c.m, c.m)).copy_from(&c.r);
+        row += c.m;
+    }
+    (Some((fl, h, ql, r, every as u64)), None)
 }
