@@ -346,6 +346,30 @@ impl<'a, const N: usize, S: System<N>> Scenario<'a, N, S> {
     }
 }
 
+impl<const N: usize, S: System<N>> Scenario<'_, N, S> {
+    /// Monte Carlo consistency trials of the models: each variant runs its
+    /// own filter on `options.runs` seeded truths simulated from the
+    /// models' own noise, and average NEES and NIS are judged against their
+    /// chi-square intervals (a recorded log has one truth only: trials
+    /// always simulate).
+    ///
+    /// # Errors
+    /// [`ScenarioError`] for an inconsistent scenario or bad options.
+    pub fn trials(
+        &self,
+        options: &crate::consistency::Options,
+    ) -> Result<crate::consistency::Report, ScenarioError> {
+        self.validate()?;
+        let refs: Vec<&dyn Channel<N>> = self
+            .channels
+            .iter()
+            .map(|c| c.as_ref() as &dyn Channel<N>)
+            .collect();
+        crate::consistency::run_models(&self.plan, options, &self.system, &refs, &*self.inputs)
+            .map_err(|e| ScenarioError(e.to_string()))
+    }
+}
+
 /// What a check of a scenario found.
 #[derive(Debug, Clone)]
 pub struct Report {

@@ -192,3 +192,39 @@ fn a_jacobian_with_a_sign_error_is_caught_with_its_entry() {
     // differences of the model's own transition: common practice).
     assert!(why.contains("d x / d heading"), "{why}");
 }
+
+#[test]
+fn the_tug_filter_is_consistent_in_monte_carlo_trials_and_a_mistuned_one_is_not() {
+    use cairn_host_check::consistency::{Options, Variant, Verdict};
+    use cairn_host_check::engine::Form;
+    use cairn_host_check::spec::Precision;
+    // Average NEES and NIS over the runs against their two-sided 95%
+    // chi-square intervals (Bar-Shalom, Li & Kirubarajan 2001, section 5.4).
+    let options = Options {
+        runs: 24,
+        steps: Some(3000),
+        variants: vec![
+            Variant::of(Precision::F64, Form::Joseph),
+            Variant::of(Precision::F32, Form::Joseph),
+        ],
+        ..Options::default()
+    };
+    let tuned = scenario(Tug).trials(&options).expect("runs");
+    for v in &tuned.variants {
+        assert_eq!(v.verdict, Verdict::Consistent, "{}", tuned.text());
+    }
+    // Told a tenth of the process noise, the filter is too sure of itself.
+    let told_less = Options {
+        filter_q_scale: 0.1,
+        ..options
+    };
+    let mistuned = scenario(Tug).trials(&told_less).expect("runs");
+    assert!(
+        mistuned
+            .variants
+            .iter()
+            .all(|v| v.verdict == Verdict::Optimistic),
+        "{}",
+        mistuned.text()
+    );
+}

@@ -100,6 +100,51 @@ impl Default for Options {
 /// [`ConsistencyError`] for bad options or a spec that cannot be simulated.
 /// A filter that fails numerically is not an error: it is reported.
 pub fn run(plan: &Plan, options: &Options) -> Result<Report, ConsistencyError> {
+    let (steps, channels) = prepare(plan, options)?;
+    let acc = with_models(
+        plan,
+        Study {
+            plan,
+            options,
+            steps,
+            channels: &channels,
+        },
+    )
+    .map_err(|e| ConsistencyError::Model(e.0))??;
+    finish(plan, options, steps, &channels, acc)
+}
+
+/// Runs the Monte Carlo study of a user's own models on the scenario
+/// `plan` describes (the library's entry: [`crate::scenario`]).
+///
+/// # Errors
+/// As [`run`].
+pub fn run_models<const N: usize, S: System<N>>(
+    plan: &Plan,
+    options: &Options,
+    system: &S,
+    models: &[&dyn Channel<N>],
+    inputs: &dyn InputProfile,
+) -> Result<Report, ConsistencyError> {
+    let (steps, channels) = prepare(plan, options)?;
+    if plan.n() != N || models.len() != plan.channels.len() {
+        return Err(ConsistencyError::Model(format!(
+            "the scenario has {} states and {} channels, the models {N} states and {} channels",
+            plan.n(),
+            plan.channels.len(),
+            models.len()
+        )));
+    }
+    let acc = study(plan, options, steps, &channels, system, models, inputs)?;
+    finish(plan, options, steps, &channels, acc)
+}
+
+/// Checks the options against the plan: the steps per run and the
+/// channels' names and sizes.
+fn prepare(
+    plan: &Plan,
+    options: &Options,
+) -> Result<(usize, Vec<(String, usize)>), ConsistencyError> {
     if options.runs == 0 {
         return Err(ConsistencyError::Option(
             "at least one run is needed".into(),
@@ -152,19 +197,19 @@ pub fn run(plan: &Plan, options: &Options) -> Result<Report, ConsistencyError> {
         .iter()
         .map(|c| (c.name.clone(), c.m))
         .collect();
-    let acc = with_models(
-        plan,
-        Study {
-            plan,
-            options,
-            steps,
-            channels: &channels,
-        },
-    )
-    .map_err(|e| ConsistencyError::Model(e.0))??;
+    Ok((steps, channels))
+}
+
+fn finish(
+    plan: &Plan,
+    options: &Options,
+    steps: usize,
+    channels: &[(String, usize)],
+    acc: Vec<report::Accumulator>,
+) -> Result<Report, ConsistencyError> {
     let variants = acc
         .into_iter()
-        .map(|a| a.finish(plan.n(), &channels, options.runs, options.confidence))
+        .map(|a| a.finish(plan.n(), channels, options.runs, options.confidence))
         .collect::<Result<Vec<_>, _>>()?;
     Ok(Report {
         title: plan.title.clone(),
