@@ -1,22 +1,16 @@
 //! The command line: clap derive, one enum of subcommands (add a variant
 //! and a match arm to add one), and the code that runs each.
 
-use std::fmt;
 use std::path::{Path, PathBuf};
 
 use clap::{Args, Parser, Subcommand, ValueEnum};
 
+pub use crate::exit::{EXIT_BAD_INPUT, EXIT_FAIL, EXIT_PASS, Failure};
+use crate::exit::{Message, bad};
 use crate::output;
 use crate::report::{self, Report};
 use crate::run::{self, RunOptions};
 use crate::spec::{self, Mode, Plan};
-
-/// Exit code when the variant to flash passes.
-pub const EXIT_PASS: u8 = 0;
-/// Exit code when the variant to flash fails.
-pub const EXIT_FAIL: u8 = 1;
-/// Exit code for bad input (spec, files, command line).
-pub const EXIT_BAD_INPUT: u8 = 2;
 
 const EXIT_CODES: &str = "Exit codes:
   0  the variant to flash (default f32 joseph) passes, for the whole mission
@@ -212,38 +206,6 @@ pub struct NoiseArgs {
     pub rate: Option<f64>,
 }
 
-/// A failure with its exit code.
-#[derive(Debug)]
-pub struct Failure {
-    /// Exit code.
-    pub code: u8,
-    /// What went wrong.
-    pub error: Box<dyn std::error::Error + Send + Sync>,
-}
-
-impl fmt::Display for Failure {
-    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
-        self.error.fmt(f)
-    }
-}
-
-fn bad(e: impl Into<Box<dyn std::error::Error + Send + Sync>>) -> Failure {
-    Failure {
-        code: EXIT_BAD_INPUT,
-        error: e.into(),
-    }
-}
-
-/// A plain message as an error.
-#[derive(Debug)]
-struct Message(String);
-impl fmt::Display for Message {
-    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
-        f.write_str(&self.0)
-    }
-}
-impl std::error::Error for Message {}
-
 /// Runs the parsed command line; returns the exit code.
 ///
 /// # Errors
@@ -261,7 +223,7 @@ pub fn execute(cli: Cli) -> Result<u8, Failure> {
         Some(Command::Check(a)) => {
             let mut plan = spec::load(&a.spec).map_err(bad)?;
             refuse_clashes(Some(&a.spec), &plan, &a.output)?;
-            recentre(&mut plan, a.recentre)?;
+            plan.set_recentre(a.recentre).map_err(|m| bad(Message(m)))?;
             check(plan, a.seconds, a.mode, &a.output)
         }
         Some(Command::Noise(a)) => noise(&a),
@@ -338,7 +300,7 @@ fn demo(a: &DemoArgs) -> Result<u8, Failure> {
     }
     let mut plan = crate::demo::plan().map_err(bad)?;
     refuse_clashes(None, &plan, &a.output)?;
-    recentre(&mut plan, a.recentre)?;
+    plan.set_recentre(a.recentre).map_err(|m| bad(Message(m)))?;
     check(plan, a.seconds, a.mode, &a.output)
 }
 
@@ -366,28 +328,6 @@ fn refuse_clashes(spec: Option<&Path>, plan: &Plan, out: &Output) -> Result<(), 
         outputs.push(("--plot", p));
     }
     output::refuse_clashes(&inputs, &outputs)
-}
-
-/// `--recentre M`: a finite distance of at least 1 m, for the pose model
-/// (`check`, `demo` and `trials`).
-pub(crate) fn recentre(plan: &mut Plan, distance: Option<f64>) -> Result<(), Failure> {
-    let Some(d) = distance else {
-        return Ok(());
-    };
-    if !(d.is_finite() && d >= spec::MIN_RECENTRE_M) {
-        return Err(bad(Message(format!(
-            "--recentre must be a finite distance of at least {} m (the origin moves in whole metres), got {d}",
-            spec::MIN_RECENTRE_M
-        ))));
-    }
-    if plan.is_linear() {
-        return Err(bad(Message(
-            "--recentre applies to the planar-pose model only (a linear model's states need not be positions)"
-                .into(),
-        )));
-    }
-    plan.recentre_m = Some(d);
-    Ok(())
 }
 
 fn check(

@@ -23,6 +23,7 @@ pub mod constants;
 pub mod cost;
 pub mod demo;
 pub mod engine;
+pub mod exit;
 pub mod mission;
 pub mod models;
 pub mod numeric;

@@ -11,7 +11,7 @@ use std::fs::{self, File};
 use std::io::{self, Write};
 use std::path::{Path, PathBuf};
 
-use crate::cli::{EXIT_BAD_INPUT, Failure};
+use crate::exit::{EXIT_BAD_INPUT, Failure};
 
 /// A plain message as an error.
 #[derive(Debug)]

@@ -327,21 +327,23 @@ impl<'a, const N: usize, S: System<N>> Scenario<'a, N, S> {
             },
         };
         let mut plan = self.plan.clone();
-        let run = check(
+        let steady = Steady {
+            lifted: None,
+            note: Some("no steady state for a nonlinear model".into()),
+        };
+        let mut run = check(
             &plan,
             &self.system,
             &refs,
             &source,
-            &Steady {
-                lifted: None,
-                note: Some("no steady state for a nonlinear model".into()),
-            },
+            &steady,
             RunOptions::default(),
         )?;
         plan.steps = run.steps;
         if self.log.is_some() && run.dt > 0.0 {
             plan.step_hz = 1.0 / run.dt;
         }
+        crate::mission::complete(&plan, &steady, &mut run);
         Ok(Report { plan, run })
     }
 }

@@ -8,7 +8,9 @@ use skerry_sled::STATES;
 
 #[test]
 fn the_fifteen_state_sled_passes_its_own_check() {
-    let report = common::scenario(60.0).check().expect("a consistent scenario");
+    let report = common::scenario(60.0)
+        .check()
+        .expect("a consistent scenario");
     let text = report.text();
     // The f64 forms track the double-double reference to rounding level
     // (common practice), and the sled's own analytic 15 x 15 Jacobian and

@@ -6,7 +6,7 @@ use std::path::PathBuf;
 use clap::Args;
 
 use super::{Form, Options, Variant, Verdict, all_variants};
-use crate::cli::{EXIT_BAD_INPUT, EXIT_FAIL, EXIT_PASS, Failure};
+use crate::exit::{EXIT_BAD_INPUT, EXIT_FAIL, EXIT_PASS, Failure};
 use crate::spec::{self, Plan, Precision};
 
 /// Exit codes of `cairn trials`.
@@ -94,7 +94,8 @@ pub fn execute(a: &TrialsArgs) -> Result<u8, Failure> {
     if let (Some(spec), Some(json)) = (&a.spec, &a.json) {
         crate::output::refuse_clashes(&[("spec", spec)], &[("--json", json)])?;
     }
-    crate::cli::recentre(&mut plan, a.recentre)?;
+    plan.set_recentre(a.recentre)
+        .map_err(|m| crate::exit::bad(crate::exit::Message(m)))?;
     let mut variants = Vec::new();
     for v in &a.variants {
         let parsed = parse_variant(v).ok_or_else(|| {

@@ -5,7 +5,7 @@ use std::path::PathBuf;
 
 use clap::{Args, ValueEnum};
 
-use crate::cli::{EXIT_BAD_INPUT, EXIT_PASS, Failure};
+use crate::exit::{EXIT_BAD_INPUT, EXIT_PASS, Failure};
 use crate::spec::{self, Precision};
 
 /// Exit codes of `cairn constants`.

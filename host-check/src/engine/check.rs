@@ -5,6 +5,7 @@
 use nalgebra::{SMatrix, SVector};
 use rayon::prelude::*;
 
+use super::channel::Channel;
 use super::filter::{BASELINE, Filter, VARIANTS};
 use super::jacobian::{DEFAULT_TOLERANCE, JacobianCheck};
 use super::lanes::{Context, Drive, Lane, compare_states};
@@ -13,16 +14,26 @@ use super::result::{
     VariantResult,
 };
 use super::stream::{Record, ReferenceFigures, ReferenceStage};
-use super::system::{Channel, System};
+use super::system::System;
 use super::world::{Source, World};
+use crate::engine::external::ExternalStream;
+use crate::engine::metrics;
+use crate::engine::verdict::judge;
 use crate::numeric::dare;
-use crate::run::external::ExternalStream;
-use crate::run::metrics;
-use crate::run::{Lifted, judge};
 use crate::spec::{Mode, Plan};
 
 /// Steps recorded by the reference stage per block.
 const BLOCK: usize = 1024;
+
+/// The LTI model between updates: (F^m, H stacked, sum F^i Q F^i', R
+/// block diagonal, m steps per update).
+pub type Lifted = (
+    nalgebra::DMatrix<f64>,
+    nalgebra::DMatrix<f64>,
+    nalgebra::DMatrix<f64>,
+    nalgebra::DMatrix<f64>,
+    u64,
+);
 
 /// The steady-state problem of a time-invariant scenario, if it has one.
 #[derive(Debug, Clone, Default)]
@@ -275,8 +286,7 @@ pub fn check<const N: usize, S: System<N>>(
         })
         .collect();
     let pr = reference.covariance();
-    let lifted = steady.lifted.clone().filter(|_| steady_result.is_some());
-    let mut result = RunResult {
+    let result = RunResult {
         steps,
         dt,
         mode,
@@ -303,19 +313,6 @@ pub fn check<const N: usize, S: System<N>>(
         source: source_name,
         mission: None,
     };
-    let mission = crate::mission::analyze(
-        &crate::mission::MissionInputs {
-            plan,
-            lifted: lifted.as_ref(),
-            lifted_note: result.steady_note.as_deref(),
-        },
-        &result,
-    );
-    result.flash_passes = mission
-        .variants
-        .iter()
-        .any(|v| v.name == result.flash && v.passes_mission);
-    result.mission = Some(mission);
     Ok(result)
 }
 

@@ -7,7 +7,7 @@ use cairn_core::{
 use nalgebra::{DMatrix, SMatrix, SVector};
 use serde::Serialize;
 
-use super::system::{Sensor, System, UpdateInput};
+use super::system::{Sensor, System};
 use crate::spec::Precision;
 
 /// A covariance form of cairn-core.
@@ -178,6 +178,27 @@ macro_rules! each {
             }
         }
     };
+}
+
+/// How a variant's update is formed.
+#[derive(Debug, Clone, Copy)]
+pub enum UpdateInput<'a> {
+    /// The reference's Jacobian, noise and innovation: the variant applies
+    /// z = H x + nu with its own state (covariance mode).
+    Shared {
+        /// H at the reference state.
+        h: &'a DMatrix<f64>,
+        /// R at the reference state.
+        r: &'a DMatrix<f64>,
+        /// The reference's innovation.
+        innovation: &'a [f64],
+    },
+    /// The measurement itself, through the variant's own model at its own
+    /// state (end-to-end mode), already in the variant's frame.
+    Own {
+        /// The measurement.
+        z: &'a [f64],
+    },
 }
 
 /// What one update did in a variant.

@@ -5,7 +5,8 @@ use cairn_core::{ProcessModel, wrap_angle};
 use nalgebra::{DMatrix, SVector};
 use serde::Serialize;
 
-use super::system::{Channel, System};
+use super::channel::Channel;
+use super::system::System;
 
 /// Points along the run where the Jacobians are compared.
 pub const SAMPLES: u64 = 200;

@@ -3,10 +3,12 @@
 
 use nalgebra::{DMatrix, SVector};
 
+use super::channel::Channel;
+use super::filter::UpdateInput;
 use super::filter::{Filter, Variant};
 use super::stream::Record;
-use super::system::{Channel, System, UpdateInput};
-use crate::run::metrics::{self, Failure, Tracker};
+use super::system::System;
+use crate::engine::metrics::{self, Failure, Tracker};
 use crate::spec::ChannelPlan;
 
 /// How the variants are driven.

@@ -7,6 +7,7 @@
 //! | module     | job                                                     |
 //! |------------|---------------------------------------------------------|
 //! | [`system`] | the traits a user's models implement ([`System`], [`Sensor`]) |
+//! | [`channel`] | a sensor with its size erased, for the list of channels |
 //! | [`filter`] | the catalogue of variants and one running core filter each |
 //! | [`world`]  | the steps: a seeded truth, or a log's rows              |
 //! | [`log`]    | the recorded-log reader (docs/log-format.md)            |
@@ -23,20 +24,27 @@
 //! a copy and counted when it differs, so covariances are always compared
 //! on the same decisions.
 
+pub mod channel;
 pub mod check;
+pub mod external;
 pub mod filter;
 pub mod jacobian;
 pub mod lanes;
 pub mod log;
+pub mod metrics;
 pub mod result;
 pub mod stream;
+pub(crate) mod synth;
 pub mod system;
 pub mod trials;
+pub mod verdict;
 pub mod world;
 
+pub use channel::{Channel, Evaluation, SensorChannel};
 pub use check::{Steady, check, f32_spacing};
+pub use filter::UpdateInput;
 pub use filter::{Filter, Form, VARIANTS, Variant};
 pub use jacobian::JacobianReport;
 pub use result::RunResult;
-pub use system::{Channel, Sensor, SensorChannel, System};
+pub use system::{Sensor, System};
 pub use world::{InputProfile, Source};

@@ -4,8 +4,8 @@
 use serde::Serialize;
 
 use super::jacobian::JacobianReport;
-use crate::run::Tracker;
-pub use crate::run::{Verdict, judge};
+use super::metrics::Tracker;
+pub use super::verdict::{Verdict, judge};
 use crate::spec::{Mode, Precision};
 
 /// Options from the command line that shape a run.

@@ -6,13 +6,14 @@
 use cairn_core::ProcessModel;
 use nalgebra::{DMatrix, DVector, SMatrix, SVector};
 
+use super::channel::Channel;
 use super::jacobian::JacobianCheck;
-use super::system::{Channel, System};
+use super::result::RunError;
+use super::system::System;
 use super::world::{StepInput, World, WorldError};
+use crate::engine::external::ExternalStream;
+use crate::engine::metrics::{self, BUCKETS};
 use crate::numeric::ReferenceFilter;
-use crate::run::RunError;
-use crate::run::external::ExternalStream;
-use crate::run::metrics::{self, BUCKETS};
 use crate::spec::ChannelPlan;
 
 /// One measurement as the reference handled it.

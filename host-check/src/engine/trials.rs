@@ -5,8 +5,10 @@
 use cairn_core::{FilterError, Linearized, ProcessModel, Scalar};
 use nalgebra::{SMatrix, SVector};
 
+use super::channel::Channel;
+use super::filter::UpdateInput;
 use super::filter::{Filter, Variant};
-use super::system::{Channel, System, UpdateInput};
+use super::system::System;
 use super::world::{InputProfile, Source, StepInput, World, WorldError};
 use crate::spec::Plan;
 

@@ -4,9 +4,10 @@
 use cairn_core::ProcessModel;
 use nalgebra::{DMatrix, SMatrix, SVector};
 
+use super::channel::Channel;
 use super::log::{Layout, LogError, LogReader, Row};
-use super::system::{Channel, System};
-use crate::run::synth::Noise;
+use super::system::System;
+use crate::engine::synth::Noise;
 use crate::spec::ChannelPlan;
 
 /// The true input against time, for a simulated run.
@@ -81,7 +82,7 @@ pub fn psd_factor<const N: usize>(c: &SMatrix<f64, N, N>) -> SMatrix<f64, N, N> 
 }
 
 fn dynamic_factor(c: &DMatrix<f64>) -> DMatrix<f64> {
-    crate::run::synth::sqrt_factor(c)
+    crate::engine::synth::sqrt_factor(c)
 }
 
 /// The stream of steps.

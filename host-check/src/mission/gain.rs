@@ -6,9 +6,9 @@ use cairn_core::{FilterError, Scalar, SteadyGain};
 use nalgebra::{DMatrix, DVector, SMatrix, SVector};
 use serde::Serialize;
 
+use crate::engine::check::Lifted;
+use crate::engine::synth::{Noise, sqrt_factor};
 use crate::numeric::dare;
-use crate::run::Lifted;
-use crate::run::synth::{Noise, sqrt_factor};
 
 /// Largest number of measurement intervals the transient is followed for.
 const MAX_INTERVALS: usize = 200_000;
@@ -83,7 +83,7 @@ fn largest_generalised(a: &DMatrix<f64>, b: &DMatrix<f64>) -> Option<f64> {
     let li = l.try_inverse()?;
     let m = &li * a * li.transpose();
     let m = (&m + m.transpose()) * 0.5;
-    crate::run::metrics::eigen_range(&m).map(|(_, hi)| hi)
+    crate::engine::metrics::eigen_range(&m).map(|(_, hi)| hi)
 }
 
 /// Follows the optimal filter and the fixed-gain filter from P0 over the
@@ -306,7 +306,7 @@ pub fn run_lanes(
     }
     let mut refused: Vec<Option<String>> = vec![None; lanes.len()];
     let mut max_sigma = vec![0.0_f64; lanes.len()];
-    let buckets = crate::run::metrics::BUCKETS;
+    let buckets = crate::engine::metrics::BUCKETS;
     let mut series = vec![vec![f64::NAN; buckets]; lanes.len()];
     let dt_step = 1.0 / sched.step_hz;
     let sd: Vec<f64> = (0..n).map(|i| steady_posterior[(i, i)].sqrt()).collect();

@@ -7,7 +7,8 @@ pub mod gain;
 
 use serde::Serialize;
 
-use crate::run::{Lifted, RunResult, SteadyResult};
+use crate::engine::check::Lifted;
+use crate::engine::result::{RunResult, SteadyResult};
 use crate::spec::{ModelPlan, Plan};
 pub use fit::{Fit, Growth};
 pub use gain::{ConstantGain, GainLaneResult};
@@ -180,7 +181,7 @@ fn project(
 }
 
 fn variant_mission(
-    v: &crate::run::VariantResult,
+    v: &crate::engine::result::VariantResult,
     run: &RunResult,
     mission_steps: f64,
     thresholds: &crate::spec::Thresholds,
@@ -623,6 +624,26 @@ fn constant_gain(
         Err(e) => cg.lanes_note = Some(e),
     }
     (Some(cg), None)
+}
+
+/// The mission stage of a check, after the engine's run: projects every
+/// variant over the mission and settles whether the variant to flash
+/// passes for all of it.
+pub fn complete(plan: &Plan, steady: &crate::engine::Steady, result: &mut RunResult) {
+    let lifted = steady.lifted.as_ref().filter(|_| result.steady.is_some());
+    let mission = analyze(
+        &MissionInputs {
+            plan,
+            lifted,
+            lifted_note: result.steady_note.as_deref(),
+        },
+        result,
+    );
+    result.flash_passes = mission
+        .variants
+        .iter()
+        .any(|v| v.name == result.flash && v.passes_mission);
+    result.mission = Some(mission);
 }
 
 #[cfg(test)]

@@ -125,9 +125,7 @@ impl<const N: usize, const M: usize> Sensor<N, M> for LinearSensor<N, M> {
     }
 }
 
-/// The LTI model between updates: (F^m, H stacked, sum F^i Q F^i', R
-/// block diagonal, m steps per update).
-pub type Lifted = (DMatrix<f64>, DMatrix<f64>, DMatrix<f64>, DMatrix<f64>, u64);
+pub use crate::engine::check::Lifted;
 
 /// The lifted LTI model between updates, when the spec has one: a linear
 /// model whose channels all update together every m steps without dropouts.

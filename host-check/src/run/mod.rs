@@ -1,23 +1,20 @@
 //! The spec's check: turns a validated spec's models into engine models
 //! (the size chosen at run time among compiled sizes) and runs the engine.
 
-pub mod external;
-pub mod metrics;
-pub(crate) mod synth;
-mod verdict;
-
 use crate::engine::check::Steady;
+pub use crate::engine::external;
+pub use crate::engine::metrics::{self, Failure, Tracker};
 pub use crate::engine::result::{
     ExternalResult, Reach, ReferenceResult, RunError, RunOptions, RunResult, SteadyResult,
     VariantResult,
 };
+pub use crate::engine::verdict::{Verdict, judge};
 use crate::engine::{Channel, InputProfile, Source, System, check};
 use crate::models::{Visit, with_models};
 use crate::spec::Plan;
-pub use metrics::{Failure, Tracker};
-pub use verdict::{Verdict, judge};
 
-pub use crate::models::{Lifted, MAX_COMPONENTS, MAX_STATES};
+pub use crate::engine::check::Lifted;
+pub use crate::models::{MAX_COMPONENTS, MAX_STATES};
 
 struct Check<'a> {
     plan: &'a Plan,
@@ -34,14 +31,16 @@ impl Visit for Check<'_> {
         inputs: &dyn InputProfile,
         steady: Steady,
     ) -> Self::Output {
-        check(
+        let mut result = check(
             self.plan,
             system,
             channels,
             &Source::Simulated { inputs },
             &steady,
             self.opts,
-        )
+        )?;
+        crate::mission::complete(self.plan, &steady, &mut result);
+        Ok(result)
     }
 }
 

@@ -330,6 +330,27 @@ impl Plan {
         1.0 / self.step_hz
     }
 
+    /// Sets the re-centring distance of `--recentre M`: a finite distance
+    /// of at least [`MIN_RECENTRE_M`], for a model with positions.
+    ///
+    /// # Errors
+    /// The message for the command line.
+    pub fn set_recentre(&mut self, distance: Option<f64>) -> Result<(), String> {
+        let Some(d) = distance else {
+            return Ok(());
+        };
+        if !(d.is_finite() && d >= MIN_RECENTRE_M) {
+            return Err(format!(
+                "--recentre must be a finite distance of at least {MIN_RECENTRE_M} m (the origin moves in whole metres), got {d}"
+            ));
+        }
+        if self.is_linear() {
+            return Err("--recentre applies to the planar-pose model only (a linear model's states need not be positions)".into());
+        }
+        self.recentre_m = Some(d);
+        Ok(())
+    }
+
     /// `true` for a linear time-invariant model.
     pub fn is_linear(&self) -> bool {
         matches!(self.model, ModelPlan::Linear { .. })
