@@ -89,10 +89,11 @@ pub struct VariantMission {
     pub outlook_covariance: Option<Outlook>,
     /// Its relative covariance error at the end of the mission: the robust
     /// line when the rise is significant, else the largest block maximum
-    /// seen after the start-up.
+    /// after the start-up; never below the largest value seen.
     pub projected_error: Option<f64>,
-    /// The upper end: that largest value plus the slope interval's upper
-    /// end times the steps left (the largest value itself when bounded).
+    /// The upper end: the largest block maximum after the start-up plus
+    /// the slope interval's upper end times the steps left (that maximum
+    /// itself when bounded); never below the largest value seen.
     pub projected_error_high: Option<f64>,
     /// The same test on its state difference from the f64 run (in standard
     /// deviations), when states are compared.
@@ -219,12 +220,15 @@ pub struct Projection {
     pub run_at_least: Option<f64>,
 }
 
-/// What the slope interval decides at horizon `t` (steps), when the
-/// interval found at the horizon `trend.end_step` narrows as end_step / t
-/// around the estimate and the anchors move on along the estimate:
-/// the upper projection largest + max(high, 0)(M - t) within the limit
-/// passes; a significant rise (low > 0) whose lower projection
-/// line + low (M - t) reaches the limit fails.
+/// What the slope interval decides at horizon `t` (steps) >= the tested
+/// end t0, with the interval narrowed as t0/t around the estimate (the
+/// width of a slope interval over a fixed number of blocks of a stationary
+/// series goes as one over its span) and the anchors carried on along the
+/// estimate. It passes when the upper projection (the largest block
+/// maximum carried on at the interval's upper end) stays within the limit
+/// to the mission's end; it fails when the rise is significant (lower end
+/// above 0) and the lower projection (the robust line carried on at the
+/// lower end) reaches the limit; otherwise `None`.
 fn decide_at(tr: &Trend, t: f64, limit: f64, mission: f64) -> Option<Outlook> {
     let t0 = tr.end_step;
     let shrink = if t > 0.0 { (t0 / t).min(1.0) } else { 1.0 };
@@ -244,9 +248,9 @@ fn decide_at(tr: &Trend, t: f64, limit: f64, mission: f64) -> Option<Outlook> {
 }
 
 /// Tests `series` (bucket maxima at `steps`) for a trend and projects it to
-/// `mission_steps`. `bounded`: theory bounds the series (the steady-state
-/// argument), so only a significant rise that crosses can fail it and an
-/// undecided projection passes.
+/// `mission_steps` along the Theil-Sen line. `bounded`: theory bounds the
+/// series (the steady-state argument), so only a significant rise that
+/// crosses can fail it and an undecided projection passes.
 pub fn project(
     steps: &[f64],
     series: &[f64],
@@ -264,8 +268,8 @@ pub fn project(
     let level = |outlook, run_at_least| Projection {
         trend,
         outlook,
-        at_end: trend.map_or(largest, |t| t.largest),
-        at_end_high: trend.map_or(largest, |t| t.largest),
+        at_end: largest,
+        at_end_high: largest,
         crossing: None,
         crossing_low: None,
         crossing_high: None,
@@ -298,16 +302,20 @@ pub fn project(
     } else {
         (None, None, None)
     };
+    // The mission contains the horizon: neither end value is below the
+    // largest value seen, start-up included.
     let at_end = if tr.rising {
         (tr.line_at_end + tr.slope * left).max(tr.largest)
     } else {
         tr.largest
-    };
+    }
+    .max(largest);
     let at_end_high = if bounded && !tr.rising {
         tr.largest
     } else {
         tr.largest + tr.slope_high.max(0.0) * left
-    };
+    }
+    .max(largest);
     let mut p = Projection {
         trend,
         outlook: Outlook::Undecided,
@@ -823,6 +831,23 @@ fn constant_gain_passes(
     if cg.closed_loop_radius >= 1.0 {
         return (false, "its closed loop is not stable".into(), None);
     }
+    // The transient is decided by the run itself: checked before the
+    // projection, whose undecided verdict it would otherwise hide.
+    let limit = plan
+        .thresholds
+        .max_transient_excess
+        .unwrap_or(plan.thresholds.max_relative_error);
+    if cg.max_excess > limit {
+        return (
+            false,
+            format!(
+                "its transient raises the covariance up to {:.3e} (relative) above the optimal \
+                 one > {limit:.1e} (set [verdict] max_transient_excess to accept more)",
+                cg.max_excess
+            ),
+            None,
+        );
+    }
     let sigma = plan.thresholds.max_state_difference_sigma;
     if lane.max_state_difference_sigma > sigma {
         return (
@@ -859,23 +884,7 @@ fn constant_gain_passes(
             lane.run_at_least_s,
         );
     }
-    let limit = plan
-        .thresholds
-        .max_transient_excess
-        .unwrap_or(plan.thresholds.max_relative_error);
-    if cg.max_excess <= limit {
-        (true, String::new(), None)
-    } else {
-        (
-            false,
-            format!(
-                "its transient raises the covariance up to {:.3e} (relative) above the optimal \
-                 one > {limit:.1e} (set [verdict] max_transient_excess to accept more)",
-                cg.max_excess
-            ),
-            None,
-        )
-    }
+    (true, String::new(), None)
 }
 
 fn constant_gain(
