@@ -431,10 +431,10 @@ mod tests {
         ];
         let (s, v) = mann_kendall(&y);
         assert_eq!(s, 36.0);
-        assert!((v - 1619.333_333_333).abs() < 1e-6, "{v}");
+        assert!((v - 1_619.333_333_333).abs() < 1e-6, "{v}");
         let z_crit = normal_quantile(0.975);
         let f = hamed_rao_factor(&y, z_crit);
-        assert!((v * f - 2813.176_328_1).abs() < 1e-5, "{}", v * f);
+        assert!((v * f - 2_813.176_328_1).abs() < 1e-5, "{}", v * f);
         let z = mann_kendall_z(s, v * f);
         assert!((z - 0.659_886_99).abs() < 1e-7, "{z}");
         assert!((2.0 * (1.0 - normal_cdf(z)) - 0.509_326_35).abs() < 1e-7);

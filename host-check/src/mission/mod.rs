@@ -92,7 +92,7 @@ pub struct VariantMission {
     /// after the start-up; never below the largest value seen.
     pub projected_error: Option<f64>,
     /// The upper end: the largest block maximum after the start-up plus
-    /// the slope interval's upper end times the steps left (that maximum
+    /// the upper slope (the interval's upper half-width above max(slope, 0)) times the steps left (that maximum
     /// itself when bounded); never below the largest value seen.
     pub projected_error_high: Option<f64>,
     /// The same test on its state difference from the f64 run (in standard
@@ -220,12 +220,20 @@ pub struct Projection {
     pub run_at_least: Option<f64>,
 }
 
+/// The upper slope of the pass test: the interval's upper half-width above
+/// the estimate, counted from max(estimate, 0), so a falling series (a
+/// transient decaying inside the tested part) earns no credit against
+/// growth to come; `shrink` narrows the half-width.
+fn upper_slope(tr: &Trend, shrink: f64) -> f64 {
+    tr.slope.max(0.0) + (tr.slope_high - tr.slope).max(0.0) * shrink
+}
+
 /// What the slope interval decides at horizon `t` (steps) >= the tested
 /// end t0, with the interval narrowed as t0/t around the estimate (the
 /// width of a slope interval over a fixed number of blocks of a stationary
 /// series goes as one over its span) and the anchors carried on along the
 /// estimate. It passes when the upper projection (the largest block
-/// maximum carried on at the interval's upper end) stays within the limit
+/// maximum carried on at the [`upper_slope`]) stays within the limit
 /// to the mission's end; it fails when the rise is significant (lower end
 /// above 0) and the lower projection (the robust line carried on at the
 /// lower end) reaches the limit; otherwise `None`.
@@ -233,7 +241,7 @@ fn decide_at(tr: &Trend, t: f64, limit: f64, mission: f64) -> Option<Outlook> {
     let t0 = tr.end_step;
     let shrink = if t > 0.0 { (t0 / t).min(1.0) } else { 1.0 };
     let b = tr.slope;
-    let high = b + (tr.slope_high - b) * shrink;
+    let high = upper_slope(tr, shrink);
     let low = b - (b - tr.slope_low) * shrink;
     let top = tr.largest + b.max(0.0) * (t - t0);
     let line = tr.line_at_end + b * (t - t0);
@@ -313,7 +321,7 @@ pub fn project(
     let at_end_high = if bounded && !tr.rising {
         tr.largest
     } else {
-        tr.largest + tr.slope_high.max(0.0) * left
+        tr.largest + upper_slope(&tr, 1.0) * left
     }
     .max(largest);
     let mut p = Projection {
@@ -541,9 +549,8 @@ fn variant_mission(
         .map(|p| (p, ""))
         .chain(state.iter().map(|p| (p, " (state)")))
         .collect();
-    let outlook = if !v.verdict.passes {
-        Outlook::Fails
-    } else if outcomes.iter().any(|(p, _)| p.outlook == Outlook::Fails) {
+    let outlook = if !v.verdict.passes || outcomes.iter().any(|(p, _)| p.outlook == Outlook::Fails)
+    {
         Outlook::Fails
     } else if outcomes
         .iter()
