@@ -19,8 +19,9 @@ pub const EXIT_BAD_INPUT: u8 = 2;
 
 const EXIT_CODES: &str = "Exit codes:
   0  the variant to flash (default f32 joseph) passes, for the whole mission
-  1  it fails, or is projected to cross a limit within the mission (a
-     numerical pass is not a safety case; see the report)
+  1  it fails, is projected to cross a limit within the mission, or the run
+     cannot decide the mission (\"undecided: run at least H\"; a numerical
+     pass is not a safety case; see the report)
   2  bad input: a malformed or inconsistent spec, an unreadable file, a bad option";
 
 /// Checks a Kalman filter's single-precision numerics before it is flashed:

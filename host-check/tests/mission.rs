@@ -499,3 +499,233 @@ fn the_demo_like_30_day_verdict_agrees_from_1x_3x_and_10x_or_the_short_runs_are_
     // same (the windows check above).
     assert_eq!(outlooks[2], Outlook::Passes, "{outlooks:?}");
 }
+
+/// One row of the back-test: the first tenth's projection to the whole
+/// run against what the whole run measured, per variant.
+struct BacktestRow {
+    case: String,
+    variant: String,
+    tenth: Outlook,
+    interval: Option<(f64, Option<f64>)>,
+    run_at_least_s: Option<f64>,
+    whole_passes: bool,
+    /// The whole run failed on a quantity the projection follows (the
+    /// relative covariance error or the state difference), not only on
+    /// another criterion (definiteness, gain error, asymmetry).
+    whole_fails_projected: bool,
+    whole_reasons: String,
+    whole_s: f64,
+    whole_crossing_s: Option<f64>,
+}
+
+fn backtest_case(case: &str, plan: &Plan, whole_steps: u64, rows: &mut Vec<BacktestRow>) {
+    let whole_s = whole_steps as f64 / plan.step_hz;
+    let mut tenth = plan.clone();
+    tenth.steps = (whole_steps / 10).max(1);
+    tenth.thresholds.mission_seconds = Some(whole_s);
+    let short = run_plan(&tenth);
+    let mut whole = plan.clone();
+    whole.steps = whole_steps;
+    whole.thresholds.mission_seconds = None;
+    let long = run_plan(&whole);
+    for v in &mission(&short).variants {
+        let w = mission(&long)
+            .variants
+            .iter()
+            .find(|x| x.name == v.name)
+            .expect("same variants");
+        let lv = long
+            .variants
+            .iter()
+            .find(|x| x.name == v.name)
+            .expect("same variants");
+        let passes = lv.verdict.passes;
+        let th = &plan.thresholds;
+        let projected_fail = lv.figures.max_relative_error > th.max_relative_error
+            || lv.figures.max_state_difference_sigma > th.max_state_difference_sigma;
+        rows.push(BacktestRow {
+            case: case.to_string(),
+            variant: v.name.clone(),
+            tenth: v.outlook,
+            interval: v
+                .crossing_s
+                .filter(|_| v.crossing.starts_with("after"))
+                .map(|_| (v.crossing_low_s.unwrap_or(0.0), v.crossing_high_s)),
+            run_at_least_s: v.run_at_least_s,
+            whole_passes: passes,
+            whole_fails_projected: projected_fail,
+            whole_s,
+            whole_reasons: lv
+                .verdict
+                .reasons
+                .iter()
+                .map(|r| r.split(" from ").next().unwrap_or(r).to_string())
+                .collect::<Vec<_>>()
+                .join("; "),
+            whole_crossing_s: projected_fail.then_some(w.crossing_s).flatten(),
+        });
+    }
+}
+
+/// The slow back-test (`bash scripts/mission-backtest.sh`): for every
+/// example spec and the demo, the first tenth of a run is projected to the
+/// whole run and compared with what the whole run measures; the demo's
+/// 30-day verdict is taken from 1, 3 and 10 hours. Prints the tables
+/// docs/mission.md records; fails if a decided verdict is contradicted.
+#[test]
+#[ignore = "slow: minutes in a release build; run by scripts/mission-backtest.sh"]
+fn backtest_the_first_tenth_against_the_whole_run() {
+    let mut rows = Vec::new();
+    let demo = cairn_host_check::demo::plan().expect("demo");
+    backtest_case("demo, 1 h of 10 h", &demo, 10 * demo.steps, &mut rows);
+    let wna = spec::load(&specs().join("wna-tracker.toml")).expect("loads");
+    backtest_case("wna-tracker, 60 s of 600 s", &wna, wna.steps, &mut rows);
+    backtest_case(
+        "wna-tracker, 600 s of 6000 s",
+        &wna,
+        10 * wna.steps,
+        &mut rows,
+    );
+    for d in ["1e-1", "1e-2", "1e-4"] {
+        let p = spec::load(&specs().join(format!("dyer-mcreynolds-{d}.toml"))).expect("loads");
+        // Their horizon is one update: the back-test repeats it 2000 times.
+        backtest_case(
+            &format!("dyer-mcreynolds-{d}, 200 of 2000 steps"),
+            &p,
+            2000,
+            &mut rows,
+        );
+    }
+    println!(
+        "\n| case | variant | first tenth says | whole run | crossing interval (tenth) | whole run crosses | held |"
+    );
+    println!("|---|---|---|---|---|---|---|");
+    let (mut held, mut wrong, mut undecided, mut intervals, mut intervals_held) = (0, 0, 0, 0, 0);
+    let mut other = 0;
+    for r in &rows {
+        let whole = if r.whole_passes {
+            Outlook::Passes
+        } else {
+            Outlook::Fails
+        };
+        let verdict_held = match r.tenth {
+            Outlook::Undecided => {
+                undecided += 1;
+                "undecided"
+            }
+            o if o == whole => {
+                held += 1;
+                "yes"
+            }
+            Outlook::Passes if !r.whole_fails_projected => {
+                // Failed on a criterion the projection does not follow.
+                other += 1;
+                "no: fails a criterion not projected"
+            }
+            _ => {
+                wrong += 1;
+                "NO"
+            }
+        };
+        let interval = r.interval.map(|(lo, hi)| {
+            intervals += 1;
+            let inside = match (r.whole_crossing_s, hi) {
+                (Some(c), Some(h)) => c >= lo && c <= h,
+                (Some(c), None) => c >= lo,
+                // No crossing within the whole run: held when the interval
+                // starts after its end.
+                (None, _) => lo > r.whole_s && !r.whole_fails_projected,
+            };
+            if inside {
+                intervals_held += 1;
+            }
+            (
+                format!(
+                    "{} to {}",
+                    cairn_host_check::mission::duration_words(lo),
+                    hi.map_or("never".into(), cairn_host_check::mission::duration_words)
+                ),
+                inside,
+            )
+        });
+        println!(
+            "| {} | {} | {}{} | {} | {} | {} | {}{} |",
+            r.case,
+            r.variant,
+            r.tenth.word(),
+            r.run_at_least_s.map_or(String::new(), |h| format!(
+                " (run at least {})",
+                cairn_host_check::mission::duration_words(h)
+            )),
+            if r.whole_passes || r.whole_fails_projected {
+                whole.word().to_string()
+            } else {
+                format!("FAIL ({})", r.whole_reasons)
+            },
+            interval.as_ref().map_or("-".to_string(), |i| i.0.clone()),
+            r.whole_crossing_s
+                .map_or("-".into(), cairn_host_check::mission::duration_words),
+            verdict_held,
+            interval.map_or("", |i| if i.1 {
+                ", interval held"
+            } else {
+                ", interval MISSED"
+            })
+        );
+    }
+    println!(
+        "\nverdicts: {held} held, {wrong} contradicted on a projected quantity, {other} failed by a criterion not projected, {undecided} undecided, of {}; crossing intervals: {intervals_held} of {intervals} held",
+        rows.len()
+    );
+
+    // The demo's 30-day verdict from 1, 3 and 10 hours, and from the
+    // horizon the 1-hour run asks for.
+    println!("\n| demo horizon | f32 joseph, 30 days | largest error | upper at 30 days |");
+    println!("|---|---|---|---|");
+    let mut ask = None;
+    let mut flips = Vec::new();
+    for hours in [1.0, 3.0, 10.0, -1.0] {
+        let h = if hours < 0.0 {
+            match ask {
+                Some(s) => s / 3600.0,
+                None => continue,
+            }
+        } else {
+            hours
+        };
+        let mut p = demo.clone();
+        p.steps = (h * 3600.0 * p.step_hz).ceil() as u64;
+        p.thresholds.mission_seconds = Some(30.0 * 86_400.0);
+        let r = run_plan(&p);
+        let v = mission(&r)
+            .variants
+            .iter()
+            .find(|v| v.name == "f32 joseph")
+            .expect("run")
+            .clone();
+        if hours == 1.0 {
+            ask = v.run_at_least_s;
+        }
+        flips.push(v.outlook);
+        println!(
+            "| {:.2} h{} | {} ({}) | {} | {} |",
+            h,
+            if hours < 0.0 {
+                " (what 1 h asked for)"
+            } else {
+                ""
+            },
+            v.outlook.word(),
+            v.crossing,
+            v.trend.map_or("-".into(), |t| format!("{:.3e}", t.largest)),
+            v.projected_error_high
+                .map_or("-".into(), |e| format!("{e:.3e}"))
+        );
+    }
+    let decided: Vec<&Outlook> = flips.iter().filter(|o| **o != Outlook::Undecided).collect();
+    assert!(decided.windows(2).all(|w| w[0] == w[1]), "flips: {flips:?}");
+    assert_eq!(
+        wrong, 0,
+        "a decided verdict was contradicted on a projected quantity"
+    );
+}

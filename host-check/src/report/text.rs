@@ -106,12 +106,13 @@ and misses growth that starts later; confirm it with a longer horizon.",
     }
     let _ = writeln!(
         o,
-        "  (trend: Mann-Kendall test on {} block maxima of the per-bucket largest error after the first \
-10% of the horizon, tie-corrected variance inflated for serial correlation (Hamed-Rao), two-sided \
-5%; slope: Theil-Sen with Sen's 95% interval, relative error per hour; 'at end' follows the robust line \
-when the rise is significant, else stays at the largest block maximum; 'upper' adds the interval's \
-upper slope; the crossing gives the robust line's time and the interval's; 'state sd' is the state \
-difference from the f64 run in standard deviations, tested the same way)",
+        "  (trend: Mann-Kendall test, two-sided 5%, on {} block maxima of the per-bucket largest \
+error after the first 10% of the horizon, variance tie-corrected and inflated for serial correlation \
+(Hamed-Rao); slope: Theil-Sen with Sen's 95% interval, relative error per hour; 'at end' follows \
+the robust line only for a significant rise, else the largest value seen; 'upper' adds the \
+interval's upper half-width above max(slope, 0); a crossing gives the robust line's time and the \
+interval's; 'state sd': the state difference from the f64 run in standard deviations, tested the \
+same way; docs/mission.md)",
         m.variants
             .iter()
             .find_map(|v| v.trend.map(|t| t.blocks))
