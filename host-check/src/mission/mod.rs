@@ -406,7 +406,8 @@ fn covariance_case(inputs: &MissionInputs<'_>, run: &RunResult) -> (Case, String
     }
     let gaps = longest_dropout(plan).map(|(len, name, count)| {
         format!(
-            "{name} drops out ({count} gap{}, longest {}), where the covariance grows open loop",
+            "channel `{name}` drops out ({count} gap{}, longest {}), where the covariance grows \
+             open loop",
             if count == 1 { "" } else { "s" },
             duration_words(len)
         )

@@ -516,7 +516,7 @@ first order, but no covariance form recovers information lost when S = HPH' + R 
         },
         match (&run.mission, run.flash_passes_horizon) {
             (Some(_), true) if flash_undecided.is_some() => format!(
-                " (passes the horizon; the mission {}: exit 1)",
+                " (passes the horizon; the mission is {}: exit 1)",
                 flash_undecided.unwrap_or_default()
             ),
             (Some(m), true) if !m.is_horizon && !run.flash_passes =>
