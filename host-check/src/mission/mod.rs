@@ -1045,6 +1045,98 @@ mod tests {
         assert!((c - 620.5).abs() < 1e-9, "{c}");
     }
 
+    /// Invented bucket maxima (tests of our own projection code): a level
+    /// with a deterministic irregular wobble, plus `slope` per step.
+    fn series(level: f64, slope: f64) -> (Vec<f64>, Vec<f64>) {
+        let k: Vec<f64> = (1..=400).map(|i| f64::from(i) * 100.0).collect();
+        let mut u: u64 = 99;
+        let e = k
+            .iter()
+            .map(|&k| {
+                u = u.wrapping_mul(6_364_136_223_846_793_005).wrapping_add(1);
+                let w = (u >> 11) as f64 / (1u64 << 53) as f64 - 0.5;
+                level * (1.0 + 0.2 * w) + slope * k
+            })
+            .collect();
+        (k, e)
+    }
+
+    #[test]
+    fn a_level_series_far_below_the_limit_passes_and_a_close_one_is_undecided() {
+        // 40 000 steps of noise about 1e-6: projected 10x, even the upper
+        // slope stays far below 1e-3.
+        let (k, e) = series(1e-6, 0.0);
+        let p = project(&k, &e, 1e-3, 4e5, 4e4, false);
+        assert!(!p.trend.expect("tested").rising);
+        assert_eq!(p.outlook, Outlook::Passes, "{p:?}");
+        assert_eq!(p.crossing, None);
+        // The same noise about 4e-4, projected 10 000x: the interval cannot
+        // exclude a crossing, so it is undecided, with a horizon between
+        // the run and the mission that would decide.
+        let (k, e) = series(4e-4, 0.0);
+        let p = project(&k, &e, 1e-3, 4e8, 4e4, false);
+        assert_eq!(p.outlook, Outlook::Undecided, "{p:?}");
+        let h = p.run_at_least.expect("a horizon");
+        assert!(h > 4e4 && h <= 4e8, "{h}");
+        // ... where the narrowed interval decides, one way or the other
+        // (the rule itself), and not a grid step before.
+        let tr = p.trend.expect("tested");
+        assert!(decide_at(&tr, h, 1e-3, 4e8).is_some());
+        assert!(decide_at(&tr, h / 1.03, 1e-3, 4e8).is_none());
+        // Bounded by theory: the same data pass.
+        assert_eq!(
+            project(&k, &e, 1e-3, 4e8, 4e4, true).outlook,
+            Outlook::Passes
+        );
+        // A mission within the horizon is the run's to decide.
+        assert_eq!(
+            project(&k, &e, 1e-3, 4e4, 4e4, false).outlook,
+            Outlook::Passes
+        );
+    }
+
+    #[test]
+    fn a_significant_rise_fails_with_an_interval_around_its_crossing() {
+        // 1e-5 + 1e-9 k reaches 1e-3 at k = 9.9e5 (arithmetic); 5% noise.
+        let (k, e) = series(1e-5, 1e-9);
+        let p = project(&k, &e, 1e-3, 4e6, 4e4, false);
+        let tr = p.trend.expect("tested");
+        assert!(tr.rising && tr.slope_low > 0.0, "{tr:?}");
+        assert_eq!(p.outlook, Outlook::Fails, "{p:?}");
+        let (lo, c, hi) = (
+            p.crossing_low.expect("low"),
+            p.crossing.expect("point"),
+            p.crossing_high.expect("high"),
+        );
+        assert!(lo <= c && c <= hi, "{lo} {c} {hi}");
+        assert!(lo <= 9.9e5 && 9.9e5 <= hi, "{lo} {hi}");
+        // A mission that ends before the interval starts passes.
+        assert_eq!(
+            project(&k, &e, 1e-3, 2e5, 4e4, false).outlook,
+            Outlook::Passes
+        );
+        // Too few points: undecided, not passed.
+        let p = project(&k[..8], &e[..8], 1e-3, 4e6, 800.0, false);
+        assert_eq!(p.outlook, Outlook::Undecided);
+        assert!(p.run_at_least.is_some());
+    }
+
+    #[test]
+    fn observability_ranks_by_hand() {
+        use nalgebra::DMatrix;
+        // Common practice: a double integrator observed in position is
+        // observable (rank 2); F = I with the Dyer-McReynolds H (two rows)
+        // reaches only 2 of 3 directions (by hand: HF^i = H).
+        let f = DMatrix::from_row_slice(2, 2, &[1.0, 0.1, 0.0, 1.0]);
+        let h = DMatrix::from_row_slice(1, 2, &[1.0, 0.0]);
+        assert_eq!(observability_rank(&f, &h), (2, 2));
+        let h = DMatrix::from_row_slice(2, 3, &[1.0, 1.0, 1.0, 1.0, 1.0, 1.0001]);
+        assert_eq!(observability_rank(&DMatrix::identity(3, 3), &h), (2, 3));
+        // A velocity-only measurement never sees the position: rank 1.
+        let h = DMatrix::from_row_slice(1, 2, &[0.0, 1.0]);
+        assert_eq!(observability_rank(&f, &h), (1, 2));
+    }
+
     #[test]
     fn the_cost_order_puts_every_f32_form_first() {
         let order = cost_order();

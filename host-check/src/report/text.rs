@@ -69,7 +69,7 @@ and misses growth that starts later; confirm it with a longer horizon.",
     };
     let _ = writeln!(
         o,
-        "  {:<18} {:<15} {:>10} {:>21} {:>10} {:>10} {:>10}  {:<cw$}  mission",
+        "  {:<18} {:<19} {:>10} {:>21} {:>10} {:>10} {:>10}  {:<cw$}  mission",
         "variant", "trend", "slope/h", "95% interval", "at end", "upper", "state sd", "crossing"
     );
     for v in &m.variants {
@@ -92,7 +92,7 @@ and misses growth that starts later; confirm it with a longer horizon.",
         };
         let _ = writeln!(
             o,
-            "  {:<18} {:<15} {:>10} {:>21} {:>10} {:>10} {:>10}  {:<cw$}  {}",
+            "  {:<18} {:<19} {:>10} {:>21} {:>10} {:>10} {:>10}  {:<cw$}  {}",
             v.name,
             t,
             b,
