@@ -461,12 +461,12 @@ fn mini_demo(seconds: f64) -> Plan {
 
 #[test]
 fn the_demo_like_30_day_verdict_agrees_from_1x_3x_and_10x_or_the_short_runs_are_undecided() {
-    // 10, 30 and 100 minutes of the shortened demo, each projected to 30
+    // 7.5, 22.5 and 75 minutes of the shortened demo, each projected to 30
     // days. The verdict must not flip with the horizon: the runs that
     // decide agree, and the shorter ones may only say undecided (with a
     // horizon to run), never the opposite verdict.
     let mut outlooks = Vec::new();
-    for seconds in [600.0, 1800.0, 6000.0] {
+    for seconds in [450.0, 1350.0, 4500.0] {
         let mut plan = mini_demo(seconds);
         plan.thresholds.mission_seconds = Some(30.0 * 86_400.0);
         let r = run_plan(&plan);
