@@ -179,7 +179,7 @@ pub fn plot(title: &str, run: &RunResult, threshold: f64) -> String {
         LEFT + pw / 2.0,
         HEIGHT - 16.0,
         if log_time {
-            "log scale; dashed beyond the horizon: fitted growth"
+            "log scale; dashed beyond the horizon: projected error"
         } else if t_end >= 600.0 {
             "min"
         } else {
