@@ -14,9 +14,10 @@ use crate::spec::{self, Mode, Plan};
 
 const EXIT_CODES: &str = "Exit codes:
   0  the variant to flash (default f32 joseph) passes, for the whole mission
-  1  it fails, or is projected to cross a limit within the mission, or the
-     spec's external reference disagrees with ours (a numerical pass is not
-     a safety case; see the report)
+  1  it fails, is projected to cross a limit within the mission, the run
+     cannot decide the mission (\"undecided: run at least H\"), or the spec's
+     external reference disagrees with ours (a numerical pass is not a
+     safety case; see the report)
   2  bad input: a malformed or inconsistent spec, an unreadable file, a bad
      option, an output that cannot be written or that names an input
 A closed standard output (a pipe whose reader has gone) ends the output

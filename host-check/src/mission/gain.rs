@@ -66,8 +66,19 @@ pub struct GainLaneResult {
     #[serde(skip)]
     pub series_time: Vec<f64>,
     /// When the state difference is projected to cross its threshold, s
-    /// (`None`: never; filled in by the mission analysis).
+    /// (robust line of a significant rise; `None`: no such rise; filled
+    /// in by the mission analysis, as are the fields below).
     pub crossing_s: Option<f64>,
+    /// The earliest crossing the slope interval allows, s.
+    pub crossing_low_s: Option<f64>,
+    /// The latest, s (`None`: never).
+    pub crossing_high_s: Option<f64>,
+    /// The trend test on its state difference.
+    pub trend: Option<super::Trend>,
+    /// What the projection of the state difference says.
+    pub outlook: Option<super::Outlook>,
+    /// For an undecided outlook: the horizon that would decide it, s.
+    pub run_at_least_s: Option<f64>,
 }
 
 fn rows(m: &DMatrix<f64>) -> Vec<Vec<f64>> {
@@ -376,6 +387,11 @@ pub fn run_lanes(
                 .map(|b| (b as f64 * sched.steps as f64 / buckets as f64).ceil() * dt_step)
                 .collect(),
             crossing_s: None,
+            crossing_low_s: None,
+            crossing_high_s: None,
+            trend: None,
+            outlook: None,
+            run_at_least_s: None,
         })
         .collect())
 }

@@ -1,6 +1,8 @@
-//! The mission-length verdict: how each variant's error grows, where it
-//! would stand at the end of the mission, the constant-gain option's
-//! transient loss, and the cheapest form and precision that passes.
+//! The mission-length verdict: whether each variant's error shows a
+//! significant trend, where it would stand at the end of the mission (or
+//! that the run cannot decide), which case of theory applies, the
+//! constant-gain option's transient loss, and the cheapest form and
+//! precision that passes.
 
 pub mod fit;
 pub mod gain;
@@ -9,49 +11,118 @@ use serde::Serialize;
 
 use crate::engine::check::Lifted;
 use crate::engine::result::{RunResult, SteadyResult};
-use crate::spec::{ModelPlan, Plan};
-pub use fit::{Fit, Growth};
+use crate::spec::{ChannelKind, ModelPlan, Plan};
+pub use fit::Trend;
 pub use gain::{ConstantGain, GainLaneResult};
 
 /// The reference counts as steady when its last posterior is this close
 /// (relative, Frobenius) to the Riccati solution.
 pub const STEADY_TOLERANCE: f64 = 1e-8;
-/// Share of the plot buckets skipped at the start before fitting (the
-/// start-up transient is not growth).
-const SKIP_SHARE: f64 = 0.1;
-/// A series is flat when its change over the last half is within this share
-/// of its mean (or of the threshold, whichever is larger).
-const FLAT_TOLERANCE: f64 = 0.05;
+/// Share of the plot buckets skipped at the start before the trend test
+/// (the start-up transient is not growth).
+pub const SKIP_SHARE: f64 = 0.1;
 /// Largest number of steps the core's constant-gain filter is run for.
 const MAX_GAIN_STEPS: u64 = 2_000_000;
+/// Points of the geometric grid of horizons searched for the run length
+/// that would decide an undecided projection.
+const HORIZON_GRID: usize = 400;
+
+/// What a projection says about the mission.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum Outlook {
+    /// Within the limit for the whole mission, even at the upper end of
+    /// the slope interval (or by the steady-state argument).
+    Passes,
+    /// Over the limit within the mission: over it within the horizon, or a
+    /// significant rise that crosses it even at the lower end of the slope
+    /// interval.
+    Fails,
+    /// The data cannot decide: no significant rise, but the upper end of
+    /// the slope interval would cross within the mission (or too few
+    /// points to test).
+    Undecided,
+}
+
+impl Outlook {
+    /// "PASS", "FAIL" or "UNDECIDED".
+    pub fn word(self) -> &'static str {
+        match self {
+            Outlook::Passes => "PASS",
+            Outlook::Fails => "FAIL",
+            Outlook::Undecided => "UNDECIDED",
+        }
+    }
+}
+
+/// Which case of theory applies to a variant's covariance error.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum Case {
+    /// Time-invariant and on the Riccati steady state: bounded.
+    Bounded,
+    /// Time-invariant, but the reference has not reached the steady state.
+    NotSteady,
+    /// Some modes are not reached by the measurements.
+    Unobservable,
+    /// Measurements drop out: the covariance runs open loop in the gaps.
+    Dropouts,
+    /// Time-varying (nonlinear model, or a schedule without a lifted
+    /// steady state): no bound to lean on.
+    TimeVarying,
+    /// No measurements at all.
+    OpenLoop,
+}
 
 /// One variant over the mission.
 #[derive(Debug, Clone, Serialize)]
 pub struct VariantMission {
     /// Variant name.
     pub name: String,
-    /// The growth model fitted to its decimated error series (none when it
-    /// stopped early or had too few points).
-    pub fit: Option<Fit>,
-    /// Why the error is taken as level and the horizon as enough, if it is.
-    pub level: Option<String>,
-    /// Its relative covariance error projected to the end of the mission
-    /// (never below the largest over the last half of the horizon).
+    /// Which case of theory applies to its covariance error.
+    pub case: Case,
+    /// Why, in one sentence.
+    pub reason: String,
+    /// The trend test and robust slope on its relative covariance error
+    /// (none when it stopped early or had too few points).
+    pub trend: Option<Trend>,
+    /// What the covariance projection alone says (none when it stopped).
+    pub outlook_covariance: Option<Outlook>,
+    /// Its relative covariance error at the end of the mission: the robust
+    /// line when the rise is significant, else the largest block maximum
+    /// after the start-up; never below the largest value seen.
     pub projected_error: Option<f64>,
-    /// The growth model fitted to its state difference from the f64 run
-    /// (in standard deviations), when states are compared.
-    pub state_fit: Option<Fit>,
-    /// That difference projected to the end of the mission.
+    /// The upper end: the largest block maximum after the start-up plus
+    /// the upper slope (the interval's upper half-width above max(slope, 0)) times the steps left (that maximum
+    /// itself when bounded); never below the largest value seen.
+    pub projected_error_high: Option<f64>,
+    /// The same test on its state difference from the f64 run (in standard
+    /// deviations), when states are compared.
+    pub state_trend: Option<Trend>,
+    /// Why the state difference is tested rather than bounded.
+    pub state_reason: Option<String>,
+    /// What the state projection alone says.
+    pub outlook_state: Option<Outlook>,
+    /// That difference at the end of the mission (as `projected_error`).
     pub projected_state_sigma: Option<f64>,
     /// When its relative error or its state difference would cross its
-    /// threshold, s from the start, whichever comes first (`None`: never).
+    /// threshold, s from the start, whichever first (robust line; `None`:
+    /// no significant rise, or it fails within the horizon at the time
+    /// given).
     pub crossing_s: Option<f64>,
-    /// The crossing in words ("never", "after 3.2 days", "fails within the
-    /// horizon", or "no fit (too few points)" when the run is too short to
-    /// project).
+    /// The earliest crossing the slope interval allows, s.
+    pub crossing_low_s: Option<f64>,
+    /// The latest, s (`None`: the interval reaches a slope of 0: never).
+    pub crossing_high_s: Option<f64>,
+    /// For an undecided verdict: the horizon that would decide it, s.
+    pub run_at_least_s: Option<f64>,
+    /// The mission verdict.
+    pub outlook: Outlook,
+    /// The crossing in words ("never", "after 3.2 days (1.1 to 9.0
+    /// days)", "fails within the horizon", "undecided: run at least 6.1 h").
     pub crossing: String,
-    /// `true` when it passes over the horizon and is not projected to cross
-    /// the threshold within the mission.
+    /// `true` when it passes over the horizon and the mission outlook is
+    /// [`Outlook::Passes`].
     pub passes_mission: bool,
 }
 
@@ -60,6 +131,11 @@ pub struct VariantMission {
 pub struct FinalVerdict {
     /// The cheapest variant that passes for the whole mission, if any.
     pub choice: Option<String>,
+    /// Cheaper variants whose mission verdict is undecided, with the
+    /// horizon that would decide each ("f32 joseph: run at least 6.1 h").
+    pub undecided: Vec<String>,
+    /// The longest of those horizons, s.
+    pub run_at_least_s: Option<f64>,
     /// Order tried, cheapest first.
     pub order: Vec<String>,
     /// Estimated cycles per filter step of the choice, when a cost figure
@@ -124,60 +200,322 @@ pub fn cost_order() -> Vec<String> {
     v
 }
 
-/// A fitted series projected to the mission: (fit, value at the end,
-/// crossing step).
-struct Projection {
-    fit: Option<Fit>,
-    flat_level: bool,
-    at_end: f64,
-    crossing_step: Option<f64>,
+/// A tested series projected to the mission (steps throughout).
+#[derive(Debug, Clone, Copy)]
+pub struct Projection {
+    /// The trend test's findings.
+    pub trend: Option<Trend>,
+    /// The verdict.
+    pub outlook: Outlook,
+    /// Value at the mission's end (robust line, or the largest seen).
+    pub at_end: f64,
+    /// Upper end of it.
+    pub at_end_high: f64,
+    /// Crossing step of the robust line (a significant rise only).
+    pub crossing: Option<f64>,
+    /// Earliest crossing step the slope interval allows.
+    pub crossing_low: Option<f64>,
+    /// Latest (`None`: never).
+    pub crossing_high: Option<f64>,
+    /// For an undecided verdict: the horizon in steps that would decide.
+    pub run_at_least: Option<f64>,
 }
 
-/// Fits `series` (bucket maxima at `steps`), skipping the start-up share,
-/// and projects it: the end value is never below the largest value over the
-/// last half of the horizon; a level (forced or fitted on a flat last half)
-/// never crosses.
-fn project(
+/// The upper slope of the pass test: the interval's upper half-width above
+/// the estimate, counted from max(estimate, 0), so a falling series (a
+/// transient decaying inside the tested part) earns no credit against
+/// growth to come; `shrink` narrows the half-width.
+fn upper_slope(tr: &Trend, shrink: f64) -> f64 {
+    tr.slope.max(0.0) + (tr.slope_high - tr.slope).max(0.0) * shrink
+}
+
+/// What the slope interval decides at horizon `t` (steps) >= the tested
+/// end t0, with the interval narrowed as t0/t around the estimate (the
+/// width of a slope interval over a fixed number of blocks of a stationary
+/// series goes as one over its span) and the anchors carried on along the
+/// estimate. It passes when the upper projection (the largest block
+/// maximum carried on at the [`upper_slope`]) stays within the limit
+/// to the mission's end; it fails when the rise is significant (lower end
+/// above 0) and the lower projection (the robust line carried on at the
+/// lower end) reaches the limit; otherwise `None`.
+fn decide_at(tr: &Trend, t: f64, limit: f64, mission: f64) -> Option<Outlook> {
+    let t0 = tr.end_step;
+    let shrink = if t > 0.0 { (t0 / t).min(1.0) } else { 1.0 };
+    let b = tr.slope;
+    let high = upper_slope(tr, shrink);
+    let low = b - (b - tr.slope_low) * shrink;
+    let top = tr.largest + b.max(0.0) * (t - t0);
+    let line = tr.line_at_end + b * (t - t0);
+    let left = (mission - t).max(0.0);
+    if top + high.max(0.0) * left <= limit {
+        Some(Outlook::Passes)
+    } else if low > 0.0 && (t > t0 || tr.rising) && line + low * left >= limit {
+        Some(Outlook::Fails)
+    } else {
+        None
+    }
+}
+
+/// Tests `series` (bucket maxima at `steps`) for a trend and projects it to
+/// `mission_steps` along the Theil-Sen line. `bounded`: theory bounds the
+/// series (the steady-state argument), so only a significant rise that
+/// crosses can fail it and an undecided projection passes.
+pub fn project(
     steps: &[f64],
     series: &[f64],
     limit: f64,
     mission_steps: f64,
     run_steps: f64,
-    level_forced: bool,
+    bounded: bool,
 ) -> Projection {
-    let skip = (series.len() as f64 * SKIP_SHARE) as usize;
-    let fit = fit::fit(&steps[skip..], &series[skip..]);
-    let flat = fit::flat_last_half(steps, series, FLAT_TOLERANCE, limit * 1e-3);
-    let late = series[series.len() / 2..]
+    let trend = fit::trend(steps, series, SKIP_SHARE);
+    let largest = series
         .iter()
         .copied()
         .filter(|e| e.is_finite())
         .fold(f64::NAN, f64::max);
-    // Too short a run for a last half: the largest value seen (NaN: none).
-    let late = if late.is_nan() {
-        series
-            .iter()
-            .copied()
-            .filter(|e| e.is_finite())
-            .fold(f64::NAN, f64::max)
-    } else {
-        late
+    let level = |outlook, run_at_least| Projection {
+        trend,
+        outlook,
+        at_end: largest,
+        at_end_high: largest,
+        crossing: None,
+        crossing_low: None,
+        crossing_high: None,
+        run_at_least,
     };
-    let flat_level = flat && fit.is_some_and(|f| f.growth == Growth::Level);
-    match fit {
-        Some(f) if !(flat_level || level_forced && flat) => Projection {
-            fit,
-            flat_level,
-            at_end: f.at(mission_steps).max(late),
-            crossing_step: f.crossing(limit).map(|k| k.max(run_steps)),
-        },
-        _ => Projection {
-            fit,
-            flat_level,
-            at_end: late,
-            crossing_step: None,
-        },
+    if mission_steps <= run_steps {
+        // The horizon covers the mission: the run itself decides.
+        return level(Outlook::Passes, None);
     }
+    let Some(tr) = trend else {
+        // Too few points to test: enough buckets for MIN_BLOCKS blocks
+        // after the start-up share.
+        let need = (fit::MIN_BLOCKS as f64 / (1.0 - SKIP_SHARE)).ceil() + 1.0;
+        return if bounded {
+            level(Outlook::Passes, None)
+        } else {
+            level(Outlook::Undecided, Some(need.max(run_steps + 1.0)))
+        };
+    };
+    let t0 = tr.end_step;
+    let left = mission_steps - t0;
+    let crosses_at =
+        |from: f64, slope: f64| (slope > 0.0).then(|| t0 + ((limit - from) / slope).max(0.0));
+    let (crossing, crossing_low, crossing_high) = if tr.rising {
+        (
+            crosses_at(tr.line_at_end, tr.slope),
+            crosses_at(tr.largest, tr.slope_high),
+            crosses_at(tr.line_at_end, tr.slope_low),
+        )
+    } else {
+        (None, None, None)
+    };
+    // The mission contains the horizon: neither end value is below the
+    // largest value seen, start-up included.
+    let at_end = if tr.rising {
+        (tr.line_at_end + tr.slope * left).max(tr.largest)
+    } else {
+        tr.largest
+    }
+    .max(largest);
+    let at_end_high = if bounded && !tr.rising {
+        tr.largest
+    } else {
+        tr.largest + upper_slope(&tr, 1.0) * left
+    }
+    .max(largest);
+    let mut p = Projection {
+        trend,
+        outlook: Outlook::Undecided,
+        at_end,
+        at_end_high,
+        crossing,
+        crossing_low,
+        crossing_high,
+        run_at_least: None,
+    };
+    match decide_at(&tr, t0, limit, mission_steps) {
+        Some(o) => p.outlook = o,
+        None if bounded => p.outlook = Outlook::Passes,
+        None => {
+            // The shortest horizon on a geometric grid up to the mission at
+            // which the narrowed interval decides (the mission itself when
+            // none does before).
+            let ratio = (mission_steps / t0).ln();
+            let h = (1..=HORIZON_GRID)
+                .map(|i| t0 * (ratio * i as f64 / HORIZON_GRID as f64).exp())
+                .find(|&t| decide_at(&tr, t, limit, mission_steps).is_some())
+                .unwrap_or(mission_steps);
+            p.run_at_least = Some(h.min(mission_steps).ceil());
+        }
+    }
+    p
+}
+
+/// An observability rank test of (F, H): the rank of [H; HF; ...;
+/// HF^(n-1)] by its singular values (relative tolerance n eps times the
+/// largest; common practice). (rank, n).
+fn observability_rank(f: &nalgebra::DMatrix<f64>, h: &nalgebra::DMatrix<f64>) -> (usize, usize) {
+    let n = f.nrows();
+    let m = h.nrows();
+    let mut o = nalgebra::DMatrix::zeros(m * n, n);
+    let mut block = h.clone();
+    for i in 0..n {
+        o.view_mut((i * m, 0), (m, n)).copy_from(&block);
+        block = &block * f;
+    }
+    let sv = o.singular_values();
+    let top = sv.iter().copied().fold(0.0_f64, f64::max);
+    let tol = (m * n).max(n) as f64 * f64::EPSILON * top;
+    (sv.iter().filter(|s| **s > tol).count(), n)
+}
+
+/// The longest dropout window of any channel, s, and its channel's name.
+fn longest_dropout(plan: &Plan) -> Option<(f64, &str, usize)> {
+    plan.channels
+        .iter()
+        .flat_map(|c| {
+            c.dropouts
+                .iter()
+                .map(move |&(a, b)| (b - a, c.name.as_str(), c.dropouts.len()))
+        })
+        .max_by(|a, b| a.0.total_cmp(&b.0))
+}
+
+/// Which case of theory applies to the covariance error, and why.
+fn covariance_case(inputs: &MissionInputs<'_>, run: &RunResult) -> (Case, String) {
+    let plan = inputs.plan;
+    let tail = "the trend test decides";
+    if let Some(d) = run.steady.as_ref().and_then(|s| s.reference_distance)
+        && d <= STEADY_TOLERANCE
+    {
+        return (
+            Case::Bounded,
+            format!(
+                "bounded: time-invariant and the reference sits on the Riccati steady state \
+                 (relative distance {d:.1e}), so each step repeats the same arithmetic on the same \
+                 covariance and the stable, observable closed loop forgets the rounding it injects"
+            ),
+        );
+    }
+    if plan.channels.is_empty() {
+        return (
+            Case::OpenLoop,
+            format!("no measurements: the covariance and its rounding follow F open loop; {tail}"),
+        );
+    }
+    let gaps = longest_dropout(plan).map(|(len, name, count)| {
+        format!(
+            "channel `{name}` drops out ({count} gap{}, longest {}), where the covariance grows \
+             open loop",
+            if count == 1 { "" } else { "s" },
+            duration_words(len)
+        )
+    });
+    match &plan.model {
+        ModelPlan::User { .. } => {
+            let mut why = String::from(
+                "no bound from theory: a user's own nonlinear model is taken as time-varying",
+            );
+            if let Some(g) = gaps {
+                why.push_str(", and ");
+                why.push_str(&g);
+            }
+            why.push_str("; ");
+            why.push_str(tail);
+            (Case::TimeVarying, why)
+        }
+        ModelPlan::Pose { .. } => {
+            let fixes = plan
+                .channels
+                .iter()
+                .any(|c| matches!(c.kind, ChannelKind::Position));
+            let mut why = String::from(
+                "no bound from theory: the pose filter is time-varying (its Jacobians follow the \
+                 heading), ",
+            );
+            why.push_str(if fixes {
+                "its position is unmeasured between fixes"
+            } else {
+                "its position is never measured"
+            });
+            if let Some(g) = gaps {
+                why.push_str(" and ");
+                why.push_str(&g);
+            }
+            why.push_str("; ");
+            why.push_str(tail);
+            (
+                if fixes {
+                    Case::TimeVarying
+                } else {
+                    Case::Unobservable
+                },
+                why,
+            )
+        }
+        ModelPlan::Linear { f, .. } => {
+            let n = plan.n();
+            let m: usize = plan.channels.iter().map(|c| c.m).sum();
+            let mut h = nalgebra::DMatrix::zeros(m, n);
+            let mut row = 0;
+            for c in &plan.channels {
+                h.view_mut((row, 0), (c.m, n)).copy_from(&c.h(n));
+                row += c.m;
+            }
+            let (rank, n) = observability_rank(f, &h);
+            if rank < n {
+                return (
+                    Case::Unobservable,
+                    format!(
+                        "growth possible: the measurements reach {rank} of {n} modes (observability \
+                         rank); the others, and their rounding, follow F open loop; {tail}"
+                    ),
+                );
+            }
+            if let Some(g) = gaps {
+                return (Case::Dropouts, format!("growth possible: {g}; {tail}"));
+            }
+            match run.steady.as_ref().and_then(|s| s.reference_distance) {
+                Some(d) => (
+                    Case::NotSteady,
+                    format!(
+                        "not yet steady: the reference is {d:.1e} from the Riccati solution (bound \
+                         {STEADY_TOLERANCE:.0e}) at the end of the horizon; {tail}"
+                    ),
+                ),
+                None => (
+                    Case::TimeVarying,
+                    format!(
+                        "no steady-state argument ({}); {tail}",
+                        inputs
+                            .lifted_note
+                            .or(run.steady_note.as_deref())
+                            .unwrap_or("no steady state computed")
+                            .trim_start_matches("no steady state: ")
+                    ),
+                ),
+            }
+        }
+    }
+}
+
+/// Why the state difference is tested, not bounded.
+const STATE_REASON: &str = "the state difference follows the trajectory (f32 resolves a state ever \
+                            more coarsely as it moves away from zero): no bound from theory; the \
+                            trend test decides";
+
+/// "after 3.2 days (1.1 days to never)".
+fn crossing_words(p: &Projection, dt: f64) -> Option<String> {
+    let c = p.crossing?;
+    Some(format!(
+        "after {} ({} to {})",
+        duration_words(c * dt),
+        duration_words(p.crossing_low.unwrap_or(c) * dt),
+        p.crossing_high
+            .map_or_else(|| "never".to_string(), |h| duration_words(h * dt))
+    ))
 }
 
 fn variant_mission(
@@ -185,7 +523,7 @@ fn variant_mission(
     run: &RunResult,
     mission_steps: f64,
     thresholds: &crate::spec::Thresholds,
-    steady_reason: Option<&str>,
+    case: &(Case, String),
 ) -> VariantMission {
     let limit = thresholds.max_relative_error;
     let dt = run.dt;
@@ -199,7 +537,7 @@ fn variant_mission(
             limit,
             mission_steps,
             run_steps,
-            steady_reason.is_some(),
+            case.0 == Case::Bounded,
         )
     });
     let state = (!stopped && v.figures.states_compared).then(|| {
@@ -212,18 +550,6 @@ fn variant_mission(
             false,
         )
     });
-    let level = match &cov {
-        Some(p) if p.crossing_step.is_none() && p.fit.is_some() => {
-            steady_reason.map(str::to_string).or_else(|| {
-                p.flat_level.then(|| {
-                    "covariance error is level: flat over the last half of the horizon and best \
-                     fitted by a constant; no growth mechanism seen"
-                        .to_string()
-                })
-            })
-        }
-        _ => None,
-    };
     // Where the error first exceeded a threshold within the horizon.
     let first_over = |series: &[f64], lim: f64| {
         series
@@ -232,21 +558,37 @@ fn variant_mission(
             .find(|(e, _)| e.is_finite() && **e > lim)
             .map(|(_, t)| *t)
     };
-    let (crossing_s, crossing_what) = if v.verdict.passes {
-        let c = cov
-            .as_ref()
-            .and_then(|p| p.crossing_step)
-            .map(|k| (k * dt, "covariance"));
-        let s = state
-            .as_ref()
-            .and_then(|p| p.crossing_step)
-            .map(|k| (k * dt, "state"));
-        match (c, s) {
-            (Some(a), Some(b)) => Some(if a.0 <= b.0 { a } else { b }),
-            (a, b) => a.or(b),
-        }
-        .map_or((None, ""), |(t, w)| (Some(t), w))
+    let outcomes: Vec<(&Projection, &str)> = cov
+        .iter()
+        .map(|p| (p, ""))
+        .chain(state.iter().map(|p| (p, " (state)")))
+        .collect();
+    let outlook = if !v.verdict.passes || outcomes.iter().any(|(p, _)| p.outlook == Outlook::Fails)
+    {
+        Outlook::Fails
+    } else if outcomes
+        .iter()
+        .any(|(p, _)| p.outlook == Outlook::Undecided)
+    {
+        Outlook::Undecided
     } else {
+        Outlook::Passes
+    };
+    // The projection that crosses first (robust line).
+    let first = outcomes
+        .iter()
+        .filter(|(p, _)| p.crossing.is_some())
+        .min_by(|a, b| {
+            a.0.crossing
+                .unwrap_or(0.0)
+                .total_cmp(&b.0.crossing.unwrap_or(0.0))
+        });
+    let run_at_least = outcomes
+        .iter()
+        .filter(|(p, _)| p.outlook == Outlook::Undecided)
+        .filter_map(|(p, _)| p.run_at_least)
+        .fold(None, |m: Option<f64>, h| Some(m.map_or(h, |m| m.max(h))));
+    let (crossing_s, crossing_low_s, crossing_high_s, crossing) = if !v.verdict.passes {
         let at = first_over(&v.figures.series, limit)
             .or_else(|| {
                 first_over(
@@ -254,61 +596,70 @@ fn variant_mission(
                     thresholds.max_state_difference_sigma,
                 )
             })
-            .or(v.figures.failure.as_ref().map(|f| f.time_s));
-        (at.or(Some(0.0)), "")
+            .or(v.figures.failure.as_ref().map(|f| f.time_s))
+            .or(Some(0.0));
+        (at, at, at, "fails within the horizon".to_string())
+    } else {
+        let (c, lo, hi, words) = match first {
+            Some((p, what)) => (
+                p.crossing.map(|k| k * dt),
+                p.crossing_low.map(|k| k * dt),
+                p.crossing_high.map(|k| k * dt),
+                crossing_words(p, dt).map(|w| format!("{w}{what}")),
+            ),
+            None => (None, None, None, None),
+        };
+        let words = match outlook {
+            Outlook::Undecided => {
+                let what = outcomes
+                    .iter()
+                    .find(|(p, _)| p.outlook == Outlook::Undecided)
+                    .map_or("", |(_, w)| *w);
+                match run_at_least {
+                    Some(h) => format!("undecided: run at least {}{what}", duration_words(h * dt)),
+                    None => format!("undecided{what}"),
+                }
+            }
+            _ => words.unwrap_or_else(|| "never".to_string()),
+        };
+        (c, lo, hi, words)
     };
-    let mission_s = mission_steps * dt;
-    let crossing = match crossing_s {
-        _ if !v.verdict.passes => "fails within the horizon".to_string(),
-        None if cov.as_ref().is_some_and(|p| p.fit.is_none()) && mission_s > run_steps * dt => {
-            "no fit (too few points)".to_string()
-        }
-        None => "never".to_string(),
-        Some(s) if crossing_what == "state" => match state.as_ref().and_then(|p| p.fit) {
-            // Which growth model the state projection took.
-            Some(f) => format!("after {} (state, {})", duration_words(s), f.label()),
-            None => format!("after {} (state)", duration_words(s)),
-        },
-        Some(s) => format!("after {}", duration_words(s)),
-    };
-    let passes_mission = v.verdict.passes && crossing_s.is_none_or(|s| s > mission_s);
+    let passes_mission = v.verdict.passes && outlook == Outlook::Passes;
+    let passes = v.verdict.passes;
     VariantMission {
         name: v.name.clone(),
-        fit: cov.as_ref().and_then(|p| p.fit),
-        level,
-        projected_error: v
-            .verdict
-            .passes
-            .then(|| cov.as_ref().map(|p| p.at_end))
-            .flatten()
+        case: case.0,
+        reason: case.1.clone(),
+        trend: cov.as_ref().and_then(|p| p.trend),
+        outlook_covariance: cov.as_ref().map(|p| p.outlook),
+        projected_error: cov
+            .as_ref()
+            .filter(|_| passes)
+            .map(|p| p.at_end)
             .filter(|e| e.is_finite()),
-        state_fit: state.as_ref().and_then(|p| p.fit),
-        projected_state_sigma: v
-            .verdict
-            .passes
-            .then(|| state.as_ref().map(|p| p.at_end))
-            .flatten()
+        projected_error_high: cov
+            .as_ref()
+            .filter(|_| passes)
+            .map(|p| p.at_end_high)
+            .filter(|e| e.is_finite()),
+        state_trend: state.as_ref().and_then(|p| p.trend),
+        state_reason: state.as_ref().map(|_| STATE_REASON.to_string()),
+        outlook_state: state.as_ref().map(|p| p.outlook),
+        projected_state_sigma: state
+            .as_ref()
+            .filter(|_| passes)
+            .map(|p| p.at_end)
             .filter(|e| e.is_finite()),
         crossing_s,
+        crossing_low_s,
+        crossing_high_s,
+        run_at_least_s: (outlook == Outlook::Undecided)
+            .then(|| run_at_least.map(|h| h * dt))
+            .flatten(),
+        outlook,
         crossing,
         passes_mission,
     }
-}
-
-/// Why the reference's steady state justifies stopping early, if it does.
-fn steady_reason(steady: Option<&SteadyResult>) -> Option<String> {
-    let s = steady?;
-    let d = s.reference_distance?;
-    (d <= STEADY_TOLERANCE).then(|| {
-        format!(
-            "covariance error is level: no growth mechanism. The model is time-invariant and the \
-             reference sits on the Riccati steady state (relative distance {d:.1e}), so every \
-             later step repeats the same arithmetic on the same covariance: rounding is \
-             re-injected at a fixed level and the stable closed loop forgets it; the horizon run \
-             is enough for the covariance (the state difference, which follows the trajectory, \
-             is fitted on its own)"
-        )
-    })
 }
 
 /// Inputs of the mission analysis besides the run.
@@ -331,11 +682,11 @@ pub fn analyze(inputs: &MissionInputs<'_>, run: &RunResult) -> MissionResult {
         None => (horizon_s, true),
     };
     let mission_steps = (seconds * plan.step_hz).round().max(1.0);
-    let reason = steady_reason(run.steady.as_ref());
+    let case = covariance_case(inputs, run);
     let variants: Vec<VariantMission> = run
         .variants
         .iter()
-        .map(|v| variant_mission(v, run, mission_steps, &plan.thresholds, reason.as_deref()))
+        .map(|v| variant_mission(v, run, mission_steps, &plan.thresholds, &case))
         .collect();
 
     // The constant-gain option.
@@ -362,26 +713,40 @@ pub fn analyze(inputs: &MissionInputs<'_>, run: &RunResult) -> MissionResult {
         ),
     };
 
-    // The final verdict.
+    // The final verdict: the cheapest that passes; cheaper undecided ones
+    // are named with the horizon that would decide them.
     let order = cost_order();
     let mut passed_over = Vec::new();
+    let mut undecided = Vec::new();
+    let mut run_at_least_s: Option<f64> = None;
     let mut choice = None;
     for name in &order {
-        let (passes, why) = if name.ends_with("constant gain") {
+        let (passes, why, wait) = if name.ends_with("constant gain") {
             constant_gain_passes(name, constant_gain.as_ref(), plan, seconds)
         } else {
             match variants.iter().find(|v| &v.name == name) {
-                Some(v) if v.passes_mission => (true, String::new()),
-                Some(v) if !v.passes_mission && run_passes(run, name) => {
-                    (false, format!("projected to cross a limit {}", v.crossing))
+                Some(v) if v.passes_mission => (true, String::new(), None),
+                Some(v) if v.outlook == Outlook::Undecided => {
+                    (false, v.crossing.clone(), v.run_at_least_s)
                 }
-                Some(_) => (false, "fails over the horizon".to_string()),
-                None => (false, "not run".to_string()),
+                Some(v) if run_passes(run, name) => (
+                    false,
+                    format!("projected to cross a limit {}", v.crossing),
+                    None,
+                ),
+                Some(_) => (false, "fails over the horizon".to_string(), None),
+                None => (false, "not run".to_string(), None),
             }
         };
         if passes {
             choice = Some(name.clone());
             break;
+        }
+        if why.starts_with("undecided") {
+            undecided.push(format!("{name}: {why}"));
+            if let Some(h) = wait {
+                run_at_least_s = Some(run_at_least_s.map_or(h, |m| m.max(h)));
+            }
         }
         passed_over.push(format!("{name}: {why}"));
     }
@@ -400,6 +765,8 @@ pub fn analyze(inputs: &MissionInputs<'_>, run: &RunResult) -> MissionResult {
         constant_gain_note,
         verdict: FinalVerdict {
             choice,
+            undecided,
+            run_at_least_s,
             order,
             cycles_per_step,
             cycles_note,
@@ -502,9 +869,9 @@ fn constant_gain_passes(
     cg: Option<&ConstantGain>,
     plan: &Plan,
     mission_s: f64,
-) -> (bool, String) {
+) -> (bool, String, Option<f64>) {
     let Some(cg) = cg else {
-        return (false, "not offered for this schedule".into());
+        return (false, "not offered for this schedule".into(), None);
     };
     let Some(lane) = cg.lanes.iter().find(|l| l.name == name) else {
         return (
@@ -512,25 +879,33 @@ fn constant_gain_passes(
             cg.lanes_note
                 .clone()
                 .unwrap_or_else(|| "the core's filter was not run".into()),
+            None,
         );
     };
     if let Some(r) = &lane.refused {
-        return (false, format!("refused at {r}"));
+        return (false, format!("refused at {r}"), None);
     }
     if cg.closed_loop_radius >= 1.0 {
-        return (false, "its closed loop is not stable".into());
+        return (false, "its closed loop is not stable".into(), None);
     }
-    let sigma = plan.thresholds.max_state_difference_sigma;
-    if let Some(t) = lane.crossing_s.filter(|t| *t <= mission_s) {
+    // The transient is decided by the run itself: checked before the
+    // projection, whose undecided verdict it would otherwise hide.
+    let limit = plan
+        .thresholds
+        .max_transient_excess
+        .unwrap_or(plan.thresholds.max_relative_error);
+    if cg.max_excess > limit {
         return (
             false,
             format!(
-                "its state is projected to differ from the f64 constant-gain run by more than \
-                 {sigma} standard deviations after {}",
-                duration_words(t)
+                "its transient raises the covariance up to {:.3e} (relative) above the optimal \
+                 one > {limit:.1e} (set [verdict] max_transient_excess to accept more)",
+                cg.max_excess
             ),
+            None,
         );
     }
+    let sigma = plan.thresholds.max_state_difference_sigma;
     if lane.max_state_difference_sigma > sigma {
         return (
             false,
@@ -538,24 +913,35 @@ fn constant_gain_passes(
                 "its state differs from the f64 constant-gain run by {:.2} standard deviations > {sigma}",
                 lane.max_state_difference_sigma
             ),
+            None,
         );
     }
-    let limit = plan
-        .thresholds
-        .max_transient_excess
-        .unwrap_or(plan.thresholds.max_relative_error);
-    if cg.max_excess <= limit {
-        (true, String::new())
-    } else {
-        (
+    if lane.outlook == Some(Outlook::Fails) {
+        return (
             false,
             format!(
-                "its transient raises the covariance up to {:.3e} (relative) above the optimal \
-                 one > {limit:.1e} (set [verdict] max_transient_excess to accept more)",
-                cg.max_excess
+                "its state is projected to differ from the f64 constant-gain run by more than \
+                 {sigma} standard deviations {}",
+                lane.crossing_s.filter(|t| *t <= mission_s).map_or_else(
+                    || "within the mission".to_string(),
+                    |t| format!("after {}", duration_words(t))
+                )
             ),
-        )
+            None,
+        );
     }
+    if lane.outlook == Some(Outlook::Undecided) {
+        return (
+            false,
+            format!(
+                "undecided: run at least {} (its state difference from the f64 constant-gain run)",
+                lane.run_at_least_s
+                    .map_or_else(|| "longer".to_string(), duration_words)
+            ),
+            lane.run_at_least_s,
+        );
+    }
+    (true, String::new(), None)
 }
 
 fn constant_gain(
@@ -617,7 +1003,12 @@ fn constant_gain(
                     l.steps as f64,
                     false,
                 );
-                l.crossing_s = p.crossing_step.map(|k| k / plan.step_hz);
+                l.crossing_s = p.crossing.map(|k| k / plan.step_hz);
+                l.crossing_low_s = p.crossing_low.map(|k| k / plan.step_hz);
+                l.crossing_high_s = p.crossing_high.map(|k| k / plan.step_hz);
+                l.outlook = Some(p.outlook);
+                l.run_at_least_s = p.run_at_least.map(|k| k / plan.step_hz);
+                l.trend = p.trend;
             }
             cg.lanes = lanes;
         }
@@ -721,6 +1112,98 @@ mod tests {
         assert_eq!(plan.step_hz, 200.0);
         let c = cycles_per_step(&report, plan.step_hz).expect("priced");
         assert!((c - 620.5).abs() < 1e-9, "{c}");
+    }
+
+    /// Invented bucket maxima (tests of our own projection code): a level
+    /// with a deterministic irregular wobble, plus `slope` per step.
+    fn series(level: f64, slope: f64) -> (Vec<f64>, Vec<f64>) {
+        let k: Vec<f64> = (1..=400).map(|i| f64::from(i) * 100.0).collect();
+        let mut u: u64 = 99;
+        let e = k
+            .iter()
+            .map(|&k| {
+                u = u.wrapping_mul(6_364_136_223_846_793_005).wrapping_add(1);
+                let w = (u >> 11) as f64 / (1u64 << 53) as f64 - 0.5;
+                level * (1.0 + 0.2 * w) + slope * k
+            })
+            .collect();
+        (k, e)
+    }
+
+    #[test]
+    fn a_level_series_far_below_the_limit_passes_and_a_close_one_is_undecided() {
+        // 40 000 steps of noise about 1e-6: projected 10x, even the upper
+        // slope stays far below 1e-3.
+        let (k, e) = series(1e-6, 0.0);
+        let p = project(&k, &e, 1e-3, 4e5, 4e4, false);
+        assert!(!p.trend.expect("tested").rising);
+        assert_eq!(p.outlook, Outlook::Passes, "{p:?}");
+        assert_eq!(p.crossing, None);
+        // The same noise about 4e-4, projected 10 000x: the interval cannot
+        // exclude a crossing, so it is undecided, with a horizon between
+        // the run and the mission that would decide.
+        let (k, e) = series(4e-4, 0.0);
+        let p = project(&k, &e, 1e-3, 4e8, 4e4, false);
+        assert_eq!(p.outlook, Outlook::Undecided, "{p:?}");
+        let h = p.run_at_least.expect("a horizon");
+        assert!(h > 4e4 && h <= 4e8, "{h}");
+        // ... where the narrowed interval decides, one way or the other
+        // (the rule itself), and not a grid step before.
+        let tr = p.trend.expect("tested");
+        assert!(decide_at(&tr, h, 1e-3, 4e8).is_some());
+        assert!(decide_at(&tr, h / 1.03, 1e-3, 4e8).is_none());
+        // Bounded by theory: the same data pass.
+        assert_eq!(
+            project(&k, &e, 1e-3, 4e8, 4e4, true).outlook,
+            Outlook::Passes
+        );
+        // A mission within the horizon is the run's to decide.
+        assert_eq!(
+            project(&k, &e, 1e-3, 4e4, 4e4, false).outlook,
+            Outlook::Passes
+        );
+    }
+
+    #[test]
+    fn a_significant_rise_fails_with_an_interval_around_its_crossing() {
+        // 1e-5 + 1e-9 k reaches 1e-3 at k = 9.9e5 (arithmetic); 5% noise.
+        let (k, e) = series(1e-5, 1e-9);
+        let p = project(&k, &e, 1e-3, 4e6, 4e4, false);
+        let tr = p.trend.expect("tested");
+        assert!(tr.rising && tr.slope_low > 0.0, "{tr:?}");
+        assert_eq!(p.outlook, Outlook::Fails, "{p:?}");
+        let (lo, c, hi) = (
+            p.crossing_low.expect("low"),
+            p.crossing.expect("point"),
+            p.crossing_high.expect("high"),
+        );
+        assert!(lo <= c && c <= hi, "{lo} {c} {hi}");
+        assert!(lo <= 9.9e5 && 9.9e5 <= hi, "{lo} {hi}");
+        // A mission that ends before the interval starts passes.
+        assert_eq!(
+            project(&k, &e, 1e-3, 2e5, 4e4, false).outlook,
+            Outlook::Passes
+        );
+        // Too few points: undecided, not passed.
+        let p = project(&k[..8], &e[..8], 1e-3, 4e6, 800.0, false);
+        assert_eq!(p.outlook, Outlook::Undecided);
+        assert!(p.run_at_least.is_some());
+    }
+
+    #[test]
+    fn observability_ranks_by_hand() {
+        use nalgebra::DMatrix;
+        // Common practice: a double integrator observed in position is
+        // observable (rank 2); F = I with the Dyer-McReynolds H (two rows)
+        // reaches only 2 of 3 directions (by hand: HF^i = H).
+        let f = DMatrix::from_row_slice(2, 2, &[1.0, 0.1, 0.0, 1.0]);
+        let h = DMatrix::from_row_slice(1, 2, &[1.0, 0.0]);
+        assert_eq!(observability_rank(&f, &h), (2, 2));
+        let h = DMatrix::from_row_slice(2, 3, &[1.0, 1.0, 1.0, 1.0, 1.0, 1.0001]);
+        assert_eq!(observability_rank(&DMatrix::identity(3, 3), &h), (2, 3));
+        // A velocity-only measurement never sees the position: rank 1.
+        let h = DMatrix::from_row_slice(1, 2, &[0.0, 1.0]);
+        assert_eq!(observability_rank(&f, &h), (1, 2));
     }
 
     #[test]

@@ -1,6 +1,6 @@
 //! A hand-written SVG plot: the relative covariance error of each variant
 //! against time, on a log scale, one line per variant, with each variant's
-//! fitted growth extrapolated to the end of the mission (dashed).
+//! projected error carried to the end of the mission (dashed).
 
 use std::fmt::Write;
 
@@ -22,8 +22,9 @@ fn esc(s: &str) -> String {
         .replace('>', "&gt;")
 }
 
-/// A variant's fitted error from the end of the horizon to the end of the
-/// mission (level: its largest observed value), as (time, error) points.
+/// A variant's projected error from the end of the horizon to the end of
+/// the mission (no significant rise: its largest observed value), as
+/// (time, error) points.
 fn extrapolation(
     vm: &crate::mission::VariantMission,
     run: &RunResult,
@@ -37,9 +38,14 @@ fn extrapolation(
     (0..=40)
         .map(|i| {
             let t = 10f64.powf(l0 + (l1 - l0) * f64::from(i) / 40.0);
-            // A shrinking fit is drawn as the largest error seen: no growth.
-            let e = match (&vm.level, &vm.fit) {
-                (None, Some(f)) if f.b > 0.0 => f.at(t / run.dt).max(f64::MIN_POSITIVE),
+            // The robust line of a significant rise; otherwise the largest
+            // error seen: no growth claimed.
+            let e = match &vm.trend {
+                Some(tr) if tr.rising && vm.case != crate::mission::Case::Bounded => {
+                    (tr.line_at_end + tr.slope * (t / run.dt - tr.end_step))
+                        .max(tr.largest)
+                        .max(f64::MIN_POSITIVE)
+                }
                 _ => level,
             };
             (t, e)
@@ -173,7 +179,7 @@ pub fn plot(title: &str, run: &RunResult, threshold: f64) -> String {
         LEFT + pw / 2.0,
         HEIGHT - 16.0,
         if log_time {
-            "log scale; dashed beyond the horizon: fitted growth"
+            "log scale; dashed beyond the horizon: projected error"
         } else if t_end >= 600.0 {
             "min"
         } else {
@@ -252,11 +258,15 @@ pub fn plot(title: &str, run: &RunResult, threshold: f64) -> String {
         }
         let ly = TOP + 16.0 + 20.0 * i as f64;
         let lx = WIDTH - RIGHT + 48.0;
-        let passes = match mission.and_then(|m| m.variants.get(i)) {
-            Some(vm) => vm.passes_mission,
-            None => v.verdict.passes,
+        let mark = match mission.and_then(|m| m.variants.get(i)) {
+            Some(vm) if vm.passes_mission => "pass",
+            Some(vm) if v.verdict.passes && vm.outlook == crate::mission::Outlook::Undecided => {
+                "undecided"
+            }
+            Some(_) => "FAIL",
+            None if v.verdict.passes => "pass",
+            None => "FAIL",
         };
-        let mark = if passes { "pass" } else { "FAIL" };
         let _ = writeln!(
             s,
             r#"<line x1="{lx}" y1="{ly}" x2="{:.1}" y2="{ly}" stroke="{colour}" stroke-width="2"{dash}/><text x="{:.1}" y="{:.1}">{} ({mark})</text>"#,

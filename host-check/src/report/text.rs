@@ -61,54 +61,85 @@ and misses growth that starts later; confirm it with a longer horizon.",
         .max()
         .unwrap_or(0)
         .max(14);
+    // Slopes per hour of the mission's steps.
+    let per_hour = if m.seconds > 0.0 {
+        m.steps / m.seconds * 3600.0
+    } else {
+        0.0
+    };
     let _ = writeln!(
         o,
-        "  {:<18} {:<12} {:>10} {:>10} {:>6} {:>10} {:>10} {:>cw$}  mission",
-        "variant", "growth", "a", "b", "R^2", "at end", "state sd", "crossing"
+        "  {:<18} {:<19} {:>10} {:>21} {:>10} {:>10} {:>10}  {:<cw$}  mission",
+        "variant", "trend", "slope/h", "95% interval", "at end", "upper", "state sd", "crossing"
     );
     for v in &m.variants {
-        let (g, a, b, r2) = match &v.fit {
-            Some(f) => (f.label(), sci(f.a), sci(f.b), format!("{:.3}", f.r_squared)),
-            None => ("-".into(), "-".into(), "-".into(), "-".into()),
+        let (t, b, ci) = match &v.trend {
+            Some(t) => (
+                t.label(),
+                sci(t.slope * per_hour),
+                format!(
+                    "{} to {}",
+                    sci(t.slope_low * per_hour),
+                    sci(t.slope_high * per_hour)
+                ),
+            ),
+            None => ("-".into(), "-".into(), "-".into()),
         };
-        let g = if v.level.is_some() {
-            "level*".into()
+        let t = if v.case == crate::mission::Case::Bounded {
+            format!("{t}*")
         } else {
-            g
+            t
         };
         let _ = writeln!(
             o,
-            "  {:<18} {:<12} {:>10} {:>10} {:>6} {:>10} {:>10} {:>cw$}  {}",
+            "  {:<18} {:<19} {:>10} {:>21} {:>10} {:>10} {:>10}  {:<cw$}  {}",
             v.name,
-            g,
-            a,
+            t,
             b,
-            r2,
+            ci,
             v.projected_error.map_or("-".into(), sci),
+            v.projected_error_high.map_or("-".into(), sci),
             v.projected_state_sigma.map_or("-".into(), sci),
             v.crossing.trim_start_matches("after "),
-            if v.passes_mission { "PASS" } else { "FAIL" }
+            v.outlook.word()
         );
     }
     let _ = writeln!(
         o,
-        "  (fits: ordinary least squares of the per-bucket largest error on a, a + b k, a + b sqrt(k) \
-or a + b k^p (p fitted in 0.1 to 2, golden-section search; '2.00+' marks p at the top of that \
-range, where growth may be faster), k in steps, chosen by Schwarz's criterion; the first 10% of the horizon is left out; 'state sd' is the state difference from \
-the f64 run in standard deviations, projected the same way)"
+        "  (trend: Mann-Kendall test, two-sided 5%, on {} block maxima of the per-bucket largest \
+error after the first 10% of the horizon, variance tie-corrected and inflated for serial correlation \
+(Hamed-Rao); slope: Theil-Sen with Sen's 95% interval, relative error per hour; 'at end' follows \
+the robust line only for a significant rise, else the largest value seen; 'upper' adds the \
+interval's upper half-width above max(slope, 0); a crossing gives the robust line's time and the \
+interval's; 'state sd': the state difference from the f64 run in standard deviations, tested the \
+same way; docs/mission.md)",
+        m.variants
+            .iter()
+            .find_map(|v| v.trend.map(|t| t.blocks))
+            .unwrap_or(crate::mission::fit::BLOCKS)
     );
+    let mut reasons: Vec<&str> = Vec::new();
+    for v in &m.variants {
+        if !reasons.contains(&v.reason.as_str()) {
+            reasons.push(&v.reason);
+        }
+    }
+    for r in reasons {
+        let _ = writeln!(o, "  Covariance: {r}.");
+    }
+    if let Some(r) = m.variants.iter().find_map(|v| v.state_reason.as_deref()) {
+        let _ = writeln!(o, "  State: {r}.");
+    }
     if m.variants
         .iter()
-        .any(|v| v.level.is_none() && v.fit.is_some_and(|f| f.r_squared < 0.5))
+        .any(|v| v.outlook == crate::mission::Outlook::Undecided)
     {
         let _ = writeln!(
             o,
-            "  (R^2 below 0.5: the bucket maxima scatter more than they trend; the projection \
-takes the fitted trend as it stands, the end value is never below the largest error seen)"
+            "  (undecided: no significant rise, but the interval's upper slope would cross the limit \
+within the mission. 'Run at least' is the horizon at which the interval, narrowed as horizon/T \
+around the estimate, would decide. An undecided verdict is not a pass: exit 1.)"
         );
-    }
-    if let Some(why) = m.variants.iter().find_map(|v| v.level.as_ref()) {
-        let _ = writeln!(o, "  * {why}.");
     }
     match (&m.constant_gain, &m.constant_gain_note) {
         (Some(cg), _) => {
@@ -140,10 +171,21 @@ takes the fitted trend as it stands, the end value is never below the largest er
                     l.name,
                     l.steps,
                     sci(l.max_state_difference_sigma),
-                    l.crossing_s.map_or(String::new(), |t| format!(
-                        "; projected past the limit after {}",
-                        duration_words(t)
-                    )),
+                    match (l.outlook, l.crossing_s) {
+                        (Some(crate::mission::Outlook::Undecided), _) => format!(
+                            "; undecided: run at least {}",
+                            l.run_at_least_s
+                                .map_or_else(|| "longer".to_string(), duration_words)
+                        ),
+                        (_, Some(t)) => format!(
+                            "; projected past the limit after {} ({} to {})",
+                            duration_words(t),
+                            duration_words(l.crossing_low_s.unwrap_or(t)),
+                            l.crossing_high_s
+                                .map_or_else(|| "never".into(), duration_words)
+                        ),
+                        _ => String::new(),
+                    },
                     l.refused
                         .as_ref()
                         .map_or(String::new(), |r| format!("; REFUSED at {r}"))
@@ -462,16 +504,32 @@ first order, but no covariance form recovers information lost when S = HPH' + R 
     if let Some(m) = &run.mission {
         mission(&mut o, m, plan.thresholds.max_relative_error);
     }
+    let flash_undecided = run.mission.as_ref().and_then(|m| {
+        m.variants
+            .iter()
+            .find(|v| v.name == run.flash && v.outlook == crate::mission::Outlook::Undecided)
+            .map(|v| v.crossing.clone())
+    });
     let _ = writeln!(
         o,
         "\nFlash {}: {}{}",
         run.flash,
-        if run.flash_passes { "PASS" } else { "FAIL" },
+        if run.flash_passes {
+            "PASS"
+        } else if flash_undecided.is_some() {
+            "UNDECIDED"
+        } else {
+            "FAIL"
+        },
         match (&run.mission, run.flash_passes_horizon) {
+            (Some(_), true) if flash_undecided.is_some() => format!(
+                " (passes the horizon; the mission is {}: exit 1)",
+                flash_undecided.unwrap_or_default()
+            ),
             (Some(m), true) if !m.is_horizon && !run.flash_passes =>
-                " (passes the horizon, not the mission)",
-            (Some(m), _) if !m.is_horizon => " (for the mission)",
-            _ => "",
+                " (passes the horizon, not the mission)".to_string(),
+            (Some(m), _) if !m.is_horizon => " (for the mission)".to_string(),
+            _ => String::new(),
         }
     );
     let _ = writeln!(
@@ -481,11 +539,30 @@ first order, but no covariance form recovers information lost when S = HPH' + R 
     );
     if let Some(m) = &run.mission {
         let v = &m.verdict;
+        if !v.undecided.is_empty() {
+            let _ = writeln!(
+                o,
+                "What to flash for the mission: undecided; run at least {} to decide {} (cheaper \
+than any variant that passes now)",
+                v.run_at_least_s
+                    .map_or_else(|| "longer".to_string(), crate::mission::duration_words),
+                v.undecided
+                    .iter()
+                    .map(|u| u.split(':').next().unwrap_or(""))
+                    .collect::<Vec<_>>()
+                    .join(", ")
+            );
+        }
+        let what = if v.undecided.is_empty() {
+            "What to flash for the mission"
+        } else {
+            "Of the decided variants, the cheapest passing"
+        };
         match &v.choice {
             Some(c) => {
                 let _ = writeln!(
                     o,
-                    "What to flash for the mission: {c}; {}",
+                    "{what}: {c}; {}",
                     match v.cycles_per_step {
                         Some(cy) => format!("about {cy:.0} cycles per step ({})", v.cycles_note),
                         None => v.cycles_note.clone(),
@@ -495,7 +572,7 @@ first order, but no covariance form recovers information lost when S = HPH' + R 
             None => {
                 let _ = writeln!(
                     o,
-                    "What to flash for the mission: nothing passes (change the model, the thresholds or the mission)"
+                    "{what}: nothing passes (change the model, the thresholds or the mission)"
                 );
             }
         }
