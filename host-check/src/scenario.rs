@@ -32,7 +32,7 @@ use crate::spec::{
 pub struct Scenario<'a, const N: usize, S: System<N>> {
     plan: Plan,
     system: S,
-    channels: Vec<Box<dyn Channel<N> + 'a>>,
+    channels: Vec<Option<Box<dyn Channel<N> + 'a>>>,
     inputs: Box<dyn crate::engine::InputProfile + 'a>,
     log: Option<PathBuf>,
 }
@@ -96,6 +96,62 @@ impl<'a, const N: usize, S: System<N>> Scenario<'a, N, S> {
             inputs: Box::new(|_: f64, out: &mut [f64]| out.iter_mut().for_each(|v| *v = 0.0)),
             log: None,
         }
+    }
+
+    /// A scenario read from a spec file whose model is `kind = "own"`
+    /// (docs/spec-format.md): states, start, step rate, horizon, channels'
+    /// schedules, mission, verdict and variant to flash come from the file;
+    /// the models from `system` and [`Scenario::sensor`].
+    ///
+    /// # Errors
+    /// [`ScenarioError`] naming file, line and field for a bad spec, a spec
+    /// of another model kind, or a state count other than `N`.
+    pub fn from_spec(path: &Path, system: S) -> Result<Self, ScenarioError> {
+        let plan = crate::spec::load(path).map_err(|e| ScenarioError(e.to_string()))?;
+        if !matches!(plan.model, ModelPlan::User { .. }) {
+            return Err(ScenarioError(format!(
+                "{}: the spec's model is not `kind = \"own\"`: run it with `cairn check`",
+                path.display()
+            )));
+        }
+        if plan.n() != N {
+            return Err(ScenarioError(format!(
+                "{}: the spec lists {} states, the model has {N}",
+                path.display(),
+                plan.n()
+            )));
+        }
+        let channels = plan.channels.iter().map(|_| None).collect();
+        Ok(Self {
+            plan,
+            system,
+            channels,
+            inputs: Box::new(|_: f64, out: &mut [f64]| out.iter_mut().for_each(|v| *v = 0.0)),
+            log: None,
+        })
+    }
+
+    /// The measurement model of the spec's channel `name`.
+    ///
+    /// # Errors
+    /// [`ScenarioError`] when the spec has no such channel or its size is
+    /// not `M`.
+    pub fn sensor<const M: usize, Se: Sensor<N, M> + 'a>(
+        mut self,
+        name: &str,
+        sensor: Se,
+    ) -> Result<Self, ScenarioError> {
+        let Some(i) = self.plan.channels.iter().position(|c| c.name == name) else {
+            return Err(ScenarioError(format!("the spec has no channel `{name}`")));
+        };
+        let m = self.plan.channels[i].m;
+        if m != M {
+            return Err(ScenarioError(format!(
+                "channel `{name}` has {m} components in the spec, its model {M}"
+            )));
+        }
+        self.channels[i] = Some(Box::new(SensorChannel::<Se, M>(sensor)));
+        Ok(self)
     }
 
     /// Names and units of the states, for reports.
@@ -226,7 +282,8 @@ impl<'a, const N: usize, S: System<N>> Scenario<'a, N, S> {
             gate: None,
             line: 0,
         });
-        self.channels.push(Box::new(SensorChannel::<Se, M>(sensor)));
+        self.channels
+            .push(Some(Box::new(SensorChannel::<Se, M>(sensor))));
         self
     }
 
@@ -297,6 +354,14 @@ impl<'a, const N: usize, S: System<N>> Scenario<'a, N, S> {
                 return bad(format!("two channels are named `{}`", c.name));
             }
         }
+        for (c, model) in p.channels.iter().zip(&self.channels) {
+            if model.is_none() {
+                return bad(format!(
+                    "channel `{}` has no measurement model: give it with `.sensor(\"{}\", ...)`",
+                    c.name, c.name
+                ));
+            }
+        }
         if crate::engine::Variant::find(p.flash.precision, &p.flash.form).is_none() {
             return bad(format!(
                 "the variant to flash `{} {}` is not one the check runs (forms: conventional, joseph, u-d)",
@@ -318,7 +383,7 @@ impl<'a, const N: usize, S: System<N>> Scenario<'a, N, S> {
         let refs: Vec<&dyn Channel<N>> = self
             .channels
             .iter()
-            .map(|c| c.as_ref() as &dyn Channel<N>)
+            .filter_map(|c| c.as_deref().map(|c| c as &dyn Channel<N>))
             .collect();
         let source = match &self.log {
             Some(path) => Source::Log { path: path.clone() },
@@ -365,7 +430,7 @@ impl<const N: usize, S: System<N>> Scenario<'_, N, S> {
         let refs: Vec<&dyn Channel<N>> = self
             .channels
             .iter()
-            .map(|c| c.as_ref() as &dyn Channel<N>)
+            .filter_map(|c| c.as_deref().map(|c| c as &dyn Channel<N>))
             .collect();
         crate::consistency::run_models(&self.plan, options, &self.system, &refs, &*self.inputs)
             .map_err(|e| ScenarioError(e.to_string()))

@@ -228,3 +228,33 @@ fn the_tug_filter_is_consistent_in_monte_carlo_trials_and_a_mistuned_one_is_not(
         mistuned.text()
     );
 }
+
+#[test]
+fn the_same_scenario_from_a_spec_file_gives_the_same_check() {
+    let spec = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("tug.toml");
+    let from_file = Scenario::from_spec(&spec, Tug)
+        .and_then(|s| s.sensor("wheel", Wheel))
+        .and_then(|s| s.sensor("radio", Radio))
+        .and_then(|s| s.sensor("heading", Heading))
+        .expect("the spec reads")
+        .inputs(shift)
+        .check()
+        .expect("runs");
+    let in_rust = scenario(Tug).check().expect("runs");
+    assert!(from_file.passes(), "{}", from_file.text());
+    // The same scenario, the same seed: the same figures, bit for bit.
+    for (a, b) in from_file.run.variants.iter().zip(&in_rust.run.variants) {
+        assert_eq!(
+            a.figures.max_relative_error.to_bits(),
+            b.figures.max_relative_error.to_bits(),
+            "{}",
+            a.name
+        );
+    }
+    // A channel left without its model is refused before anything runs.
+    let missing = Scenario::from_spec(&spec, Tug)
+        .and_then(|s| s.sensor("wheel", Wheel))
+        .expect("reads")
+        .check();
+    assert!(missing.is_err_and(|e| e.0.contains("radio")));
+}

@@ -100,6 +100,8 @@ pub struct RawModel {
     /// Pose, end-to-end mode: each variant moves its origin to its x, y
     /// whenever |x| or |y| passes this many metres (off by default).
     pub recentre_m: Option<Spanned<f64>>,
+    /// Own models: what the model is, for reports.
+    pub description: Option<Spanned<String>>,
 }
 
 /// One segment of a synthesised odometry profile.
@@ -167,6 +169,8 @@ pub struct RawChannel {
     pub dropouts: Option<Spanned<Vec<Spanned<Vec<f64>>>>>,
     /// Chi-square gate threshold (none by default).
     pub gate: Option<Spanned<f64>>,
+    /// Own models: the number of components (the model brings H and R).
+    pub components: Option<Spanned<usize>>,
 }
 
 /// Initial state and covariance.

@@ -34,7 +34,9 @@ pub(super) fn plan(loc: &Locator<'_>, raw: RawSpec, base: Option<&Path>) -> R<Pl
         return Err(loc.error(0..0, "state", "at least one [[state]] is required"));
     }
     let n = raw.state.len();
-    if n > MAX_STATES {
+    // A user's own model is compiled at its own size.
+    let own = raw.model.get_ref().kind.get_ref() == "own";
+    if n > MAX_STATES && !own {
         return Err(loc.error(
             raw.state[MAX_STATES].span(),
             "state",
@@ -282,20 +284,7 @@ pub(super) fn plan(loc: &Locator<'_>, raw: RawSpec, base: Option<&Path>) -> R<Pl
                 None => 0.0,
             };
             let profile = profile(loc, model, raw.model.span(), base)?;
-            let mode = match model.mode.as_ref() {
-                None => Mode::Covariance,
-                Some(m) => match m.get_ref().as_str() {
-                    "covariance" => Mode::Covariance,
-                    "end-to-end" => Mode::EndToEnd,
-                    other => {
-                        return Err(loc.error(
-                            m.span(),
-                            "model.mode",
-                            format!("unknown mode `{other}`: use \"covariance\" or \"end-to-end\""),
-                        ));
-                    }
-                },
-            };
+            let mode = nonlinear_mode(loc, model)?;
             recentre_m = match model.recentre_m.as_ref() {
                 Some(d) => Some(recentre(loc, d, "model.recentre_m")?),
                 None => None,
@@ -314,20 +303,73 @@ pub(super) fn plan(loc: &Locator<'_>, raw: RawSpec, base: Option<&Path>) -> R<Pl
                 mode,
             )
         }
+        "own" => {
+            for (s, f) in [
+                (model.f.as_ref().map(Spanned::span), "model.f"),
+                (model.q.as_ref().map(Spanned::span), "model.q"),
+                (model.a.as_ref().map(Spanned::span), "model.a"),
+                (model.g.as_ref().map(Spanned::span), "model.g"),
+                (model.q_diag.as_ref().map(Spanned::span), "model.q_diag"),
+                (model.noise.as_ref().map(Spanned::span), "model.noise"),
+                (model.profile.as_ref().map(Spanned::span), "model.profile"),
+                (
+                    model.profile_csv.as_ref().map(Spanned::span),
+                    "model.profile_csv",
+                ),
+            ] {
+                forbid(loc, s, f, kind)?;
+            }
+            for (s, f) in [
+                (
+                    model.speed_noise.as_ref().map(Spanned::span),
+                    "model.speed_noise",
+                ),
+                (
+                    model.yaw_rate_noise.as_ref().map(Spanned::span),
+                    "model.yaw_rate_noise",
+                ),
+                (
+                    model.heading_drift.as_ref().map(Spanned::span),
+                    "model.heading_drift",
+                ),
+            ] {
+                forbid(loc, s, f, kind)?;
+            }
+            recentre_m = match model.recentre_m.as_ref() {
+                Some(d) => Some(recentre(loc, d, "model.recentre_m")?),
+                None => None,
+            };
+            (
+                ModelPlan::User {
+                    description: model
+                        .description
+                        .as_ref()
+                        .map_or_else(|| "own model".to_string(), |d| one_line(d.get_ref())),
+                },
+                nonlinear_mode(loc, model)?,
+            )
+        }
         other => {
             return Err(loc.error(
                 model.kind.span(),
                 "model.kind",
-                format!("unknown model kind `{other}`: use \"continuous\", \"discrete\" or \"planar-pose\""),
+                format!("unknown model kind `{other}`: use \"continuous\", \"discrete\", \"planar-pose\" or \"own\""),
             ));
         }
     };
     let pose = matches!(model_plan, ModelPlan::Pose { .. });
+    if !own && let Some(d) = &model.description {
+        forbid(loc, Some(d.span()), "model.description", kind)?;
+    }
 
     // Channels.
     let mut channels = Vec::with_capacity(raw.channel.len());
     for (ci, ch) in raw.channel.iter().enumerate() {
-        let c = channel(loc, ch, ci, &states, step_hz, pose, &mut conversions)?;
+        let c = if own {
+            own_channel(loc, ch, ci, step_hz)?
+        } else {
+            channel(loc, ch, ci, &states, step_hz, pose, &mut conversions)?
+        };
         // A dropout window that starts at or after the end of the horizon
         // never takes effect: most likely a typo (seconds for hours).
         let end_s = steps as f64 / step_hz;
@@ -533,17 +575,78 @@ fn horizon(loc: &Locator<'_>, raw: &RawSpec, step_hz: f64) -> R<u64> {
     Ok(steps as u64)
 }
 
-fn channel(
+/// "covariance" (the default) or "end-to-end".
+fn nonlinear_mode(loc: &Locator<'_>, model: &RawModel) -> R<Mode> {
+    Ok(match model.mode.as_ref() {
+        None => Mode::Covariance,
+        Some(m) => match m.get_ref().as_str() {
+            "covariance" => Mode::Covariance,
+            "end-to-end" => Mode::EndToEnd,
+            other => {
+                return Err(loc.error(
+                    m.span(),
+                    "model.mode",
+                    format!("unknown mode `{other}`: use \"covariance\" or \"end-to-end\""),
+                ));
+            }
+        },
+    })
+}
+
+/// A channel of a user's own model: its schedule only (the model brings
+/// h, H and R).
+fn own_channel(
     loc: &Locator<'_>,
     ch: &Spanned<RawChannel>,
     ci: usize,
-    states: &[StateInfo],
     step_hz: f64,
-    pose: bool,
-    conversions: &mut Vec<ConversionRecord>,
 ) -> R<ChannelPlan> {
     let c = ch.get_ref();
-    let n = states.len();
+    let at = |f: &str| format!("channel[{ci}].{f}");
+    for (s, f) in [
+        (c.fix.as_ref().map(Spanned::span), "fix"),
+        (c.h.as_ref().map(Spanned::span), "h"),
+        (c.r.as_ref().map(Spanned::span), "r"),
+        (c.r_diag.as_ref().map(Spanned::span), "r_diag"),
+        (c.noise.as_ref().map(Spanned::span), "noise"),
+    ] {
+        if let Some(span) = s {
+            return Err(loc.error(
+                span,
+                &at(f),
+                format!(
+                    "`{f}` is not given for an own model's channel: the model brings h, H and R"
+                ),
+            ));
+        }
+    }
+    let m = match &c.components {
+        Some(m) if *m.get_ref() >= 1 => *m.get_ref(),
+        Some(m) => {
+            return Err(loc.error(m.span(), &at("components"), "at least one component"));
+        }
+        None => {
+            return Err(loc.error(
+                ch.span(),
+                &at("components"),
+                "missing `components` (the measurement's size)",
+            ));
+        }
+    };
+    let mut plan = schedule(loc, ch, ci, step_hz)?;
+    plan.m = m;
+    plan.r = DMatrix::zeros(m, m);
+    Ok(plan)
+}
+
+/// A channel's name, rate, dropouts and gate.
+fn schedule(
+    loc: &Locator<'_>,
+    ch: &Spanned<RawChannel>,
+    ci: usize,
+    step_hz: f64,
+) -> R<ChannelPlan> {
+    let c = ch.get_ref();
     let name = one_line(c.name.get_ref().trim());
     let at = |f: &str| format!("channel[{ci}].{f}");
     if name.is_empty() {
@@ -555,6 +658,58 @@ fn channel(
             c.rate_hz.span(),
             &at("rate_hz"),
             format!("{rate_hz} Hz is faster than the filter's step rate ({step_hz} Hz)"),
+        ));
+    }
+    let mut dropouts = Vec::new();
+    if let Some(d) = &c.dropouts {
+        for w in d.get_ref() {
+            let v = w.get_ref();
+            if v.len() != 2 || !(v[0].is_finite() && v[1].is_finite()) || v[0] < 0.0 || v[1] <= v[0]
+            {
+                return Err(loc.error(
+                    w.span(),
+                    &at("dropouts"),
+                    "a dropout window is [start_s, end_s] with 0 <= start < end",
+                ));
+            }
+            dropouts.push((v[0], v[1]));
+        }
+    }
+    let gate = match &c.gate {
+        Some(g) => Some(positive(loc, g, &at("gate"))?),
+        None => None,
+    };
+    Ok(ChannelPlan {
+        name,
+        m: 0,
+        kind: ChannelKind::User,
+        r: DMatrix::zeros(0, 0),
+        rate_hz,
+        dropouts,
+        gate,
+        line: loc.line_col(ch.span().start).0,
+    })
+}
+
+fn channel(
+    loc: &Locator<'_>,
+    ch: &Spanned<RawChannel>,
+    ci: usize,
+    states: &[StateInfo],
+    step_hz: f64,
+    pose: bool,
+    conversions: &mut Vec<ConversionRecord>,
+) -> R<ChannelPlan> {
+    let c = ch.get_ref();
+    let n = states.len();
+    let at = |f: &str| format!("channel[{ci}].{f}");
+    let sched = schedule(loc, ch, ci, step_hz)?;
+    let rate_hz = sched.rate_hz;
+    if let Some(m) = &c.components {
+        return Err(loc.error(
+            m.span(),
+            &at("components"),
+            "`components` is for an own model's channel; this model's channels give `h` or `fix`",
         ));
     }
     let kind = if pose {
@@ -678,34 +833,11 @@ fn channel(
             e
         })?
     };
-    let mut dropouts = Vec::new();
-    if let Some(d) = &c.dropouts {
-        for w in d.get_ref() {
-            let v = w.get_ref();
-            if v.len() != 2 || !(v[0].is_finite() && v[1].is_finite()) || v[0] < 0.0 || v[1] <= v[0]
-            {
-                return Err(loc.error(
-                    w.span(),
-                    &at("dropouts"),
-                    "a dropout window is [start_s, end_s] with 0 <= start < end",
-                ));
-            }
-            dropouts.push((v[0], v[1]));
-        }
-    }
-    let gate = match &c.gate {
-        Some(g) => Some(positive(loc, g, &at("gate"))?),
-        None => None,
-    };
     Ok(ChannelPlan {
-        name,
         m,
         kind,
         r,
-        rate_hz,
-        dropouts,
-        gate,
-        line: loc.line_col(ch.span().start).0,
+        ..sched
     })
 }
 
