@@ -751,10 +751,14 @@ pub fn analyze(inputs: &MissionInputs<'_>, run: &RunResult) -> MissionResult {
         passed_over.push(format!("{name}: {why}"));
     }
     let cycles_per_step = None;
-    let cycles_note = format!(
-        "run `cairn cost --spec {}` (or `cairn check --cycles`) for cycles",
-        plan.file
-    );
+    let cycles_note = if matches!(plan.model, ModelPlan::User { .. }) {
+        "price your own predict and updates on the target with a probe of your crate (README: price it on the target)".to_string()
+    } else {
+        format!(
+            "run `cairn cost --spec {}` (or `cairn check --cycles`) for cycles",
+            plan.file
+        )
+    };
     MissionResult {
         seconds,
         steps: mission_steps,
