@@ -4,4 +4,5 @@ mod core_bad_input;
 mod core_closed_form;
 mod core_factored;
 mod core_invariants;
+mod readme_example;
 mod target;
