@@ -4,7 +4,8 @@
 use heapless::HistoryBuf;
 use nalgebra::SMatrix;
 
-use crate::error::Outcome;
+use crate::check;
+use crate::error::{FilterError, Operand, Outcome};
 use crate::scalar::Scalar;
 use crate::ud::UdKalman;
 
@@ -42,8 +43,13 @@ pub struct HealthReport<T> {
     pub asymmetry: T,
     /// Smallest diagonal entry of P (for a factored filter, the smallest D).
     pub min_variance: T,
+    /// `true` when P is positive definite by an LDL' factorisation (the
+    /// pivot rule of [`crate::Ldl::factor`]); for a factored filter, when
+    /// every D is positive and finite and U D U' is finite. A positive
+    /// diagonal alone does not make P a covariance.
+    pub positive_definite: bool,
     /// `true` when NIS is consistent (or too few to judge), P is symmetric
-    /// within tolerance and every variance is positive and finite.
+    /// within tolerance, finite and positive definite.
     pub healthy: bool,
 }
 
@@ -66,12 +72,26 @@ impl<T: Scalar, const W: usize> HealthMonitor<T, W> {
     /// asymmetry above 1e3 machine epsilons.
     #[must_use]
     pub fn new() -> Self {
-        Self::with_quantile(T::of(1.959_963_984_540_054))
+        Self::build(T::of(1.959_963_984_540_054))
     }
 
     /// A monitor with the two-sided interval of the given standard normal
     /// quantile (2.575829 for 99%).
-    pub fn with_quantile(z: T) -> Self {
+    ///
+    /// # Errors
+    /// [`FilterError::NonFinite`] for a NaN or infinite quantile and
+    /// [`FilterError::NotPositive`] for zero or below, both with
+    /// [`Operand::Quantile`]: either would make the interval meaningless
+    /// (a NaN bound compares false, so every window read as consistent).
+    ///
+    /// # Panics
+    /// Never.
+    pub fn try_with_quantile(z: T) -> Result<Self, FilterError> {
+        check::positive(z, Operand::Quantile)?;
+        Ok(Self::build(z))
+    }
+
+    fn build(z: T) -> Self {
         Self {
             window: HistoryBuf::new(),
             z,
@@ -99,30 +119,43 @@ impl<T: Scalar, const W: usize> HealthMonitor<T, W> {
         self.window.clear();
     }
 
-    /// Judges the window and the covariance `p`.
+    /// Judges the window and the covariance `p`: definiteness by an LDL'
+    /// factorisation of its upper triangle (about n^3 / 6 multiply-adds and
+    /// n - 1 divides), not by the diagonal alone.
     #[must_use]
     pub fn assess<const N: usize>(&self, p: &SMatrix<T, N, N>) -> HealthReport<T> {
         let (asymmetry, min_variance, finite) = covariance_sanity(p);
-        self.judge(asymmetry, min_variance, finite)
+        let definite = finite && check::definite(p).is_ok();
+        self.judge(asymmetry, min_variance, finite, definite)
     }
 
     /// Judges the window and a U-D factored filter. Definiteness is read
-    /// from D (every entry positive and finite), so `min_variance` reports
-    /// the smallest D; the factors carry no asymmetry.
+    /// from D (every entry positive and finite: U D U' is then positive
+    /// definite by construction) and from the variances of U D U' being
+    /// finite, so `min_variance` reports the smallest D; the factors carry
+    /// no asymmetry.
     #[must_use]
     pub fn assess_factored<const N: usize>(&self, filter: &UdKalman<T, N>) -> HealthReport<T> {
         let d = filter.d();
-        let finite = filter.factors().iter().all(|v| v.finite());
+        let finite = filter.factors().iter().all(|v| v.finite())
+            && filter.covariance().diagonal().iter().all(|v| v.finite());
         let min_d = d
             .iter()
             .copied()
             .fold(T::max_value().unwrap_or_else(T::one), |a, b| {
                 if b < a || !b.finite() { b } else { a }
             });
-        self.judge(T::zero(), min_d, finite)
+        let definite = finite && min_d > T::zero();
+        self.judge(T::zero(), min_d, finite, definite)
     }
 
-    fn judge(&self, asymmetry: T, min_variance: T, finite: bool) -> HealthReport<T> {
+    fn judge(
+        &self,
+        asymmetry: T,
+        min_variance: T,
+        finite: bool,
+        positive_definite: bool,
+    ) -> HealthReport<T> {
         let mut sum = T::zero();
         let mut dof: u32 = 0;
         for &(nis, d) in self.window.oldest_ordered() {
@@ -146,6 +179,7 @@ impl<T: Scalar, const W: usize> HealthMonitor<T, W> {
             (mean, lo, hi, band)
         };
         let healthy = finite
+            && positive_definite
             && min_variance > T::zero()
             && asymmetry <= self.asymmetry_limit
             && matches!(nis, NisBand::Consistent | NisBand::TooFew);
@@ -157,6 +191,7 @@ impl<T: Scalar, const W: usize> HealthMonitor<T, W> {
             nis,
             asymmetry,
             min_variance,
+            positive_definite,
             healthy,
         }
     }

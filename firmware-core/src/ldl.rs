@@ -46,8 +46,13 @@ impl<T: Scalar, const M: usize> Ldl<T, M> {
             if !(dj.finite() && dj > tol * scale && dj > T::zero()) {
                 return Err(j);
             }
-            d[j] = dj;
             let inv = T::one() / dj;
+            // A subnormal pivot has no finite reciprocal: it is this row's
+            // failure, not the NaN it would leave in the rows below.
+            if !inv.finite() {
+                return Err(j);
+            }
+            d[j] = dj;
             inv_d[j] = inv;
             for i in (j + 1)..M {
                 let mut v = s[(i, j)];
@@ -144,6 +149,70 @@ impl<T: Scalar, const M: usize> Ldl<T, M> {
         }
         x
     }
+}
+
+/// The first row where an LDL' factorisation of the symmetric matrix `a`
+/// (upper triangle read; the lower one may hold anything) meets a pivot that
+/// is not accepted, or `None` when every pivot is.
+///
+/// - `semidefinite = false` (a covariance P): every pivot must be finite,
+///   with a finite reciprocal, and exceed `n eps` times its diagonal entry,
+///   the rule of [`Ldl::factor`].
+/// - `semidefinite = true` (a noise covariance Q, often rank-deficient):
+///   the matrix tested is `a + 4 n eps diag(a)`, a shift of a few roundings
+///   relative to each diagonal entry (so the test does not depend on the
+///   units of each state), and every pivot must be positive, or zero on an
+///   all-zero row. A positive semidefinite matrix assembled in floating point
+///   passes (its rounding errors are smaller than the shift); one with an
+///   eigenvalue below minus a few roundings of its diagonal fails. A pivot
+///   too small to divide by counts as zero.
+///
+/// About n^3 / 6 multiply-adds and n - 1 divides, no allocation, no early
+/// work beyond the failing row.
+#[inline(always)]
+pub(crate) fn failing_pivot<T: Scalar, const N: usize>(
+    a: &SMatrix<T, N, N>,
+    semidefinite: bool,
+) -> Option<usize> {
+    let n = T::of(N as f64);
+    let (shift, tol) = if semidefinite {
+        (T::one() + T::EPSILON * T::of(4.0) * n, T::zero())
+    } else {
+        (T::one(), T::EPSILON * n)
+    };
+    // For i > j: c(i, j) = L_ij d_j and l(i, j) = L_ij (lower triangles).
+    let mut c = SMatrix::<T, N, N>::zeros();
+    let mut l = SMatrix::<T, N, N>::zeros();
+    for j in 0..N {
+        let ajj = a[(j, j)];
+        let mut dj = ajj * shift;
+        for k in 0..j {
+            dj -= c[(j, k)] * l[(j, k)];
+        }
+        let inv = T::one() / dj;
+        let accepted = dj.finite() && dj > tol * ajj.abs() && dj > T::zero() && inv.finite();
+        let inv = if accepted {
+            inv
+        } else if semidefinite && (dj > T::zero() || (dj == T::zero() && ajj == T::zero())) {
+            // Too small to divide by, or an all-zero row: a zero pivot.
+            T::zero()
+        } else {
+            return Some(j);
+        };
+        if j + 1 == N {
+            break;
+        }
+        for i in (j + 1)..N {
+            // Upper triangle: entry (j, i) stands for (i, j).
+            let mut v = a[(j, i)];
+            for k in 0..j {
+                v -= c[(i, k)] * l[(j, k)];
+            }
+            c[(i, j)] = v;
+            l[(i, j)] = v * inv;
+        }
+    }
+    None
 }
 
 #[cfg(test)]

@@ -72,7 +72,7 @@ mod steady;
 mod trig;
 mod ud;
 
-pub use error::{FilterError, Operand, Outcome};
+pub use error::{ErrorKind, FilterError, Operand, Outcome};
 pub use estimator::Estimator;
 pub use form::{Conventional, CovarianceForm, Joseph};
 pub use health::{HealthMonitor, HealthReport, NisBand, wilson_hilferty_bounds};

@@ -76,18 +76,30 @@ impl Scalar for f64 {
     }
 }
 
-/// Wraps an angle to (-pi, pi].
+/// Wraps an angle to (-pi, pi], for every finite input.
 ///
-/// Exact for inputs within a few turns (one subtraction of a multiple of 2 pi
-/// rounded in the scalar type); used for heading residuals and the heading state.
+/// Within 65536 rad (every heading a filter meets) one subtraction of a
+/// multiple of 2 pi rounded in the scalar type and at most one more turn:
+/// exact for inputs within a few turns. Beyond that, the remainder modulo
+/// the scalar's 2 pi is taken exactly by binary long division (subtracting
+/// 2 pi times powers of two, each subtraction exact by Sterbenz's lemma),
+/// at most about 2 x 128 steps in f32 and 2 x 1024 in f64: plain
+/// arithmetic, so host and target compute the same bits. (The result is
+/// then the angle modulo the rounded 2 pi; for such an input the last bit
+/// of the angle is already worth more than a turn in f32 beyond 2^26.)
+/// NaN and infinities come back as NaN and infinity unchanged.
 #[inline(always)]
 pub fn wrap_angle<T: Scalar>(angle: T) -> T {
     let pi = T::pi();
     let two_pi = T::two_pi();
     let mut a = angle;
     if a > pi || a <= -pi {
-        let turns = (a / two_pi).round();
-        a -= turns * two_pi;
+        if a.abs() < T::of(WRAP_DIRECT) {
+            let turns = (a / two_pi).round();
+            a -= turns * two_pi;
+        } else {
+            a = remainder_two_pi(a);
+        }
         if a <= -pi {
             a += two_pi;
         } else if a > pi {
@@ -95,6 +107,38 @@ pub fn wrap_angle<T: Scalar>(angle: T) -> T {
         }
     }
     a
+}
+
+/// Below this magnitude the rounded quotient leaves at most a turn to
+/// correct (the rounding of `turns * 2 pi` is at most half an ulp of the
+/// angle, 2^-9 rad in f32).
+const WRAP_DIRECT: f64 = 65536.0;
+
+/// `a` minus the multiple of the scalar's 2 pi that leaves it in
+/// (-2 pi, 2 pi) with the sign of `a`, exactly. Infinity and NaN pass
+/// through.
+#[cold]
+fn remainder_two_pi<T: Scalar>(a: T) -> T {
+    let two_pi = T::two_pi();
+    let half = T::of(0.5);
+    let mut r = a.abs();
+    if !r.finite() {
+        return a;
+    }
+    // The largest 2 pi 2^k not above r (doubling is exact).
+    let mut m = two_pi;
+    while m <= r * half {
+        m += m;
+    }
+    // Invariant 0 <= r < 2 m: subtracting m when r >= m is exact
+    // (m <= r < 2 m, Sterbenz 1974), halving m is exact.
+    while m >= two_pi {
+        if r >= m {
+            r -= m;
+        }
+        m *= half;
+    }
+    if a < T::zero() { -r } else { r }
 }
 
 #[cfg(test)]

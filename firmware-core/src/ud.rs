@@ -37,10 +37,14 @@ fn factor_ud<T: Scalar, const N: usize>(
     p: &SMatrix<T, N, N>,
     strict: bool,
 ) -> Result<SMatrix<T, N, N>, usize> {
-    // Pivots at the rounding level of the largest variance carry no
-    // information; for a semidefinite matrix (strict = false) they are
-    // zeroed rather than divided by, which keeps the factors of a
-    // rank-deficient Q bounded (common practice for a rank decision).
+    // A pivot at the rounding level of its own diagonal entry carries no
+    // information; for a semidefinite matrix (strict = false) it is zeroed
+    // rather than divided by, which keeps the factors of a rank-deficient Q
+    // bounded (common practice for a rank decision). The level is the row's
+    // own: measured against the largest variance, a small but real one (a
+    // slowly drifting bias beside metre-sized positions in f32) was zeroed,
+    // and that state never received its process noise. Only a pivot below
+    // minus a few roundings of the largest variance is refused.
     let mut largest = T::zero();
     for j in 0..N {
         let v = p[(j, j)].abs();
@@ -48,7 +52,8 @@ fn factor_ud<T: Scalar, const N: usize>(
             largest = v;
         }
     }
-    let floor = T::EPSILON * T::of(4.0 * N as f64) * largest;
+    let rounding = T::EPSILON * T::of(4.0 * N as f64);
+    let floor = rounding * largest;
     let mut ud = SMatrix::<T, N, N>::zeros();
     for j in (0..N).rev() {
         let mut d = p[(j, j)];
@@ -56,14 +61,15 @@ fn factor_ud<T: Scalar, const N: usize>(
             let u = ud[(j, k)];
             d -= u * u * ud[(k, k)];
         }
-        let tiny = if strict {
-            T::EPSILON * T::of(N as f64) * p[(j, j)].abs()
+        let (tiny, refuse) = if strict {
+            let tiny = T::EPSILON * T::of(N as f64) * p[(j, j)].abs();
+            (tiny, tiny)
         } else {
-            floor
+            (rounding * p[(j, j)].abs(), floor)
         };
         // Within rounding of zero is a rank-deficient direction; below
         // that, the matrix is indefinite.
-        if !d.finite() || d < -tiny || (strict && d <= tiny) {
+        if !d.finite() || d < -refuse || (strict && d <= tiny) {
             return Err(j);
         }
         if d <= tiny {
@@ -76,6 +82,15 @@ fn factor_ud<T: Scalar, const N: usize>(
         } else {
             T::zero()
         };
+        // A subnormal pivot has no finite reciprocal: refuse it here (strict)
+        // or count it as zero, rather than fill the column with infinities.
+        if !inv.finite() {
+            if strict {
+                return Err(j);
+            }
+            ud[(j, j)] = T::zero();
+            continue;
+        }
         for i in 0..j {
             let mut v = p[(i, j)];
             for k in (j + 1)..N {
@@ -452,6 +467,22 @@ impl<T: Scalar, const N: usize> UdKalman<T, N> {
         }
         if !check::all_finite(ud.as_slice()) {
             return Err(FilterError::CovarianceLost { index: 0 });
+        }
+        // Finite factors can still describe an infinite covariance: with
+        // D = 3e38 and a unit U entry, P_00 = D_0 + U_01^2 D_1 overflows in
+        // f32. The variances P_ii = D_i + sum_k>i U_ik^2 D_k must stay below
+        // half the largest finite value (doubled, they stay finite), so
+        // every entry of U D U' is finite too: |P_ij| <= sqrt(P_ii P_jj)
+        // (Cauchy-Schwarz), with room for the rounding of its sum. O(n^2).
+        for i in 0..N {
+            let mut v = ud[(i, i)];
+            for k in (i + 1)..N {
+                let u = ud[(i, k)];
+                v += u * u * ud[(k, k)];
+            }
+            if !(v + v).finite() {
+                return Err(FilterError::CovarianceLost { index: idx(i) });
+            }
         }
         self.x = x;
         self.ud = ud;
