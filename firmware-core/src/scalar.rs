@@ -156,4 +156,76 @@ mod tests {
         assert!((wrap_angle(7.0_f64) - (7.0 - 2.0 * pi)).abs() < 1e-12);
         assert!(wrap_angle(-7.0_f32) > -core::f32::consts::PI);
     }
+
+    /// The reference: the exact remainder of `a` modulo the scalar's own
+    /// 2 pi, by the platform's f64 `%` (fmod, exact by definition, IEEE 754
+    /// section 5.3.1), moved into (-pi, pi].
+    fn reference_f32(a: f32) -> f64 {
+        let two_pi = f64::from(core::f32::consts::TAU);
+        let pi = f64::from(core::f32::consts::PI);
+        let mut r = f64::from(a) % two_pi;
+        if r > pi {
+            r -= two_pi;
+        } else if r <= -pi {
+            r += two_pi;
+        }
+        r
+    }
+
+    #[test]
+    fn large_angles_land_in_the_interval() {
+        // Before, 1e9 came back as -57.7: the rounded multiple of 2 pi was
+        // off by several turns.
+        let got = wrap_angle(1e9_f32);
+        assert_eq!(f64::from(got), reference_f32(1e9));
+        assert!(got > -core::f32::consts::PI && got <= core::f32::consts::PI);
+        for a in [f32::MAX, -f32::MAX, 65536.0, -65536.0, 1.0e20, -3.0e38] {
+            let w = wrap_angle(a);
+            assert_eq!(f64::from(w), reference_f32(a), "{a}");
+        }
+        let w = wrap_angle(1e300_f64);
+        assert!(w > -core::f64::consts::PI && w <= core::f64::consts::PI);
+        // Every finite f32 in a sweep of bit patterns (all exponents): in
+        // (-pi, pi]; from 65536 up, equal to the exact remainder; below,
+        // within the rounding of the one subtraction (half an ulp of the
+        // angle, plus an ulp of the result).
+        let (pi32, pi64) = (core::f32::consts::PI, core::f64::consts::PI);
+        let mut bits = 0x9e37_79b9_u32;
+        for _ in 0..400_000 {
+            bits = bits.wrapping_mul(1_664_525).wrapping_add(1_013_904_223);
+            let a = f32::from_bits(bits);
+            if !a.is_finite() {
+                continue;
+            }
+            let w = wrap_angle(a);
+            assert!(w > -pi32 && w <= pi32, "{a} -> {w}");
+            let want = reference_f32(a);
+            if a.abs() >= 65536.0 {
+                assert_eq!(f64::from(w), want, "{a}");
+            } else {
+                let ulp = |v: f32| f64::from(f32::from_bits(v.abs().to_bits() + 1) - v.abs());
+                let err = (f64::from(w) - want).abs();
+                // The seam: pi and -pi are the same angle.
+                let err = err.min((err - 2.0 * f64::from(pi32)).abs());
+                assert!(err <= ulp(a) + ulp(pi32), "{a}: {w} vs {want}");
+            }
+            let a64 = f64::from_bits(u64::from(bits) << 32 | u64::from(bits.rotate_left(7)));
+            if a64.is_finite() {
+                let w = wrap_angle(a64);
+                assert!(w > -pi64 && w <= pi64, "{a64} -> {w}");
+            }
+        }
+        // Exact in f64 beyond the direct range too (std's `%` as reference).
+        for a in [1e10_f64, -7.5e15, 1e300, f64::MAX] {
+            let tau = core::f64::consts::TAU;
+            let mut r = a % tau;
+            if r > pi64 {
+                r -= tau;
+            } else if r <= -pi64 {
+                r += tau;
+            }
+            assert_eq!(wrap_angle(a), r, "{a}");
+        }
+        assert!(wrap_angle(f32::NAN).is_nan());
+    }
 }

@@ -21,7 +21,20 @@ use crate::scalar::Scalar;
 /// the factors, not the symmetry.
 ///
 /// Storage is compact: the strict upper triangle of `ud` holds U, its
-/// diagonal holds D. Operations are transactional like [`crate::Kalman`].
+/// diagonal holds D. Operations are transactional like [`crate::Kalman`];
+/// a predict whose U D U' would overflow is refused although its factors
+/// are finite, as the covariance form refuses it.
+///
+/// Give the process noise as sources where you can
+/// ([`UdKalman::predict_noise_input`], or a model's
+/// [`crate::ProcessModel::noise_input`]): a full Q must be factored first,
+/// and that factorisation has to decide which of its pivots are zero. A
+/// pivot at the rounding level of the largest variance that lost most of
+/// its own diagonal entry to cancellation counts as zero; a small variance
+/// beside much larger ones that is correlated almost perfectly with them in
+/// Q (a slowly drifting bias) can then lose its share of the noise, with no
+/// error. Independent sources need no factorisation: only q >= 0 is
+/// checked, and every variance reaches the state it drives.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct UdKalman<T: Scalar, const N: usize> {
     x: SVector<T, N>,
@@ -194,8 +207,9 @@ impl<T: Scalar, const N: usize> UdKalman<T, N> {
     /// weighted Gram-Schmidt on W = [F U | U_q], weights diag(D, D_q).
     ///
     /// # Errors
-    /// As [`crate::Kalman::predict`]; a Q whose U-D factorisation meets a
-    /// negative pivot is [`FilterError::NotPositiveDefinite`]. Nothing
+    /// As [`crate::Kalman::predict`] (Q passes the same semidefinite test);
+    /// [`FilterError::CovarianceLost`] also when U D U' would overflow
+    /// although the factors are finite. Nothing
     /// changes on error.
     ///
     /// # Panics
