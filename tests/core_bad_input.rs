@@ -131,17 +131,18 @@ fn a_tiny_variance_is_reported_at_its_own_row() {
         cairn_core::UdKalman::<f32, 3>::try_new(Vector3::zeros(), p).err(),
         expected
     );
-    // The same for R: row 1 of a 2 x 2 measurement noise.
+    // The same for R: row 0 of a 2 x 2 measurement noise (it used to be
+    // reported at row 1).
     refused(
         FilterError::NotPositiveDefinite {
             operand: Operand::MeasurementNoise,
-            index: 1,
+            index: 0,
         },
         |kf| {
             kf.update(
                 &Vector2::zeros(),
                 &h(),
-                &Matrix2::from_diagonal(&Vector2::new(0.01, 1e-40)),
+                &Matrix2::from_diagonal(&Vector2::new(1e-40, 0.01)),
                 None,
             )
         },

@@ -9,8 +9,8 @@
 //! reference library; the core never calls it).
 
 use cairn_core::{
-    Conventional, CovarianceForm, ErrorKind, FilterError, HealthMonitor, Joseph, Kalman, Operand,
-    UdKalman,
+    Checked, Conventional, CovarianceForm, ErrorKind, FilterError, HealthMonitor, Joseph, Kalman,
+    Operand, UdKalman,
 };
 use nalgebra::{Matrix2, Matrix2x3, Matrix3, SMatrix, Vector2, Vector3};
 
@@ -177,12 +177,10 @@ fn rank_deficient_q_from_fewer_sources_than_states_is_accepted() {
 /// The ill-conditioned update of Dyer and McReynolds (1969, as reproduced
 /// by Grewal and Andrews; matrices from memory) at d = 1e-3 in f32:
 /// P0 = I, H = [[1, 1, 1], [1, 1, 1 + d]], R = d^2 I.
-fn ill_conditioned<F: CovarianceForm>(check: bool) -> (Kalman<f32, 3, F>, Result<(), FilterError>) {
+fn ill_conditioned<F: CovarianceForm>() -> (Kalman<f32, 3, F>, Result<(), FilterError>) {
     let h = Matrix2x3::new(1.0, 1.0, 1.0, 1.0, 1.0, 1.001_f32);
     let r = Matrix2::identity() * 1e-6_f32;
-    let mut kf = Kalman::<f32, 3, F>::try_new(Vector3::zeros(), Matrix3::identity())
-        .unwrap()
-        .with_definiteness_check(check);
+    let mut kf = Kalman::<f32, 3, F>::try_new(Vector3::zeros(), Matrix3::identity()).unwrap();
     let out = kf.update(&Vector2::zeros(), &h, &r, None).map(|_| ());
     (kf, out)
 }
@@ -203,10 +201,10 @@ fn an_update_that_rounding_made_indefinite_is_caught() {
     // Unchecked, both covariance forms store an indefinite P: the
     // eigensolver finds a negative eigenvalue though every variance is
     // positive, and the health monitor (now factoring P) says so.
-    let (joseph, out) = ill_conditioned::<Joseph>(false);
+    let (joseph, out) = ill_conditioned::<Joseph>();
     assert!(out.is_ok());
     let pj = widen(joseph.covariance());
-    let (conventional, out) = ill_conditioned::<Conventional>(false);
+    let (conventional, out) = ill_conditioned::<Conventional>();
     assert!(out.is_ok());
     let pc = widen(conventional.covariance());
     let (lj, lc) = (min_eigenvalue(&pj), min_eigenvalue(&pc));
@@ -233,11 +231,11 @@ fn an_update_that_rounding_made_indefinite_is_caught() {
     let before = bits(start.state(), start.covariance());
     for (after, out) in [
         {
-            let (k, o) = ill_conditioned::<Joseph>(true);
+            let (k, o) = ill_conditioned::<Checked<Joseph>>();
             (bits(k.state(), k.covariance()), o)
         },
         {
-            let (k, o) = ill_conditioned::<Conventional>(true);
+            let (k, o) = ill_conditioned::<Checked<Conventional>>();
             (bits(k.state(), k.covariance()), o)
         },
     ] {
@@ -250,9 +248,8 @@ fn an_update_that_rounding_made_indefinite_is_caught() {
     // without it (the check only reads).
     let h = Matrix2x3::new(1.0, 0.0, 0.0, 0.0, 1.0, 0.5_f32);
     let r = Matrix2::identity() * 0.01_f32;
-    let mut on = start.with_definiteness_check(true);
+    let mut on = start.with_form::<Checked<Joseph>>();
     let mut off = start;
-    assert!(on.definiteness_checked() && !off.definiteness_checked());
     let z = Vector2::new(0.3, -0.2);
     assert!(on.update(&z, &h, &r, None).is_ok());
     assert!(off.update(&z, &h, &r, None).is_ok());

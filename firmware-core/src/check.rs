@@ -115,7 +115,9 @@ pub(crate) fn noise<T: Scalar, const N: usize>(
 ///
 /// # Errors
 /// [`FilterError::CovarianceLost`] at the first failing pivot.
-#[inline(always)]
+// Never inlined: the filters call it only with the check switched on, and
+// inlined into every operation it would grow them for the unchecked case.
+#[inline(never)]
 pub(crate) fn definite<T: Scalar, const N: usize>(p: &SMatrix<T, N, N>) -> Result<(), FilterError> {
     match failing_pivot(p, false) {
         Some(j) => Err(FilterError::CovarianceLost { index: idx(j) }),
@@ -158,12 +160,20 @@ pub(crate) fn gate<T: Scalar>(g: Option<T>) -> Result<(), FilterError> {
 /// zero or below [`FilterError::NotPositive`].
 #[inline(always)]
 pub(crate) fn positive<T: Scalar>(v: T, what: Operand) -> Result<(), FilterError> {
-    if !v.finite() {
-        Err(FilterError::NonFinite(what))
-    } else if v > T::zero() {
+    if v.finite() && v > T::zero() {
         Ok(())
     } else {
-        Err(FilterError::NotPositive(what))
+        Err(not_positive(v, what))
+    }
+}
+
+/// Which of the two ways `v` failed (only on the error path).
+#[cold]
+fn not_positive<T: Scalar>(v: T, what: Operand) -> FilterError {
+    if v.finite() {
+        FilterError::NotPositive(what)
+    } else {
+        FilterError::NonFinite(what)
     }
 }
 

@@ -18,16 +18,14 @@ use crate::scalar::Scalar;
 ///
 /// Every operation checks its inputs, computes into temporaries and commits
 /// only when the result is finite with a positive variance on every
-/// diagonal entry (and, with [`Kalman::with_definiteness_check`], positive
-/// definite by an LDL' factorisation): an `Err` or a gated measurement
+/// diagonal entry (and, with a [`crate::Checked`] form, positive definite
+/// by an LDL' factorisation): an `Err` or a gated measurement
 /// leaves state and covariance bit-identical. The covariance is exactly
 /// symmetric after every operation.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct Kalman<T: Scalar, const N: usize, F: CovarianceForm = Joseph> {
     x: SVector<T, N>,
     p: SMatrix<T, N, N>,
-    /// Whether every commit also factors P (see `with_definiteness_check`).
-    definite: bool,
     form: PhantomData<F>,
 }
 
@@ -47,39 +45,25 @@ impl<T: Scalar, const N: usize, F: CovarianceForm> Kalman<T, N, F> {
         Self {
             x,
             p,
-            definite: false,
             form: PhantomData,
         }
     }
 
-    /// Turns the definiteness check on or off (off by default). With it on,
-    /// every operation also factors the covariance it is about to store as
-    /// LDL' (upper triangle, [`crate::Ldl::factor`]'s pivot rule) and
-    /// refuses with [`FilterError::CovarianceLost`] at the first failing
-    /// pivot, leaving state and covariance bit-identical.
-    ///
-    /// The cheap commit test reads only the diagonal, and rounding can make
-    /// P indefinite with a positive diagonal: in f32 the update
-    /// P0 = I (3 x 3), H = [[1, 1, 1], [1, 1, 1.001]], R = 1e-6 I returns a
-    /// P with a negative eigenvalue in both the Joseph and the conventional
-    /// form (the exact posterior's smallest eigenvalue is +1.67e-7). The
-    /// check costs about n^3 / 6 multiply-adds and n - 1 divides per
-    /// operation (CHANGELOG.md gives the Cortex-M4F figure). `const`, so a
-    /// checked filter can be built in a `static`.
+    /// The same state and covariance under another covariance form, for
+    /// example `with_form::<Checked<Joseph>>()` to switch the definiteness
+    /// check on ([`crate::Checked`]). `const`, like [`Kalman::new_unchecked`].
     #[must_use]
-    pub const fn with_definiteness_check(mut self, on: bool) -> Self {
-        self.definite = on;
-        self
-    }
-
-    /// `true` when every operation factors the covariance before storing it.
-    pub fn definiteness_checked(&self) -> bool {
-        self.definite
+    pub const fn with_form<G: CovarianceForm>(self) -> Kalman<T, N, G> {
+        Kalman {
+            x: self.x,
+            p: self.p,
+            form: PhantomData,
+        }
     }
 
     /// Factors the stored covariance as LDL' and reports the first pivot
-    /// that is not safely positive: the test [`Kalman::with_definiteness_check`]
-    /// runs on every commit, on demand (for a polled check; the
+    /// that is not safely positive: the test a [`crate::Checked`] form runs
+    /// on every commit, on demand (for a polled check; the
     /// [`crate::HealthMonitor`] runs the same test).
     ///
     /// # Errors
@@ -431,7 +415,8 @@ impl<T: Scalar, const N: usize, F: CovarianceForm> Kalman<T, N, F> {
     #[inline(always)]
     fn commit(&mut self, x: &SVector<T, N>, p: &SMatrix<T, N, N>) -> Result<(), FilterError> {
         check::posterior(x, p)?;
-        if self.definite {
+        // A compile-time choice: a filter without the check pays nothing.
+        if F::CHECKS_DEFINITENESS {
             check::definite(p)?;
         }
         self.x = *x;

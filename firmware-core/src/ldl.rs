@@ -27,11 +27,38 @@ impl<T: Scalar, const M: usize> Ldl<T, M> {
     ///
     /// # Errors
     /// `Err(j)` with the index of the first pivot that is not safely positive.
+    /// A pivot too small for a finite reciprocal (a subnormal variance)
+    /// would turn the rows below it into NaN; when a later row fails, the
+    /// factorisation is redone on that cold path to report the tiny pivot's
+    /// own row instead.
     ///
     /// # Panics
     /// Never.
     #[inline(always)]
     pub fn factor(s: &SMatrix<T, M, M>) -> Result<Self, usize> {
+        match Self::factor_checked::<false>(s) {
+            Ok(f) => Ok(f),
+            Err(_) => Err(Self::failing_row(*s)),
+        }
+    }
+
+    /// The error path of [`Ldl::factor`]: the careful pass's failing row
+    /// (by value, so the matrix is written to memory only when this runs).
+    #[cold]
+    #[inline(never)]
+    fn failing_row(s: SMatrix<T, M, M>) -> usize {
+        match Self::factor_checked::<true>(&s) {
+            Err(j) => j,
+            // Unreachable: the careful pass refuses whatever the fast one
+            // does, and no later.
+            Ok(_) => 0,
+        }
+    }
+
+    /// The factorisation; with `RECIPROCALS`, a pivot whose reciprocal is
+    /// not finite fails at its own row.
+    #[inline(always)]
+    fn factor_checked<const RECIPROCALS: bool>(s: &SMatrix<T, M, M>) -> Result<Self, usize> {
         let mut l = SMatrix::<T, M, M>::zeros();
         let mut d = SVector::<T, M>::zeros();
         let mut inv_d = SVector::<T, M>::zeros();
@@ -46,12 +73,10 @@ impl<T: Scalar, const M: usize> Ldl<T, M> {
             if !(dj.finite() && dj > tol * scale && dj > T::zero()) {
                 return Err(j);
             }
-            let inv = T::one() / dj;
-            // A subnormal pivot has no finite reciprocal: it is this row's
-            // failure, not the NaN it would leave in the rows below.
-            if !inv.finite() {
+            if RECIPROCALS && !recip_finite(dj) {
                 return Err(j);
             }
+            let inv = T::one() / dj;
             d[j] = dj;
             inv_d[j] = inv;
             for i in (j + 1)..M {
@@ -151,6 +176,13 @@ impl<T: Scalar, const M: usize> Ldl<T, M> {
     }
 }
 
+/// `true` when 1 / `d` is finite, for a positive finite `d`: d times the
+/// largest finite value reaches 1 (a multiply, not a 14-cycle divide).
+#[inline(always)]
+fn recip_finite<T: Scalar>(d: T) -> bool {
+    d * T::max_value().unwrap_or_else(T::one) >= T::one()
+}
+
 /// The first row where an LDL' factorisation of the symmetric matrix `a`
 /// (upper triangle read; the lower one may hold anything) meets a pivot that
 /// is not accepted, or `None` when every pivot is.
@@ -167,8 +199,8 @@ impl<T: Scalar, const M: usize> Ldl<T, M> {
 ///   eigenvalue below minus a few roundings of its diagonal fails. A pivot
 ///   too small to divide by counts as zero.
 ///
-/// About n^3 / 6 multiply-adds and n - 1 divides, no allocation, no early
-/// work beyond the failing row.
+/// About n^3 / 6 multiply-adds and n - 1 divides, no allocation; stops at
+/// the failing row.
 #[inline(always)]
 pub(crate) fn failing_pivot<T: Scalar, const N: usize>(
     a: &SMatrix<T, N, N>,
@@ -180,36 +212,32 @@ pub(crate) fn failing_pivot<T: Scalar, const N: usize>(
     } else {
         (T::one(), T::EPSILON * n)
     };
-    // For i > j: c(i, j) = L_ij d_j and l(i, j) = L_ij (lower triangles).
-    let mut c = SMatrix::<T, N, N>::zeros();
-    let mut l = SMatrix::<T, N, N>::zeros();
+    // One buffer: for i > j, w(i, j) = L_ij d_j below the diagonal and
+    // w(j, i) = L_ij above it (so both are read down a column).
+    let mut w = SMatrix::<T, N, N>::zeros();
     for j in 0..N {
         let ajj = a[(j, j)];
         let mut dj = ajj * shift;
         for k in 0..j {
-            dj -= c[(j, k)] * l[(j, k)];
+            dj -= w[(j, k)] * w[(k, j)];
         }
-        let inv = T::one() / dj;
-        let accepted = dj.finite() && dj > tol * ajj.abs() && dj > T::zero() && inv.finite();
+        let accepted = dj.finite() && dj > tol * ajj.abs() && dj > T::zero() && recip_finite(dj);
         let inv = if accepted {
-            inv
+            T::one() / dj
         } else if semidefinite && (dj > T::zero() || (dj == T::zero() && ajj == T::zero())) {
             // Too small to divide by, or an all-zero row: a zero pivot.
             T::zero()
         } else {
             return Some(j);
         };
-        if j + 1 == N {
-            break;
-        }
         for i in (j + 1)..N {
             // Upper triangle: entry (j, i) stands for (i, j).
             let mut v = a[(j, i)];
             for k in 0..j {
-                v -= c[(i, k)] * l[(j, k)];
+                v -= w[(i, k)] * w[(k, j)];
             }
-            c[(i, j)] = v;
-            l[(i, j)] = v * inv;
+            w[(i, j)] = v;
+            w[(j, i)] = v * inv;
         }
     }
     None

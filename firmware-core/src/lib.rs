@@ -74,7 +74,7 @@ mod ud;
 
 pub use error::{ErrorKind, FilterError, Operand, Outcome};
 pub use estimator::Estimator;
-pub use form::{Conventional, CovarianceForm, Joseph};
+pub use form::{Checked, Conventional, CovarianceForm, Joseph};
 pub use health::{HealthMonitor, HealthReport, NisBand, wilson_hilferty_bounds};
 pub use kalman::Kalman;
 pub use ldl::Ldl;

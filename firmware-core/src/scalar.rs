@@ -118,6 +118,7 @@ const WRAP_DIRECT: f64 = 65536.0;
 /// (-2 pi, 2 pi) with the sign of `a`, exactly. Infinity and NaN pass
 /// through.
 #[cold]
+#[inline(never)]
 fn remainder_two_pi<T: Scalar>(a: T) -> T {
     let two_pi = T::two_pi();
     let half = T::of(0.5);

@@ -223,7 +223,7 @@ impl<T: Scalar, const N: usize> UdKalman<T, N> {
         check::noise(q, Operand::ProcessNoise, false)?;
         let x = f * self.x;
         let ud = self.time_update(f, q)?;
-        self.commit(x, ud)
+        self.commit::<true>(x, ud)
     }
 
     /// Extended predict through a process model, as
@@ -259,7 +259,7 @@ impl<T: Scalar, const N: usize> UdKalman<T, N> {
                 self.time_update(&jacobian, &noise)?
             }
         };
-        self.commit(next, ud)
+        self.commit::<true>(next, ud)
     }
 
     #[inline(always)]
@@ -304,7 +304,7 @@ impl<T: Scalar, const N: usize> UdKalman<T, N> {
         check::sources(g, q)?;
         let x = f * self.x;
         let ud = self.gram_schmidt(f, g, q)?;
-        self.commit(x, ud)
+        self.commit::<true>(x, ud)
     }
 
     /// Thornton's modified weighted Gram-Schmidt: the U-D factors of
@@ -476,12 +476,19 @@ impl<T: Scalar, const N: usize> UdKalman<T, N> {
             return Ok(Outcome::Gated { nis });
         }
         normalize(&mut x);
-        self.commit(x, ud)?;
+        self.commit::<false>(x, ud)?;
         Ok(Outcome::Applied { nis })
     }
 
     #[inline(always)]
-    fn commit(&mut self, x: SVector<T, N>, ud: SMatrix<T, N, N>) -> Result<(), FilterError> {
+    /// Checks and stores a computed state and factors; `PREDICT` adds the
+    /// overflow test of U D U' (a measurement update only shrinks the
+    /// covariance, so it cannot overflow one that was finite).
+    fn commit<const PREDICT: bool>(
+        &mut self,
+        x: SVector<T, N>,
+        ud: SMatrix<T, N, N>,
+    ) -> Result<(), FilterError> {
         if !check::all_finite(x.as_slice()) {
             return Err(FilterError::NonFinite(Operand::State));
         }
@@ -500,7 +507,7 @@ impl<T: Scalar, const N: usize> UdKalman<T, N> {
         // half the largest finite value (doubled, they stay finite), so
         // every entry of U D U' is finite too: |P_ij| <= sqrt(P_ii P_jj)
         // (Cauchy-Schwarz), with room for the rounding of its sum. O(n^2).
-        for i in 0..N {
+        for i in 0..if PREDICT { N } else { 0 } {
             let mut v = ud[(i, i)];
             for k in (i + 1)..N {
                 let u = ud[(i, k)];
