@@ -1,7 +1,6 @@
 //! A runtime health monitor a firmware loop can poll: windowed mean NIS
 //! against chi-square bounds, covariance asymmetry and smallest variance.
 
-use heapless::HistoryBuf;
 use nalgebra::SMatrix;
 
 use crate::check;
@@ -66,7 +65,15 @@ pub struct HealthReport<T> {
 /// too-large Q or R matters.
 #[derive(Debug, Clone)]
 pub struct HealthMonitor<T: Scalar, const W: usize> {
-    window: HistoryBuf<(T, u8), W>,
+    /// A ring of the last `W` (NIS, degrees of freedom) pairs. Our own
+    /// rather than `heapless::HistoryBuf`, whose `write` keeps a bounds
+    /// check the optimiser cannot remove (the on-target no-panic link proof
+    /// failed on it): here every index is reduced modulo `W`.
+    window: [(T, u8); W],
+    /// The slot the next sample goes to.
+    next: usize,
+    /// How many slots hold samples (at most `W`).
+    filled: usize,
     z: T,
     min_samples: u16,
     asymmetry_limit: T,
@@ -99,7 +106,9 @@ impl<T: Scalar, const W: usize> HealthMonitor<T, W> {
 
     fn build(z: T) -> Self {
         Self {
-            window: HistoryBuf::new(),
+            window: [(T::zero(), 0); W],
+            next: 0,
+            filled: 0,
             z,
             min_samples: (W / 2).max(1).min(u16::MAX as usize) as u16,
             asymmetry_limit: T::EPSILON * T::of(1e3),
@@ -116,13 +125,22 @@ impl<T: Scalar, const W: usize> HealthMonitor<T, W> {
     /// `dof = 0` are ignored.
     pub fn record_nis(&mut self, nis: T, dof: u8) {
         if nis.finite() && dof > 0 {
-            self.window.write((nis, dof));
+            if W == 0 {
+                return;
+            }
+            let i = self.next % W;
+            self.window[i] = (nis, dof);
+            self.next = (i + 1) % W;
+            if self.filled < W {
+                self.filled += 1;
+            }
         }
     }
 
     /// Forgets the window.
     pub fn clear(&mut self) {
-        self.window.clear();
+        self.next = 0;
+        self.filled = 0;
     }
 
     /// Judges the window and the covariance `p`: definiteness by an LDL'
@@ -164,11 +182,15 @@ impl<T: Scalar, const W: usize> HealthMonitor<T, W> {
     ) -> HealthReport<T> {
         let mut sum = T::zero();
         let mut dof: u32 = 0;
-        for &(nis, d) in self.window.oldest_ordered() {
-            sum += nis;
-            dof += u32::from(d);
+        // The filled slots in storage order (the first `filled` ones until
+        // the ring wraps, then all).
+        for (i, &(nis, d)) in self.window.iter().enumerate() {
+            if i < self.filled {
+                sum += nis;
+                dof += u32::from(d);
+            }
         }
-        let samples = self.window.len().min(u16::MAX as usize) as u16;
+        let samples = self.filled.min(u16::MAX as usize) as u16;
         let (mean, lower, upper, nis) = if dof == 0 || samples < self.min_samples {
             (T::zero(), T::zero(), T::zero(), NisBand::TooFew)
         } else {
@@ -267,6 +289,24 @@ mod tests {
         let (lo, hi) = wilson_hilferty_bounds(150.0_f64, 1.959_963_984_540_054);
         assert!((lo * 3.0 - 2.3597).abs() < 1.5e-4, "lo {}", lo * 3.0);
         assert!((hi * 3.0 - 3.7160).abs() < 1.5e-4, "hi {}", hi * 3.0);
+    }
+
+    #[test]
+    fn the_window_keeps_the_last_w_samples() {
+        // 4 slots, 7 samples 1..=7: the window holds 4, 5, 6, 7, mean 5.5
+        // (exact in binary floating point).
+        let mut m = HealthMonitor::<f64, 4>::new();
+        for v in 1..=7 {
+            m.record_nis(f64::from(v), 1);
+        }
+        let r = m.assess(&Matrix3::<f64>::identity());
+        assert_eq!(r.samples, 4);
+        assert_eq!(r.mean_nis_per_dof, 5.5);
+        m.record_nis(f64::NAN, 1);
+        m.record_nis(1.0, 0);
+        assert_eq!(m.assess(&Matrix3::<f64>::identity()).samples, 4);
+        m.clear();
+        assert_eq!(m.assess(&Matrix3::<f64>::identity()).samples, 0);
     }
 
     #[test]

@@ -5,7 +5,7 @@
 #![no_main]
 
 use cairn_core::pose::Odometry;
-use cairn_core::{Checked, Joseph, Kalman, UdKalman};
+use cairn_core::{Checked, HealthMonitor, Joseph, Kalman, UdKalman};
 use cairn_on_target::scenario::{self, Lcg};
 use cairn_on_target::{Line, exit, probe};
 use core::hint::black_box;
@@ -79,6 +79,17 @@ fn main() -> ! {
     let plain = checked.with_form::<Joseph>();
     for _ in 0..CALLS {
         failures += u32::from(probe::definiteness3(black_box(&plain)).is_err());
+    }
+    // The health monitor, a full window of invented NIS values.
+    let Ok(mut monitor) = HealthMonitor::<f32, 16>::try_with_quantile(1.96) else {
+        exit(false)
+    };
+    for _ in 0..16 {
+        monitor.record_nis(1.0 + 0.5 * noise.signed_unit(), 1);
+    }
+    for _ in 0..CALLS {
+        let report = probe::health_assess3(black_box(&monitor), &plain);
+        failures += u32::from(!report.positive_definite);
     }
     // A 9-state covariance: I plus a small symmetric perturbation.
     let p9 = SMatrix::<f32, 9, 9>::from_fn(|i, j| {
