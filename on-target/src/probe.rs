@@ -9,8 +9,7 @@ use cairn_core::pose::{HeadingFix, Odometry, PlanarOdometry, PositionFix};
 use core::hint::black_box;
 
 use cairn_core::{
-    Checked, Conventional, FilterError, HealthMonitor, HealthReport, Joseph, Kalman, Outcome,
-    ProcessModel, UdKalman,
+    Checked, Conventional, FilterError, Joseph, Kalman, Outcome, ProcessModel, UdKalman,
 };
 use nalgebra::{SMatrix, SVector, Vector1, Vector2};
 
@@ -77,16 +76,6 @@ pub fn pose_position_update_checked(
 #[inline(never)]
 pub fn definiteness3(filter: &Kalman<f32, 3, Joseph>) -> Result<(), FilterError> {
     filter.check_definiteness()
-}
-
-/// One poll of the health monitor on the pose covariance: the windowed NIS
-/// verdict, asymmetry, and definiteness by LDL'.
-#[inline(never)]
-pub fn health_assess3(
-    monitor: &HealthMonitor<f32, 16>,
-    filter: &Kalman<f32, 3, Joseph>,
-) -> HealthReport<f32> {
-    monitor.assess(filter.covariance())
 }
 
 /// The definiteness check alone, n = 9.
