@@ -98,6 +98,9 @@ pub fn linear{n}_update{m}_ud(
     // The driver: every generated probe, `calls` times each.
     s.push_str(
         "\n/// Runs every generated linear probe `calls` times; returns the failures.\n\
+         /// Always inlined into its caller: a function of its own in this module\n\
+         /// would be read as a probe, and the calls it makes as its own.\n\
+         #[inline(always)]\n\
          pub fn run_linear(noise: &mut Lcg, calls: u32) -> u32 {\n    let mut failures = 0u32;\n",
     );
     let mut predicted = Vec::new();

@@ -60,6 +60,93 @@ fn non_finite_measurement_matrix_and_noise() {
     refused(FilterError::NonFinite(Operand::Gate), |kf| {
         kf.update(&Vector2::zeros(), &h(), &r, Some(f32::NAN))
     });
+    refused(FilterError::NonFinite(Operand::Gate), |kf| {
+        kf.update(&Vector2::zeros(), &h(), &r, Some(f32::INFINITY))
+    });
+}
+
+#[test]
+fn a_gate_of_zero_or_below_is_named_as_such() {
+    // A finite gate that is not positive is not "NaN or infinity".
+    let r = Matrix2::identity() * 0.01;
+    for g in [0.0, -0.0, -1.0, f32::MIN] {
+        refused(FilterError::NotPositive(Operand::Gate), |kf| {
+            kf.update(&Vector2::zeros(), &h(), &r, Some(g))
+        });
+        refused(FilterError::NotPositive(Operand::Gate), |kf| {
+            kf.update_sequential(&Vector2::zeros(), &h(), &Vector2::new(0.01, 0.01), Some(g))
+        });
+        refused(FilterError::NotPositive(Operand::Gate), |kf| {
+            kf.update_with(&HeadingFix { var: 1e-3 }, &Vector1::new(0.3), Some(g))
+        });
+    }
+    assert_eq!(
+        format!("{}", FilterError::NotPositive(Operand::Gate)),
+        "gate threshold is zero or negative"
+    );
+}
+
+#[test]
+fn error_kinds_split_rejected_input_from_an_unhealthy_filter() {
+    use cairn_core::ErrorKind::{Rejected, Unhealthy};
+    // Matched without a wildcard: both kinds, nothing else.
+    let name = |k: cairn_core::ErrorKind| match k {
+        Rejected => "rejected",
+        Unhealthy => "unhealthy",
+    };
+    for (e, kind) in [
+        (FilterError::NonFinite(Operand::State), Rejected),
+        (
+            FilterError::NotPositiveDefinite {
+                operand: Operand::ProcessNoise,
+                index: 0,
+            },
+            Rejected,
+        ),
+        (FilterError::NotSymmetric(Operand::Covariance), Rejected),
+        (FilterError::InvalidTimeStep, Rejected),
+        (FilterError::NotPositive(Operand::Gate), Rejected),
+        (FilterError::SingularInnovation { pivot: 1 }, Unhealthy),
+        (FilterError::CovarianceLost { index: 2 }, Unhealthy),
+    ] {
+        assert_eq!(name(e.kind()), name(kind), "{e}");
+    }
+}
+
+#[test]
+fn a_tiny_variance_is_reported_at_its_own_row() {
+    // 1e-40 is subnormal in f32 (the smallest normal is 2^-126 = 1.18e-38,
+    // IEEE 754 binary32): its reciprocal overflows, and the LDL' test used
+    // to carry the infinity into row 2 and report that row.
+    let p = Matrix3::from_diagonal(&Vector3::new(1.0, 1e-40, 1.0_f32));
+    let expected = Some(FilterError::NotPositiveDefinite {
+        operand: Operand::Covariance,
+        index: 1,
+    });
+    assert_eq!(
+        Kalman::<f32, 3>::try_new(Vector3::zeros(), p).err(),
+        expected
+    );
+    assert_eq!(
+        cairn_core::UdKalman::<f32, 3>::try_new(Vector3::zeros(), p).err(),
+        expected
+    );
+    // The same for R: row 0 of a 2 x 2 measurement noise (it used to be
+    // reported at row 1).
+    refused(
+        FilterError::NotPositiveDefinite {
+            operand: Operand::MeasurementNoise,
+            index: 0,
+        },
+        |kf| {
+            kf.update(
+                &Vector2::zeros(),
+                &h(),
+                &Matrix2::from_diagonal(&Vector2::new(1e-40, 0.01)),
+                None,
+            )
+        },
+    );
 }
 
 #[test]

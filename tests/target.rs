@@ -25,6 +25,17 @@ pub fn have_qemu() -> bool {
         .is_ok_and(|s| s.success())
 }
 
+/// Fails the test when QEMU is missing: a missing prerequisite is a
+/// failure, not a pass (`scripts/test-all.sh` installs it).
+pub fn require_qemu() {
+    assert!(
+        have_qemu(),
+        "qemu-system-arm is not installed, so the target bit-equality tests cannot run. \
+         Install it with `apt-get install qemu-system-arm` (Debian/Ubuntu; \
+         `bash scripts/test-all.sh` does this) and run the tests again."
+    );
+}
+
 /// Builds the on-target binaries in release once per test run and returns the
 /// directory that holds them. The build uses on-target's own
 /// `.cargo/config.toml` (target, `-C target-cpu=cortex-m4`, linker script), so
@@ -111,10 +122,7 @@ fn words(output: &str, key: &str) -> Vec<u32> {
 
 #[test]
 fn target_f32_pose_run_matches_host_bit_for_bit() {
-    if !have_qemu() {
-        println!("SKIPPED: qemu-system-arm is not installed (scripts/test-all.sh installs it)");
-        return;
-    }
+    require_qemu();
     let elf = build_on_target().join("pose_qemu");
     let output = run_qemu(&elf, &[], Duration::from_secs(60));
 
@@ -175,10 +183,7 @@ fn target_f32_nine_state_run_matches_host_bit_for_bit() {
     // 600-step run in the Joseph, conventional and U-D forms against QEMU's
     // emulation of the FPv4-SP unit (IEEE 754-2008 binary32, round to
     // nearest; Arm Cortex-M4 TRM, DDI 0439).
-    if !have_qemu() {
-        println!("SKIPPED: qemu-system-arm is not installed (scripts/test-all.sh installs it)");
-        return;
-    }
+    require_qemu();
     let elf = build_on_target().join("pose_qemu");
     let output = run_qemu(&elf, &[], Duration::from_secs(60));
     let host = scenario::run_linear(scenario::LINEAR_STEPS);
@@ -197,10 +202,7 @@ fn target_f32_nine_state_run_matches_host_bit_for_bit() {
 
 #[test]
 fn cycle_bench_builds_and_says_qemu_cannot_count_cycles() {
-    if !have_qemu() {
-        println!("SKIPPED: qemu-system-arm is not installed (scripts/test-all.sh installs it)");
-        return;
-    }
+    require_qemu();
     let elf = build_on_target().join("cycle_bench");
     let output = run_qemu(&elf, &[], Duration::from_secs(60));
     // QEMU 7.2 does not model the DWT cycle counter (REFERENCES.md, measured

@@ -2,6 +2,7 @@
 
 mod core_bad_input;
 mod core_closed_form;
+mod core_definiteness;
 mod core_factored;
 mod core_invariants;
 mod readme_example;

@@ -4,6 +4,7 @@
 use nalgebra::{SMatrix, SVector};
 
 use crate::error::{FilterError, Operand, idx};
+use crate::ldl::failing_pivot;
 use crate::model::ProcessModel;
 use crate::scalar::Scalar;
 
@@ -68,10 +69,14 @@ fn pairs<T: Scalar, const N: usize>(a: &SMatrix<T, N, N>, minors: bool) -> (bool
     (asymmetric, minor)
 }
 
-/// A noise covariance: finite, symmetric, non-negative diagonal and every
-/// 2 x 2 principal minor non-negative (necessary for positive
-/// semidefiniteness, to within rounding; O(n^2)). With `strict`, the
-/// diagonal must be positive.
+/// A noise covariance: finite, symmetric, non-negative diagonal, every
+/// 2 x 2 principal minor non-negative (O(n^2), to within rounding), then
+/// positive semidefinite by an LDL' factorisation shifted by a few roundings
+/// of its diagonal ([`crate::ldl::failing_pivot`]; about n^3 / 6
+/// multiply-adds and n - 1 divides). The minors alone are necessary, not
+/// sufficient: Q = [[1, -0.6, -0.6], [-0.6, 1, -0.6], [-0.6, -0.6, 1]] passes
+/// them with an eigenvalue of -0.2. With `strict`, the diagonal must be
+/// positive.
 #[inline(always)]
 pub(crate) fn noise<T: Scalar, const N: usize>(
     a: &SMatrix<T, N, N>,
@@ -94,7 +99,30 @@ pub(crate) fn noise<T: Scalar, const N: usize>(
             index: idx(first_indefinite(*a, strict)),
         });
     }
+    if let Some(j) = failing_pivot(a, true) {
+        return Err(FilterError::NotPositiveDefinite {
+            operand: what,
+            index: idx(j),
+        });
+    }
     Ok(())
+}
+
+/// A computed covariance (upper triangle read) that is positive definite by
+/// an LDL' factorisation with [`crate::Ldl::factor`]'s pivot rule: the test
+/// the diagonal alone cannot make (an indefinite matrix can have a positive
+/// diagonal).
+///
+/// # Errors
+/// [`FilterError::CovarianceLost`] at the first failing pivot.
+// Never inlined: the filters call it only with the check switched on, and
+// inlined into every operation it would grow them for the unchecked case.
+#[inline(never)]
+pub(crate) fn definite<T: Scalar, const N: usize>(p: &SMatrix<T, N, N>) -> Result<(), FilterError> {
+    match failing_pivot(p, false) {
+        Some(j) => Err(FilterError::CovarianceLost { index: idx(j) }),
+        None => Ok(()),
+    }
 }
 
 /// The row of the first failing diagonal entry or 2 x 2 minor, in the order
@@ -123,8 +151,29 @@ fn first_indefinite<T: Scalar, const N: usize>(a: SMatrix<T, N, N>, strict: bool
 #[inline(always)]
 pub(crate) fn gate<T: Scalar>(g: Option<T>) -> Result<(), FilterError> {
     match g {
-        Some(v) if !(v.finite() && v > T::zero()) => Err(FilterError::NonFinite(Operand::Gate)),
-        _ => Ok(()),
+        Some(v) => positive(v, Operand::Gate),
+        None => Ok(()),
+    }
+}
+
+/// A finite, positive number: NaN or infinity is [`FilterError::NonFinite`],
+/// zero or below [`FilterError::NotPositive`].
+#[inline(always)]
+pub(crate) fn positive<T: Scalar>(v: T, what: Operand) -> Result<(), FilterError> {
+    if v.finite() && v > T::zero() {
+        Ok(())
+    } else {
+        Err(not_positive(v, what))
+    }
+}
+
+/// Which of the two ways `v` failed (only on the error path).
+#[cold]
+fn not_positive<T: Scalar>(v: T, what: Operand) -> FilterError {
+    if v.finite() {
+        FilterError::NotPositive(what)
+    } else {
+        FilterError::NonFinite(what)
     }
 }
 

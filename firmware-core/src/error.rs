@@ -30,6 +30,8 @@ pub enum Operand {
     Gate,
     /// The predicted measurement h(x) or the residual.
     Innovation,
+    /// The health monitor's standard normal quantile.
+    Quantile,
 }
 
 impl fmt::Display for Operand {
@@ -46,6 +48,7 @@ impl fmt::Display for Operand {
             Operand::TimeStep => "time step dt",
             Operand::Gate => "gate threshold",
             Operand::Innovation => "innovation",
+            Operand::Quantile => "health quantile",
         })
     }
 }
@@ -74,15 +77,52 @@ pub enum FilterError {
         /// The LDL' pivot that failed.
         pivot: u8,
     },
-    /// The posterior covariance would lose positive definiteness (a
-    /// non-positive or non-finite variance on the diagonal): the filter is
-    /// numerically unhealthy in this form and precision.
+    /// The posterior covariance would lose positive definiteness: a
+    /// non-positive or non-finite variance on the diagonal, a non-finite
+    /// entry, or (with the definiteness check on, or from
+    /// [`crate::Kalman::check_definiteness`]) a failing LDL' pivot. The
+    /// filter is numerically unhealthy in this form and precision.
     CovarianceLost {
-        /// The first diagonal entry that failed.
+        /// The first diagonal entry or LDL' pivot that failed.
         index: u8,
     },
     /// The time step is zero, negative or not finite.
     InvalidTimeStep,
+    /// A finite number that must be positive is zero or negative (a gate
+    /// threshold, the health monitor's quantile).
+    NotPositive(Operand),
+}
+
+/// The two things an error can mean to firmware, matched without a
+/// wildcard: the call's input was refused, or the filter's own numbers can
+/// no longer be trusted in this form and precision.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub enum ErrorKind {
+    /// The input was rejected (not finite, not a covariance, not positive,
+    /// a bad time step). Nothing changed; fix the caller or the model.
+    Rejected,
+    /// The filter cannot carry on safely: the innovation covariance could
+    /// not be factored or the posterior would not be a covariance. Nothing
+    /// changed; reinitialise, or move to a more robust form or precision.
+    Unhealthy,
+}
+
+impl FilterError {
+    /// Whether the input was refused or the filter is numerically unhealthy.
+    #[must_use]
+    pub fn kind(&self) -> ErrorKind {
+        match self {
+            FilterError::SingularInnovation { .. } | FilterError::CovarianceLost { .. } => {
+                ErrorKind::Unhealthy
+            }
+            FilterError::NonFinite(_)
+            | FilterError::NotPositiveDefinite { .. }
+            | FilterError::NotSymmetric(_)
+            | FilterError::InvalidTimeStep
+            | FilterError::NotPositive(_) => ErrorKind::Rejected,
+        }
+    }
 }
 
 impl fmt::Display for FilterError {
@@ -104,6 +144,7 @@ impl fmt::Display for FilterError {
             FilterError::InvalidTimeStep => {
                 f.write_str("time step is zero, negative or not finite")
             }
+            FilterError::NotPositive(op) => write!(f, "{op} is zero or negative"),
         }
     }
 }

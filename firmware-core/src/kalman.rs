@@ -18,9 +18,10 @@ use crate::scalar::Scalar;
 ///
 /// Every operation checks its inputs, computes into temporaries and commits
 /// only when the result is finite with a positive variance on every
-/// diagonal entry: an `Err` or a gated measurement leaves state and
-/// covariance bit-identical. The covariance is exactly symmetric after every
-/// operation.
+/// diagonal entry (and, with a [`crate::Checked`] form, positive definite
+/// by an LDL' factorisation): an `Err` or a gated measurement
+/// leaves state and covariance bit-identical. The covariance is exactly
+/// symmetric after every operation.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct Kalman<T: Scalar, const N: usize, F: CovarianceForm = Joseph> {
     x: SVector<T, N>,
@@ -46,6 +47,32 @@ impl<T: Scalar, const N: usize, F: CovarianceForm> Kalman<T, N, F> {
             p,
             form: PhantomData,
         }
+    }
+
+    /// The same state and covariance under another covariance form, for
+    /// example `with_form::<Checked<Joseph>>()` to switch the definiteness
+    /// check on ([`crate::Checked`]). `const`, like [`Kalman::new_unchecked`].
+    #[must_use]
+    pub const fn with_form<G: CovarianceForm>(self) -> Kalman<T, N, G> {
+        Kalman {
+            x: self.x,
+            p: self.p,
+            form: PhantomData,
+        }
+    }
+
+    /// Factors the stored covariance as LDL' and reports the first pivot
+    /// that is not safely positive: the test a [`crate::Checked`] form runs
+    /// on every commit, on demand (for a polled check; the
+    /// [`crate::HealthMonitor`] runs the same test).
+    ///
+    /// # Errors
+    /// [`FilterError::CovarianceLost`] with the failing pivot's row.
+    ///
+    /// # Panics
+    /// Never.
+    pub fn check_definiteness(&self) -> Result<(), FilterError> {
+        check::definite(&self.p)
     }
 
     /// A filter from an initial state and covariance.
@@ -112,8 +139,9 @@ impl<T: Scalar, const N: usize, F: CovarianceForm> Kalman<T, N, F> {
     /// # Errors
     /// [`FilterError::NonFinite`] for NaN or infinity in F or Q;
     /// [`FilterError::NotSymmetric`] or [`FilterError::NotPositiveDefinite`]
-    /// when Q fails the cheap semidefiniteness checks (symmetry, diagonal
-    /// and 2 x 2 minors); [`FilterError::CovarianceLost`] when the result
+    /// when Q is not symmetric positive semidefinite to within a few
+    /// roundings (symmetry, diagonal, 2 x 2 minors, then a shifted LDL'
+    /// factorisation); [`FilterError::CovarianceLost`] when the result
     /// would not be a covariance. Nothing changes on error.
     ///
     /// # Panics
@@ -205,6 +233,7 @@ impl<T: Scalar, const N: usize, F: CovarianceForm> Kalman<T, N, F> {
     ///
     /// # Errors
     /// [`FilterError::NonFinite`] for NaN or infinity in z, H, R or the gate;
+    /// [`FilterError::NotPositive`] for a gate of zero or below;
     /// [`FilterError::NotSymmetric`] or [`FilterError::NotPositiveDefinite`]
     /// for an R that is not positive definite; [`FilterError::SingularInnovation`]
     /// when S cannot be factored safely; [`FilterError::CovarianceLost`] when
@@ -386,6 +415,10 @@ impl<T: Scalar, const N: usize, F: CovarianceForm> Kalman<T, N, F> {
     #[inline(always)]
     fn commit(&mut self, x: &SVector<T, N>, p: &SMatrix<T, N, N>) -> Result<(), FilterError> {
         check::posterior(x, p)?;
+        // A compile-time choice: a filter without the check pays nothing.
+        if F::CHECKS_DEFINITENESS {
+            check::definite(p)?;
+        }
         self.x = *x;
         for j in 0..N {
             for i in 0..=j {

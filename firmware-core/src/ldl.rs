@@ -27,11 +27,38 @@ impl<T: Scalar, const M: usize> Ldl<T, M> {
     ///
     /// # Errors
     /// `Err(j)` with the index of the first pivot that is not safely positive.
+    /// A pivot too small for a finite reciprocal (a subnormal variance)
+    /// would turn the rows below it into NaN; when a later row fails, the
+    /// factorisation is redone on that cold path to report the tiny pivot's
+    /// own row instead.
     ///
     /// # Panics
     /// Never.
     #[inline(always)]
     pub fn factor(s: &SMatrix<T, M, M>) -> Result<Self, usize> {
+        match Self::factor_checked::<false>(s) {
+            Ok(f) => Ok(f),
+            Err(_) => Err(Self::failing_row(*s)),
+        }
+    }
+
+    /// The error path of [`Ldl::factor`]: the careful pass's failing row
+    /// (by value, so the matrix is written to memory only when this runs).
+    #[cold]
+    #[inline(never)]
+    fn failing_row(s: SMatrix<T, M, M>) -> usize {
+        match Self::factor_checked::<true>(&s) {
+            Err(j) => j,
+            // Unreachable: the careful pass refuses whatever the fast one
+            // does, and no later.
+            Ok(_) => 0,
+        }
+    }
+
+    /// The factorisation; with `RECIPROCALS`, a pivot whose reciprocal is
+    /// not finite fails at its own row.
+    #[inline(always)]
+    fn factor_checked<const RECIPROCALS: bool>(s: &SMatrix<T, M, M>) -> Result<Self, usize> {
         let mut l = SMatrix::<T, M, M>::zeros();
         let mut d = SVector::<T, M>::zeros();
         let mut inv_d = SVector::<T, M>::zeros();
@@ -46,8 +73,11 @@ impl<T: Scalar, const M: usize> Ldl<T, M> {
             if !(dj.finite() && dj > tol * scale && dj > T::zero()) {
                 return Err(j);
             }
-            d[j] = dj;
+            if RECIPROCALS && !recip_finite(dj) {
+                return Err(j);
+            }
             let inv = T::one() / dj;
+            d[j] = dj;
             inv_d[j] = inv;
             for i in (j + 1)..M {
                 let mut v = s[(i, j)];
@@ -144,6 +174,73 @@ impl<T: Scalar, const M: usize> Ldl<T, M> {
         }
         x
     }
+}
+
+/// `true` when 1 / `d` is finite, for a positive finite `d`: d times the
+/// largest finite value reaches 1 (a multiply, not a 14-cycle divide).
+#[inline(always)]
+fn recip_finite<T: Scalar>(d: T) -> bool {
+    d * T::max_value().unwrap_or_else(T::one) >= T::one()
+}
+
+/// The first row where an LDL' factorisation of the symmetric matrix `a`
+/// (upper triangle read; the lower one may hold anything) meets a pivot that
+/// is not accepted, or `None` when every pivot is.
+///
+/// - `semidefinite = false` (a covariance P): every pivot must be finite,
+///   with a finite reciprocal, and exceed `n eps` times its diagonal entry,
+///   the rule of [`Ldl::factor`].
+/// - `semidefinite = true` (a noise covariance Q, often rank-deficient):
+///   the matrix tested is `a + 4 n eps diag(a)`, a shift of a few roundings
+///   relative to each diagonal entry (so the test does not depend on the
+///   units of each state), and every pivot must be positive, or zero on an
+///   all-zero row. A positive semidefinite matrix assembled in floating point
+///   passes (its rounding errors are smaller than the shift); one with an
+///   eigenvalue below minus a few roundings of its diagonal fails. A pivot
+///   too small to divide by counts as zero.
+///
+/// About n^3 / 6 multiply-adds and n - 1 divides, no allocation; stops at
+/// the failing row.
+#[inline(always)]
+pub(crate) fn failing_pivot<T: Scalar, const N: usize>(
+    a: &SMatrix<T, N, N>,
+    semidefinite: bool,
+) -> Option<usize> {
+    let n = T::of(N as f64);
+    let (shift, tol) = if semidefinite {
+        (T::one() + T::EPSILON * T::of(4.0) * n, T::zero())
+    } else {
+        (T::one(), T::EPSILON * n)
+    };
+    // One buffer: for i > j, w(i, j) = L_ij d_j below the diagonal and
+    // w(j, i) = L_ij above it (so both are read down a column).
+    let mut w = SMatrix::<T, N, N>::zeros();
+    for j in 0..N {
+        let ajj = a[(j, j)];
+        let mut dj = ajj * shift;
+        for k in 0..j {
+            dj -= w[(j, k)] * w[(k, j)];
+        }
+        let accepted = dj.finite() && dj > tol * ajj.abs() && dj > T::zero() && recip_finite(dj);
+        let inv = if accepted {
+            T::one() / dj
+        } else if semidefinite && (dj > T::zero() || (dj == T::zero() && ajj == T::zero())) {
+            // Too small to divide by, or an all-zero row: a zero pivot.
+            T::zero()
+        } else {
+            return Some(j);
+        };
+        for i in (j + 1)..N {
+            // Upper triangle: entry (j, i) stands for (i, j).
+            let mut v = a[(j, i)];
+            for k in 0..j {
+                v -= w[(i, k)] * w[(k, j)];
+            }
+            w[(i, j)] = v;
+            w[(j, i)] = v * inv;
+        }
+    }
+    None
 }
 
 #[cfg(test)]

@@ -11,7 +11,14 @@
 //!   `SMatrix` stored inline, so mismatched dimensions are compile errors.
 //! - No panics on any input: bad input returns a [`FilterError`].
 //! - Transactional: a refused or gated update leaves state and covariance
-//!   bit-identical.
+//!   bit-identical. [`FilterError::kind`] sorts every refusal into
+//!   [`ErrorKind::Rejected`] (bad input) or [`ErrorKind::Unhealthy`] (the
+//!   filter's own numbers), matched without a wildcard.
+//! - Noise covariances are tested positive semidefinite by a shifted LDL'
+//!   factorisation, not only pair by pair; every stored covariance has a
+//!   positive finite diagonal, and the [`Checked`] form (or
+//!   [`Kalman::check_definiteness`], or the [`HealthMonitor`]) factors it to
+//!   catch an indefinite one that rounding left with a positive diagonal.
 //! - Bounded time: every operation is straight-line loops over N and M.
 //! - No explicit inverse and no square root in the covariance path (S is
 //!   factored as LDL'); P is exactly symmetric after every operation.
@@ -169,9 +176,9 @@ mod steady;
 mod trig;
 mod ud;
 
-pub use error::{FilterError, Operand, Outcome};
+pub use error::{ErrorKind, FilterError, Operand, Outcome};
 pub use estimator::Estimator;
-pub use form::{Conventional, CovarianceForm, Joseph};
+pub use form::{Checked, Conventional, CovarianceForm, Joseph};
 pub use health::{HealthMonitor, HealthReport, NisBand, wilson_hilferty_bounds};
 pub use kalman::Kalman;
 pub use ldl::Ldl;

@@ -200,3 +200,108 @@ impl<T: Scalar> MeasurementModel<T, 3, 1> for HeadingFix<T> {
         x[2] = wrap_angle(x[2]);
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Central difference of `f` along `e`, step `h`: error O(h^2) (common
+    /// practice for checking Jacobians).
+    fn central(f: impl Fn(f64) -> Vector3<f64>, h: f64) -> Vector3<f64> {
+        (f(h) - f(-h)) / (2.0 * h)
+    }
+
+    fn motion() -> PlanarOdometry<f64> {
+        PlanarOdometry {
+            speed_var: 4e-4,
+            yaw_rate_var: 1e-4,
+            heading_drift_var: 2e-6,
+        }
+    }
+
+    #[test]
+    fn jacobians_match_central_differences_of_the_model() {
+        // Step 1e-5: truncation error about h^2 |f'''| ~ 1e-10 for these
+        // magnitudes, rounding about eps / h ~ 2e-11; the check allows 1e-8.
+        let h = 1e-5;
+        let m = motion();
+        for (x, u, dt) in [
+            (Vector3::new(1.0, -2.0, 0.3), (0.8, 0.4), 0.01),
+            (Vector3::new(-5.0, 3.0, 3.1), (1.5, -2.0), 0.05),
+            (Vector3::new(0.0, 0.0, -1.7), (-0.5, 0.1), 0.2),
+        ] {
+            let odo = Odometry {
+                speed: u.0,
+                yaw_rate: u.1,
+            };
+            let lin = m.linearize(&x, &odo, dt);
+            assert_eq!(lin.jacobian, m.jacobian(&x, &odo, dt));
+            // State Jacobian: column c is d f / d x_c.
+            for c in 0..3 {
+                let num = central(
+                    |s| {
+                        let mut xs = x;
+                        xs[c] += s;
+                        m.transition(&xs, &odo, dt)
+                    },
+                    h,
+                );
+                let col = lin.jacobian.column(c).into_owned();
+                assert!((num - col).amax() < 1e-8, "F column {c}: {num} vs {col}");
+            }
+            // Noise input Jacobian: the first two columns of G are d f / d
+            // speed and d f / d yaw rate; the third drives the heading alone.
+            let (g, q) = lin.sources.expect("the pose model gives sources");
+            let by_speed = central(
+                |s| {
+                    let o = Odometry {
+                        speed: u.0 + s,
+                        yaw_rate: u.1,
+                    };
+                    m.transition(&x, &o, dt)
+                },
+                h,
+            );
+            let by_rate = central(
+                |s| {
+                    let o = Odometry {
+                        speed: u.0,
+                        yaw_rate: u.1 + s,
+                    };
+                    m.transition(&x, &o, dt)
+                },
+                h,
+            );
+            assert!((by_speed - g.column(0)).amax() < 1e-8, "G speed {by_speed}");
+            assert!(
+                (by_rate - g.column(1)).amax() < 1e-8,
+                "G yaw rate {by_rate}"
+            );
+            assert_eq!(g.column(2).into_owned(), Vector3::new(0.0, 0.0, 1.0));
+            assert_eq!(q, Vector3::new(4e-4, 1e-4, 2e-6));
+            // And Q is G diag(q) G', the model's `noise`.
+            let full = g * SMatrix::<f64, 3, 3>::from_diagonal(&q) * g.transpose();
+            assert!((full - lin.noise).amax() < 1e-18);
+        }
+        // Measurement Jacobians: h is linear, so differences are exact up
+        // to rounding.
+        let x = Vector3::new(0.4, -0.9, 2.0);
+        let fix = PositionFix {
+            r: Matrix2::identity() * 0.01,
+        };
+        let heading = HeadingFix { var: 1e-3 };
+        for c in 0..3 {
+            let step = |s: f64| {
+                let mut xs = x;
+                xs[c] += s;
+                xs
+            };
+            let dpos = (fix.predict(&step(h)) - fix.predict(&step(-h))) / (2.0 * h);
+            let hp = MeasurementModel::<f64, 3, 2>::jacobian(&fix, &x);
+            assert!((dpos - hp.column(c)).amax() < 1e-9, "position column {c}");
+            let dh = (heading.predict(&step(h)) - heading.predict(&step(-h))) / (2.0 * h);
+            let hh = MeasurementModel::<f64, 3, 1>::jacobian(&heading, &x);
+            assert!((dh - hh.column(c)).amax() < 1e-9, "heading column {c}");
+        }
+    }
+}

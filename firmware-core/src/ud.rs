@@ -21,7 +21,20 @@ use crate::scalar::Scalar;
 /// the factors, not the symmetry.
 ///
 /// Storage is compact: the strict upper triangle of `ud` holds U, its
-/// diagonal holds D. Operations are transactional like [`crate::Kalman`].
+/// diagonal holds D. Operations are transactional like [`crate::Kalman`];
+/// a predict whose U D U' would overflow is refused although its factors
+/// are finite, as the covariance form refuses it.
+///
+/// Give the process noise as sources where you can
+/// ([`UdKalman::predict_noise_input`], or a model's
+/// [`crate::ProcessModel::noise_input`]): a full Q must be factored first,
+/// and that factorisation has to decide which of its pivots are zero. A
+/// pivot at the rounding level of the largest variance that lost most of
+/// its own diagonal entry to cancellation counts as zero; a small variance
+/// beside much larger ones that is correlated almost perfectly with them in
+/// Q (a slowly drifting bias) can then lose its share of the noise, with no
+/// error. Independent sources need no factorisation: only q >= 0 is
+/// checked, and every variance reaches the state it drives.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct UdKalman<T: Scalar, const N: usize> {
     x: SVector<T, N>,
@@ -30,8 +43,9 @@ pub struct UdKalman<T: Scalar, const N: usize> {
 
 /// U-D factorisation of a symmetric positive semidefinite matrix (upper
 /// unit-triangular U, diagonal D), packed. Zero pivots are allowed (the
-/// column of U is then zero, and pivots within rounding of zero count as
-/// zero); negative or non-finite pivots are refused.
+/// column of U is then zero, and pivots within rounding of zero, or below
+/// it, count as zero); non-finite pivots are refused, and with `strict`
+/// every pivot that is not safely positive.
 #[inline(always)]
 fn factor_ud<T: Scalar, const N: usize>(
     p: &SMatrix<T, N, N>,
@@ -41,6 +55,13 @@ fn factor_ud<T: Scalar, const N: usize>(
     // information; for a semidefinite matrix (strict = false) they are
     // zeroed rather than divided by, which keeps the factors of a
     // rank-deficient Q bounded (common practice for a rank decision).
+    // Except a pivot that kept a good part of its own diagonal entry (more
+    // than 2^-10 of it: little cancellation, so not a rank-deficient
+    // direction, whose pivot is a few roundings of its entry):
+    // a small but real variance, such as a slowly drifting bias beside
+    // metre-sized positions in f32, which zeroing would cut off from its
+    // process noise for good. A pivot within a few roundings of its own
+    // diagonal entry is zero in any case.
     let mut largest = T::zero();
     for j in 0..N {
         let v = p[(j, j)].abs();
@@ -48,7 +69,9 @@ fn factor_ud<T: Scalar, const N: usize>(
             largest = v;
         }
     }
-    let floor = T::EPSILON * T::of(4.0 * N as f64) * largest;
+    let rounding = T::EPSILON * T::of(4.0 * N as f64);
+    let floor = rounding * largest;
+    let kept = T::of(1.0 / 1024.0);
     let mut ud = SMatrix::<T, N, N>::zeros();
     for j in (0..N).rev() {
         let mut d = p[(j, j)];
@@ -56,14 +79,22 @@ fn factor_ud<T: Scalar, const N: usize>(
             let u = ud[(j, k)];
             d -= u * u * ud[(k, k)];
         }
+        let own = p[(j, j)].abs();
         let tiny = if strict {
-            T::EPSILON * T::of(N as f64) * p[(j, j)].abs()
+            T::EPSILON * T::of(N as f64) * own
+        } else if d > kept * own {
+            rounding * own
         } else {
             floor
         };
-        // Within rounding of zero is a rank-deficient direction; below
-        // that, the matrix is indefinite.
-        if !d.finite() || d < -tiny || (strict && d <= tiny) {
+        // A covariance (strict) needs every pivot safely positive. A noise
+        // covariance has already passed the shifted LDL' test of
+        // `check::noise`, so it is semidefinite to within a few roundings:
+        // a pivot this bottom-up elimination drives below zero is rounding
+        // amplified by a nearly dependent pair of rows (measured: about 4%
+        // of random rank-2 3 x 3 f32 matrices G diag(q) G'), a rank-deficient
+        // direction, and is zeroed like one rather than refused.
+        if !d.finite() || (strict && d <= tiny) {
             return Err(j);
         }
         if d <= tiny {
@@ -76,6 +107,15 @@ fn factor_ud<T: Scalar, const N: usize>(
         } else {
             T::zero()
         };
+        // A subnormal pivot has no finite reciprocal: refuse it here (strict)
+        // or count it as zero, rather than fill the column with infinities.
+        if !inv.finite() {
+            if strict {
+                return Err(j);
+            }
+            ud[(j, j)] = T::zero();
+            continue;
+        }
         for i in 0..j {
             let mut v = p[(i, j)];
             for k in (j + 1)..N {
@@ -167,8 +207,9 @@ impl<T: Scalar, const N: usize> UdKalman<T, N> {
     /// weighted Gram-Schmidt on W = [F U | U_q], weights diag(D, D_q).
     ///
     /// # Errors
-    /// As [`crate::Kalman::predict`]; a Q whose U-D factorisation meets a
-    /// negative pivot is [`FilterError::NotPositiveDefinite`]. Nothing
+    /// As [`crate::Kalman::predict`] (Q passes the same semidefinite test);
+    /// [`FilterError::CovarianceLost`] also when U D U' would overflow
+    /// although the factors are finite. Nothing
     /// changes on error.
     ///
     /// # Panics
@@ -182,7 +223,7 @@ impl<T: Scalar, const N: usize> UdKalman<T, N> {
         check::noise(q, Operand::ProcessNoise, false)?;
         let x = f * self.x;
         let ud = self.time_update(f, q)?;
-        self.commit(x, ud)
+        self.commit::<true>(x, ud)
     }
 
     /// Extended predict through a process model, as
@@ -218,7 +259,7 @@ impl<T: Scalar, const N: usize> UdKalman<T, N> {
                 self.time_update(&jacobian, &noise)?
             }
         };
-        self.commit(next, ud)
+        self.commit::<true>(next, ud)
     }
 
     #[inline(always)]
@@ -263,7 +304,7 @@ impl<T: Scalar, const N: usize> UdKalman<T, N> {
         check::sources(g, q)?;
         let x = f * self.x;
         let ud = self.gram_schmidt(f, g, q)?;
-        self.commit(x, ud)
+        self.commit::<true>(x, ud)
     }
 
     /// Thornton's modified weighted Gram-Schmidt: the U-D factors of
@@ -435,12 +476,19 @@ impl<T: Scalar, const N: usize> UdKalman<T, N> {
             return Ok(Outcome::Gated { nis });
         }
         normalize(&mut x);
-        self.commit(x, ud)?;
+        self.commit::<false>(x, ud)?;
         Ok(Outcome::Applied { nis })
     }
 
     #[inline(always)]
-    fn commit(&mut self, x: SVector<T, N>, ud: SMatrix<T, N, N>) -> Result<(), FilterError> {
+    /// Checks and stores a computed state and factors; `PREDICT` adds the
+    /// overflow test of U D U' (a measurement update only shrinks the
+    /// covariance, so it cannot overflow one that was finite).
+    fn commit<const PREDICT: bool>(
+        &mut self,
+        x: SVector<T, N>,
+        ud: SMatrix<T, N, N>,
+    ) -> Result<(), FilterError> {
         if !check::all_finite(x.as_slice()) {
             return Err(FilterError::NonFinite(Operand::State));
         }
@@ -452,6 +500,22 @@ impl<T: Scalar, const N: usize> UdKalman<T, N> {
         }
         if !check::all_finite(ud.as_slice()) {
             return Err(FilterError::CovarianceLost { index: 0 });
+        }
+        // Finite factors can still describe an infinite covariance: with
+        // D = 3e38 and a unit U entry, P_00 = D_0 + U_01^2 D_1 overflows in
+        // f32. The variances P_ii = D_i + sum_k>i U_ik^2 D_k must stay below
+        // half the largest finite value (doubled, they stay finite), so
+        // every entry of U D U' is finite too: |P_ij| <= sqrt(P_ii P_jj)
+        // (Cauchy-Schwarz), with room for the rounding of its sum. O(n^2).
+        for i in 0..if PREDICT { N } else { 0 } {
+            let mut v = ud[(i, i)];
+            for k in (i + 1)..N {
+                let u = ud[(i, k)];
+                v += u * u * ud[(k, k)];
+            }
+            if !(v + v).finite() {
+                return Err(FilterError::CovarianceLost { index: idx(i) });
+            }
         }
         self.x = x;
         self.ud = ud;

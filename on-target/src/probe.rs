@@ -8,7 +8,9 @@
 use cairn_core::pose::{HeadingFix, Odometry, PlanarOdometry, PositionFix};
 use core::hint::black_box;
 
-use cairn_core::{Conventional, FilterError, Joseph, Kalman, Outcome, ProcessModel, UdKalman};
+use cairn_core::{
+    Checked, Conventional, FilterError, Joseph, Kalman, Outcome, ProcessModel, UdKalman,
+};
 use nalgebra::{SMatrix, SVector, Vector1, Vector2};
 
 use crate::scenario::Lcg;
@@ -44,6 +46,42 @@ pub fn pose_heading_update(
     gate: Option<f32>,
 ) -> Result<Outcome<f32>, FilterError> {
     filter.update_with(model, z, gate)
+}
+
+/// Pose filter predict with the definiteness check on: every commit also
+/// factors P as LDL' (the `Checked<Joseph>` form).
+#[inline(never)]
+pub fn pose_predict_checked(
+    filter: &mut Kalman<f32, 3, Checked<Joseph>>,
+    model: &PlanarOdometry<f32>,
+    odo: &Odometry<f32>,
+    dt: f32,
+) -> Result<(), FilterError> {
+    filter.predict_with(model, odo, dt)
+}
+
+/// Pose filter position update (m = 2) with the definiteness check on.
+#[inline(never)]
+pub fn pose_position_update_checked(
+    filter: &mut Kalman<f32, 3, Checked<Joseph>>,
+    model: &PositionFix<f32>,
+    z: &Vector2<f32>,
+    gate: Option<f32>,
+) -> Result<Outcome<f32>, FilterError> {
+    filter.update_with(model, z, gate)
+}
+
+/// The definiteness check alone, n = 3: an LDL' factorisation of the
+/// stored covariance (`Kalman::check_definiteness`).
+#[inline(never)]
+pub fn definiteness3(filter: &Kalman<f32, 3, Joseph>) -> Result<(), FilterError> {
+    filter.check_definiteness()
+}
+
+/// The definiteness check alone, n = 9.
+#[inline(never)]
+pub fn definiteness9(filter: &Kalman<f32, 9, Joseph>) -> Result<(), FilterError> {
+    filter.check_definiteness()
 }
 
 /// The pose predict's arithmetic with nothing else: the model's step and
