@@ -1026,3 +1026,60 @@ fn bad_recentring_distances_exit_two_naming_the_field() {
     ]);
     assert_eq!(out.status.code(), Some(2));
 }
+
+#[test]
+fn a_twenty_four_state_linear_spec_runs_and_keeps_the_closed_form_steady_state() {
+    // 24 independent random walks, q = r = 1, each measured every step by
+    // one of eight 3-component channels, started at the steady posterior
+    // p = (sqrt(5) - 1) / 2 (the scalar Riccati equation p = (p + q) r /
+    // (p + q + r) with q = r = 1, solved by hand): the covariance stays
+    // there, in every variant, at the largest size the spec allows.
+    let n = 24;
+    let p = (5.0_f64.sqrt() - 1.0) / 2.0;
+    let mut text = String::from("title = \"24 random walks\"\n");
+    for i in 0..n {
+        text.push_str(&format!("[[state]]\nname = \"w{i}\"\nunit = \"1\"\n"));
+    }
+    let row = |i: usize| {
+        let cells: Vec<&str> = (0..n).map(|j| if i == j { "1.0" } else { "0.0" }).collect();
+        format!("[{}]", cells.join(", "))
+    };
+    let rows: Vec<String> = (0..n).map(row).collect();
+    text.push_str(&format!(
+        "[model]\nkind = \"discrete\"\nstep_hz = 10.0\nf = [{}]\nq_diag = [{}]\n",
+        rows.join(", "),
+        vec!["1.0"; n].join(", ")
+    ));
+    for c in 0..8 {
+        text.push_str(&format!(
+            "[[channel]]\nname = \"gauge{c}\"\nrate_hz = 10.0\nh = [{}, {}, {}]\nr_diag = [1.0, 1.0, 1.0]\n",
+            row(3 * c),
+            row(3 * c + 1),
+            row(3 * c + 2)
+        ));
+    }
+    text.push_str(&format!(
+        "[start]\nx = [{}]\np_diag = [{}]\n[horizon]\nsteps = 200\n",
+        vec!["0.0"; n].join(", "),
+        vec![format!("{p:.17}"); n].join(", ")
+    ));
+    let spec = scratch("twenty-four.toml");
+    std::fs::write(&spec, &text).unwrap();
+    let json = scratch("twenty-four.json");
+    let out = cairn(&[
+        "check",
+        spec.to_str().unwrap(),
+        "--no-progress",
+        "--json",
+        json.to_str().unwrap(),
+    ]);
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(0), "{err}");
+    let v: Value = serde_json::from_str(&std::fs::read_to_string(&json).unwrap()).unwrap();
+    let fin = &v["run"]["reference"]["final_covariance"];
+    for i in 0..n {
+        let got = num(&fin[i][i]);
+        assert!((got - p).abs() < 1e-14, "P[{i}][{i}] = {got}");
+    }
+    assert_eq!(v["run"]["variants"].as_array().map(Vec::len), Some(6));
+}

@@ -258,3 +258,95 @@ fn the_same_scenario_from_a_spec_file_gives_the_same_check() {
         .check();
     assert!(missing.is_err_and(|e| e.0.contains("radio")));
 }
+
+#[test]
+fn gated_measurements_are_compared_on_the_reference_decisions() {
+    // A tight gate on the radio (chi-square 2 dof at 0.5 passes only ~22%
+    // of consistent fixes: Abramowitz & Stegun 26.4, P(chi2_2 < x) = 1 - e^(-x/2)).
+    let report = Scenario::new(
+        "Bramble tug, tight radio gate",
+        Tug,
+        [6.0, 4.0, std::f64::consts::FRAC_PI_2, 0.0, 0.0],
+        [0.01, 0.01, 1e-4, 1e-4, 1e-5],
+    )
+    .step_hz(100.0)
+    .horizon_s(120.0)
+    .inputs(shift)
+    .channel("radio", Radio, 1.0)
+    .gate(0.5)
+    .channel("wheel", Wheel, 10.0)
+    .check()
+    .expect("runs");
+    let text = report.text();
+    let r = &report.run.reference;
+    assert!(r.gated > 20, "{text}");
+    for v in &report.run.variants {
+        // Every variant applied exactly what the reference applied ...
+        assert_eq!(v.figures.updates_applied, r.updates, "{}: {text}", v.name);
+        assert_eq!(v.figures.updates_gated, r.gated, "{}: {text}", v.name);
+    }
+    // ... so the f64 forms still agree with it to rounding level (common
+    // practice), whatever their own gate would have decided.
+    let f64j = report.variant("f64 joseph").expect("ran");
+    assert!(f64j.figures.max_relative_error < 1e-9, "{text}");
+    assert_eq!(f64j.gate_differences, 0, "{text}");
+}
+
+/// The tug's motion with a Jacobian that turns NaN after 30 s of driving
+/// (a division by a speed that passes zero, as a slip would).
+struct NanAfter<T>(TugMotion<T>);
+
+impl<T: Scalar> ProcessModel<T, STATES> for NanAfter<T> {
+    type Input = ImuSample<T>;
+    fn transition(&self, x: &SVector<T, STATES>, u: &ImuSample<T>, dt: T) -> SVector<T, STATES> {
+        self.0.transition(x, u, dt)
+    }
+    fn jacobian(
+        &self,
+        x: &SVector<T, STATES>,
+        u: &ImuSample<T>,
+        dt: T,
+    ) -> SMatrix<T, STATES, STATES> {
+        let mut f = self.0.jacobian(x, u, dt);
+        if x[bramble_tug::SPEED] > T::of(1.0) {
+            f[(0, 3)] = T::zero() / T::zero();
+        }
+        f
+    }
+    fn noise(&self, x: &SVector<T, STATES>, u: &ImuSample<T>, dt: T) -> SMatrix<T, STATES, STATES> {
+        self.0.noise(x, u, dt)
+    }
+}
+
+struct NanTug;
+
+impl System<STATES> for NanTug {
+    type Process<T: Scalar> = NanAfter<T>;
+    fn process<T: Scalar>(&self) -> NanAfter<T> {
+        NanAfter(Tug.process::<T>())
+    }
+    fn input_len(&self) -> usize {
+        2
+    }
+    fn input<T: Scalar>(&self, v: &[f64]) -> ImuSample<T> {
+        Tug.input::<T>(v)
+    }
+}
+
+#[test]
+fn a_model_returning_nan_is_named_with_its_step_not_a_panic() {
+    // 1 m/s^2 forward: the speed passes 1 m/s after about a second.
+    let err = Scenario::new("NaN tug", NanTug, [0.0; 5], [0.01, 0.01, 1e-4, 1e-4, 1e-5])
+        .inputs(|_, u: &mut [f64]| {
+            u[0] = 0.0;
+            u[1] = 1.0;
+        })
+        .horizon_s(5.0)
+        .check()
+        .err()
+        .expect("refused");
+    assert!(
+        err.0.contains("jacobian") && err.0.contains("step"),
+        "{err}"
+    );
+}
