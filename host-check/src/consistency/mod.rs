@@ -257,7 +257,7 @@ impl Visit for Study<'_> {
 
 /// The runs, in batches: each batch in parallel, then summed in run order.
 /// A run in flight holds every variant's trace; the batch keeps that under
-/// [`MEMORY_BUDGET`].
+/// the memory budget (1 GiB).
 #[allow(clippy::too_many_arguments)]
 pub fn study<const N: usize, S: System<N>>(
     plan: &Plan,

@@ -14,7 +14,7 @@
 //! | [`stream`] | the reference stage, block by block                     |
 //! | [`lanes`]  | the variants' stage                                     |
 //! | [`jacobian`] | each model's Jacobian against central differences     |
-//! | [`check`]  | the stages of one check, in order                       |
+//! | [`mod@check`] | the stages of one check, in order                       |
 //! | [`trials`] | Monte Carlo NEES/NIS runs on the same world             |
 //! | [`result`] | what a check found                                      |
 //!
