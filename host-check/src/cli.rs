@@ -360,7 +360,7 @@ fn check(
         }),
     };
     let mut result = run::run(&plan, opts).map_err(|e| bad(located(&plan, e)))?;
-    crate::mission::fail_on_external(&mut result);
+    crate::engine::mission::fail_on_external(&mut result);
     if out.cycles
         && let Some(m) = result.mission.as_mut()
     {
@@ -368,7 +368,7 @@ fn check(
             .verdict
             .choice
             .as_deref()
-            .and_then(crate::mission::probe_form)
+            .and_then(crate::engine::mission::probe_form)
         {
             Some(form) => {
                 let mut priced = plan.clone();
@@ -387,7 +387,11 @@ fn check(
                 m.verdict.choice.as_deref().unwrap_or("nothing")
             )),
         };
-        crate::mission::attach_cycles(m, estimate.as_ref().map_err(Clone::clone), plan.step_hz);
+        crate::engine::mission::attach_cycles(
+            m,
+            estimate.as_ref().map_err(Clone::clone),
+            plan.step_hz,
+        );
     }
     if out.quiet {
         output::print(&format!(

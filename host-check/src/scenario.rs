@@ -408,7 +408,7 @@ impl<'a, const N: usize, S: System<N>> Scenario<'a, N, S> {
         if self.log.is_some() && run.dt > 0.0 {
             plan.step_hz = 1.0 / run.dt;
         }
-        crate::mission::complete(&plan, &steady, &mut run);
+        crate::engine::mission::complete(&plan, &steady, &mut run);
         Ok(Report { plan, run })
     }
 }

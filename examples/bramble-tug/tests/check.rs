@@ -343,8 +343,7 @@ fn a_model_returning_nan_is_named_with_its_step_not_a_panic() {
         })
         .horizon_s(5.0)
         .check()
-        .err()
-        .expect("refused");
+        .expect_err("refused");
     assert!(
         err.0.contains("jacobian") && err.0.contains("step"),
         "{err}"

@@ -25,24 +25,7 @@ use crate::spec::{Mode, Plan};
 /// Steps recorded by the reference stage per block.
 const BLOCK: usize = 1024;
 
-/// The LTI model between updates: (F^m, H stacked, sum F^i Q F^i', R
-/// block diagonal, m steps per update).
-pub type Lifted = (
-    nalgebra::DMatrix<f64>,
-    nalgebra::DMatrix<f64>,
-    nalgebra::DMatrix<f64>,
-    nalgebra::DMatrix<f64>,
-    u64,
-);
-
-/// The steady-state problem of a time-invariant scenario, if it has one.
-#[derive(Debug, Clone, Default)]
-pub struct Steady {
-    /// The model lifted to the update period.
-    pub lifted: Option<Lifted>,
-    /// Why there is none.
-    pub note: Option<String>,
-}
+pub use super::steady::{Lifted, Steady};
 
 fn rows(m: &nalgebra::DMatrix<f64>) -> Vec<Vec<f64>> {
     (0..m.nrows())

@@ -17,6 +17,7 @@
 //! | [`mod@check`] | the stages of one check, in order                       |
 //! | [`trials`] | Monte Carlo NEES/NIS runs on the same world             |
 //! | [`result`] | what a check found                                      |
+//! | [`mission`] | the stage after a run: growth over the mission, what to flash |
 //!
 //! Gate decisions: the reference decides each gated measurement on its own
 //! (double-double) innovation covariance, and every variant applies exactly
@@ -32,7 +33,9 @@ pub mod jacobian;
 pub mod lanes;
 pub mod log;
 pub mod metrics;
+pub mod mission;
 pub mod result;
+pub mod steady;
 pub mod stream;
 pub(crate) mod synth;
 pub mod system;

@@ -165,5 +165,5 @@ pub struct RunResult {
     /// Where the steps came from ("simulated" or the log's path).
     pub source: String,
     /// The mission-length verdict (filled in once the run is over).
-    pub mission: Option<crate::mission::MissionResult>,
+    pub mission: Option<crate::engine::mission::types::MissionResult>,
 }

@@ -26,7 +26,7 @@ fn esc(s: &str) -> String {
 /// the mission (no significant rise: its largest observed value), as
 /// (time, error) points.
 fn extrapolation(
-    vm: &crate::mission::VariantMission,
+    vm: &crate::engine::mission::VariantMission,
     run: &RunResult,
     t0: f64,
     t1: f64,
@@ -41,7 +41,7 @@ fn extrapolation(
             // The robust line of a significant rise; otherwise the largest
             // error seen: no growth claimed.
             let e = match &vm.trend {
-                Some(tr) if tr.rising && vm.case != crate::mission::Case::Bounded => {
+                Some(tr) if tr.rising && vm.case != crate::engine::mission::Case::Bounded => {
                     (tr.line_at_end + tr.slope * (t / run.dt - tr.end_step))
                         .max(tr.largest)
                         .max(f64::MIN_POSITIVE)
@@ -198,7 +198,7 @@ pub fn plot(title: &str, run: &RunResult, threshold: f64) -> String {
             TOP + 12.0,
             LEFT + pw - 3.0,
             TOP + 12.0,
-            esc(&crate::mission::duration_words(m.seconds))
+            esc(&crate::engine::mission::duration_words(m.seconds))
         );
     }
     // Threshold.
@@ -260,7 +260,9 @@ pub fn plot(title: &str, run: &RunResult, threshold: f64) -> String {
         let lx = WIDTH - RIGHT + 48.0;
         let mark = match mission.and_then(|m| m.variants.get(i)) {
             Some(vm) if vm.passes_mission => "pass",
-            Some(vm) if v.verdict.passes && vm.outlook == crate::mission::Outlook::Undecided => {
+            Some(vm)
+                if v.verdict.passes && vm.outlook == crate::engine::mission::Outlook::Undecided =>
+            {
                 "undecided"
             }
             Some(_) => "FAIL",

@@ -30,8 +30,8 @@ fn duration(s: f64) -> String {
 }
 
 /// The mission section: growth fits, crossing times, the constant gain.
-fn mission(o: &mut String, m: &crate::mission::MissionResult, limit: f64) {
-    use crate::mission::duration_words;
+fn mission(o: &mut String, m: &crate::engine::mission::MissionResult, limit: f64) {
+    use crate::engine::mission::duration_words;
     let _ = writeln!(
         o,
         "\nMission: {}{} ({:.3e} steps); error limit {}",
@@ -85,7 +85,7 @@ and misses growth that starts later; confirm it with a longer horizon.",
             ),
             None => ("-".into(), "-".into(), "-".into()),
         };
-        let t = if v.case == crate::mission::Case::Bounded {
+        let t = if v.case == crate::engine::mission::Case::Bounded {
             format!("{t}*")
         } else {
             t
@@ -116,7 +116,7 @@ same way; docs/mission.md)",
         m.variants
             .iter()
             .find_map(|v| v.trend.map(|t| t.blocks))
-            .unwrap_or(crate::mission::fit::BLOCKS)
+            .unwrap_or(crate::engine::mission::fit::BLOCKS)
     );
     let mut reasons: Vec<&str> = Vec::new();
     for v in &m.variants {
@@ -132,7 +132,7 @@ same way; docs/mission.md)",
     }
     if m.variants
         .iter()
-        .any(|v| v.outlook == crate::mission::Outlook::Undecided)
+        .any(|v| v.outlook == crate::engine::mission::Outlook::Undecided)
     {
         let _ = writeln!(
             o,
@@ -172,7 +172,7 @@ around the estimate, would decide. An undecided verdict is not a pass: exit 1.)"
                     l.steps,
                     sci(l.max_state_difference_sigma),
                     match (l.outlook, l.crossing_s) {
-                        (Some(crate::mission::Outlook::Undecided), _) => format!(
+                        (Some(crate::engine::mission::Outlook::Undecided), _) => format!(
                             "; undecided: run at least {}",
                             l.run_at_least_s
                                 .map_or_else(|| "longer".to_string(), duration_words)
@@ -507,7 +507,9 @@ first order, but no covariance form recovers information lost when S = HPH' + R 
     let flash_undecided = run.mission.as_ref().and_then(|m| {
         m.variants
             .iter()
-            .find(|v| v.name == run.flash && v.outlook == crate::mission::Outlook::Undecided)
+            .find(|v| {
+                v.name == run.flash && v.outlook == crate::engine::mission::Outlook::Undecided
+            })
             .map(|v| v.crossing.clone())
     });
     let _ = writeln!(
@@ -544,8 +546,10 @@ first order, but no covariance form recovers information lost when S = HPH' + R 
                 o,
                 "What to flash for the mission: undecided; run at least {} to decide {} (cheaper \
 than any variant that passes now)",
-                v.run_at_least_s
-                    .map_or_else(|| "longer".to_string(), crate::mission::duration_words),
+                v.run_at_least_s.map_or_else(
+                    || "longer".to_string(),
+                    crate::engine::mission::duration_words
+                ),
                 v.undecided
                     .iter()
                     .map(|u| u.split(':').next().unwrap_or(""))

@@ -39,7 +39,7 @@ impl Visit for Check<'_> {
             &steady,
             self.opts,
         )?;
-        crate::mission::complete(self.plan, &steady, &mut result);
+        crate::engine::mission::complete(self.plan, &steady, &mut result);
         Ok(result)
     }
 }

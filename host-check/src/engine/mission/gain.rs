@@ -6,7 +6,7 @@ use cairn_core::{FilterError, Scalar, SteadyGain};
 use nalgebra::{DMatrix, DVector, SMatrix, SVector};
 use serde::Serialize;
 
-use crate::engine::check::Lifted;
+use crate::engine::steady::Lifted;
 use crate::engine::synth::{Noise, sqrt_factor};
 use crate::numeric::dare;
 

@@ -6,14 +6,14 @@
 
 pub mod fit;
 pub mod gain;
+pub mod types;
 
-use serde::Serialize;
-
-use crate::engine::check::Lifted;
 use crate::engine::result::{RunResult, SteadyResult};
+use crate::engine::steady::Lifted;
 use crate::spec::{ChannelKind, ModelPlan, Plan};
 pub use fit::Trend;
 pub use gain::{ConstantGain, GainLaneResult};
+pub use types::*;
 
 /// The reference counts as steady when its last posterior is this close
 /// (relative, Frobenius) to the Riccati solution.
@@ -26,179 +26,6 @@ const MAX_GAIN_STEPS: u64 = 2_000_000;
 /// Points of the geometric grid of horizons searched for the run length
 /// that would decide an undecided projection.
 const HORIZON_GRID: usize = 400;
-
-/// What a projection says about the mission.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
-#[serde(rename_all = "kebab-case")]
-pub enum Outlook {
-    /// Within the limit for the whole mission, even at the upper end of
-    /// the slope interval (or by the steady-state argument).
-    Passes,
-    /// Over the limit within the mission: over it within the horizon, or a
-    /// significant rise that crosses it even at the lower end of the slope
-    /// interval.
-    Fails,
-    /// The data cannot decide: no significant rise, but the upper end of
-    /// the slope interval would cross within the mission (or too few
-    /// points to test).
-    Undecided,
-}
-
-impl Outlook {
-    /// "PASS", "FAIL" or "UNDECIDED".
-    pub fn word(self) -> &'static str {
-        match self {
-            Outlook::Passes => "PASS",
-            Outlook::Fails => "FAIL",
-            Outlook::Undecided => "UNDECIDED",
-        }
-    }
-}
-
-/// Which case of theory applies to a variant's covariance error.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
-#[serde(rename_all = "kebab-case")]
-pub enum Case {
-    /// Time-invariant and on the Riccati steady state: bounded.
-    Bounded,
-    /// Time-invariant, but the reference has not reached the steady state.
-    NotSteady,
-    /// Some modes are not reached by the measurements.
-    Unobservable,
-    /// Measurements drop out: the covariance runs open loop in the gaps.
-    Dropouts,
-    /// Time-varying (nonlinear model, or a schedule without a lifted
-    /// steady state): no bound to lean on.
-    TimeVarying,
-    /// No measurements at all.
-    OpenLoop,
-}
-
-/// One variant over the mission.
-#[derive(Debug, Clone, Serialize)]
-pub struct VariantMission {
-    /// Variant name.
-    pub name: String,
-    /// Which case of theory applies to its covariance error.
-    pub case: Case,
-    /// Why, in one sentence.
-    pub reason: String,
-    /// The trend test and robust slope on its relative covariance error
-    /// (none when it stopped early or had too few points).
-    pub trend: Option<Trend>,
-    /// What the covariance projection alone says (none when it stopped).
-    pub outlook_covariance: Option<Outlook>,
-    /// Its relative covariance error at the end of the mission: the robust
-    /// line when the rise is significant, else the largest block maximum
-    /// after the start-up; never below the largest value seen.
-    pub projected_error: Option<f64>,
-    /// The upper end: the largest block maximum after the start-up plus
-    /// the upper slope (the interval's upper half-width above max(slope, 0)) times the steps left (that maximum
-    /// itself when bounded); never below the largest value seen.
-    pub projected_error_high: Option<f64>,
-    /// The same test on its state difference from the f64 run (in standard
-    /// deviations), when states are compared.
-    pub state_trend: Option<Trend>,
-    /// Why the state difference is tested rather than bounded.
-    pub state_reason: Option<String>,
-    /// What the state projection alone says.
-    pub outlook_state: Option<Outlook>,
-    /// That difference at the end of the mission (as `projected_error`).
-    pub projected_state_sigma: Option<f64>,
-    /// When its relative error or its state difference would cross its
-    /// threshold, s from the start, whichever first (robust line; `None`:
-    /// no significant rise, or it fails within the horizon at the time
-    /// given).
-    pub crossing_s: Option<f64>,
-    /// The earliest crossing the slope interval allows, s.
-    pub crossing_low_s: Option<f64>,
-    /// The latest, s (`None`: the interval reaches a slope of 0: never).
-    pub crossing_high_s: Option<f64>,
-    /// For an undecided verdict: the horizon that would decide it, s.
-    pub run_at_least_s: Option<f64>,
-    /// The mission verdict.
-    pub outlook: Outlook,
-    /// The crossing in words ("never", "after 3.2 days (1.1 to 9.0
-    /// days)", "fails within the horizon", "undecided: run at least 6.1 h").
-    pub crossing: String,
-    /// `true` when it passes over the horizon and the mission outlook is
-    /// [`Outlook::Passes`].
-    pub passes_mission: bool,
-}
-
-/// The final verdict: what to flash.
-#[derive(Debug, Clone, Serialize)]
-pub struct FinalVerdict {
-    /// The cheapest variant that passes for the whole mission, if any.
-    pub choice: Option<String>,
-    /// Cheaper variants whose mission verdict is undecided, with the
-    /// horizon that would decide each ("f32 joseph: run at least 6.1 h").
-    pub undecided: Vec<String>,
-    /// The longest of those horizons, s.
-    pub run_at_least_s: Option<f64>,
-    /// Order tried, cheapest first.
-    pub order: Vec<String>,
-    /// Estimated cycles per filter step of the choice, when a cost figure
-    /// applies.
-    pub cycles_per_step: Option<f64>,
-    /// Where the cycles came from, or how to get them.
-    pub cycles_note: String,
-    /// Why cheaper options were passed over.
-    pub passed_over: Vec<String>,
-}
-
-/// The whole mission analysis.
-#[derive(Debug, Clone, Serialize)]
-pub struct MissionResult {
-    /// Mission length, s.
-    pub seconds: f64,
-    /// Mission length in filter steps.
-    pub steps: f64,
-    /// `true` when no mission was stated (the horizon is the mission).
-    pub is_horizon: bool,
-    /// The horizon the projections start from, s.
-    pub horizon_seconds: f64,
-    /// Per variant, in the run's order.
-    pub variants: Vec<VariantMission>,
-    /// The constant-gain option, when offered.
-    pub constant_gain: Option<ConstantGain>,
-    /// Why the constant-gain option is not offered, or a caveat.
-    pub constant_gain_note: Option<String>,
-    /// The final verdict.
-    pub verdict: FinalVerdict,
-}
-
-/// "after 3.2 days" and so on.
-pub fn duration_words(s: f64) -> String {
-    if !s.is_finite() {
-        "never".into()
-    } else if s >= 1000.0 * 31_557_600.0 {
-        format!("{:.1e} years", s / 31_557_600.0)
-    } else if s >= 2.0 * 31_557_600.0 {
-        format!("{:.0} years", s / 31_557_600.0)
-    } else if s >= 2.0 * 86_400.0 {
-        format!("{:.1} days", s / 86_400.0)
-    } else if s >= 2.0 * 3600.0 {
-        format!("{:.1} h", s / 3600.0)
-    } else if s >= 120.0 {
-        format!("{:.1} min", s / 60.0)
-    } else {
-        format!("{s:.3} s")
-    }
-}
-
-/// Cost order of the final verdict: constant gain, conventional, Joseph,
-/// U-D, every f32 form before any f64 one (f64 is software arithmetic on a
-/// Cortex-M4F, about 75x the f32 cost: docs/references.md, measured here).
-pub fn cost_order() -> Vec<String> {
-    let mut v = Vec::new();
-    for p in ["f32", "f64"] {
-        for f in ["constant gain", "conventional", "joseph", "u-d"] {
-            v.push(format!("{p} {f}"));
-        }
-    }
-    v
-}
 
 /// A tested series projected to the mission (steps throughout).
 #[derive(Debug, Clone, Copy)]
@@ -1039,6 +866,38 @@ pub fn complete(plan: &Plan, steady: &crate::engine::Steady, result: &mut RunRes
         .iter()
         .any(|v| v.name == result.flash && v.passes_mission);
     result.mission = Some(mission);
+}
+
+/// "after 3.2 days" and so on.
+pub fn duration_words(s: f64) -> String {
+    if !s.is_finite() {
+        "never".into()
+    } else if s >= 1000.0 * 31_557_600.0 {
+        format!("{:.1e} years", s / 31_557_600.0)
+    } else if s >= 2.0 * 31_557_600.0 {
+        format!("{:.0} years", s / 31_557_600.0)
+    } else if s >= 2.0 * 86_400.0 {
+        format!("{:.1} days", s / 86_400.0)
+    } else if s >= 2.0 * 3600.0 {
+        format!("{:.1} h", s / 3600.0)
+    } else if s >= 120.0 {
+        format!("{:.1} min", s / 60.0)
+    } else {
+        format!("{s:.3} s")
+    }
+}
+
+/// Cost order of the final verdict: constant gain, conventional, Joseph,
+/// U-D, every f32 form before any f64 one (f64 is software arithmetic on a
+/// Cortex-M4F, about 75x the f32 cost: docs/references.md, measured here).
+pub fn cost_order() -> Vec<String> {
+    let mut v = Vec::new();
+    for p in ["f32", "f64"] {
+        for f in ["constant gain", "conventional", "joseph", "u-d"] {
+            v.push(format!("{p} {f}"));
+        }
+    }
+    v
 }
 
 #[cfg(test)]
