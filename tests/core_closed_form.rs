@@ -39,7 +39,7 @@ fn random_walk_steady<F: CovarianceForm>(q: f64, r: f64) -> (f64, f64, f64) {
 fn random_walk_in_white_noise_reaches_the_closed_form_steady_state() {
     // Steady prior variance P = (q + sqrt(q^2 + 4 q r)) / 2, gain
     // K = P / (P + r) = q / P, posterior P - q: the scalar discrete Riccati
-    // equation solved in closed form (values in shared REFERENCES,
+    // equation solved in closed form (values in docs/references.md,
     // "computed", 7 to 8 digits): q = r = 1 -> P = 1.6180340,
     // K = 0.6180340; q = 0.01, r = 1 -> P = 0.1051249, K = 0.0951249;
     // q = 1e-4, r = 0.25 -> P = 5.05025e-3, K = 0.019801. The filter's
@@ -75,7 +75,7 @@ fn random_walk_in_white_noise_reaches_the_closed_form_steady_state() {
 
 /// Kalata's steady gains of the discrete white-noise-acceleration tracker
 /// at tracking index `lambda` (Kalata 1984; expressions from memory, in
-/// shared REFERENCES).
+/// docs/references.md).
 fn kalata(lambda: f64) -> (f64, f64) {
     let root = (lambda * lambda + 8.0 * lambda).sqrt();
     let alpha = -(lambda * lambda + 8.0 * lambda - (lambda + 4.0) * root) / 8.0;
@@ -110,7 +110,7 @@ fn white_noise_acceleration_tracker_reaches_its_closed_form_steady_state() {
         tol: f64,
     }
     let (a2, b2) = kalata(2.0);
-    // REFERENCES: lambda = 2 -> alpha 0.85410, beta 0.76393 (5 digits).
+    // docs/references.md: lambda = 2 -> alpha 0.85410, beta 0.76393 (5 digits).
     assert!((a2 - 0.854_10).abs() < 5e-6 && (b2 - 0.763_93).abs() < 5e-6);
     // lambda = 2 at T = 1, sv = 1, sw = 2: prior from the same relations,
     // with Q12 = sw^2 / 2 = 2.
@@ -217,7 +217,7 @@ fn health_bounds_against_exact_chi_square_quantiles() {
     }
     println!("{}", lines.join("\n"));
     // Published check values (Bar-Shalom, Li and Kirubarajan 2001; shared
-    // REFERENCES): chi-square 0.99 quantiles 6.6349 (1 dof), 9.2103 (2),
+    // docs/references.md): chi-square 0.99 quantiles 6.6349 (1 dof), 9.2103 (2),
     // 11.3449 (3) agree with the reference library to the table's digits.
     for (k, q) in [(1.0, 6.6349), (2.0, 9.2103), (3.0, 11.3449), (4.0, 13.2767)] {
         let got = ChiSquared::new(k).unwrap().inverse_cdf(0.99);

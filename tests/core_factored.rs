@@ -38,7 +38,7 @@ fn ud_survives_the_ill_conditioned_example_where_covariance_forms_break() {
     // Grewal and Andrews (implementation-methods chapter), after Dyer and
     // McReynolds (1969): with d near sqrt(eps_f32) ~ 1e-4 the conventional
     // and Joseph single-precision updates lose the answer, while Bierman's
-    // U-D update stays accurate until d nears eps (REFERENCES: f32 at
+    // U-D update stays accurate until d nears eps (docs/references.md: f32 at
     // d = 1e-5 has a relative error of about 5e-4, computed).
     let d = 1e-4_f32;
     let mut ud = UdKalman::<f32, 3>::try_new(Vector3::zeros(), Matrix3::identity()).unwrap();
@@ -153,7 +153,7 @@ fn ud_refusals_change_nothing() {
 #[test]
 fn steady_gain_filter_uses_the_closed_form_gain() {
     // Random walk in white noise, q = 0.01, r = 1: steady prior P = 0.1051249,
-    // K = 0.0951249 (closed form, REFERENCES "computed"). The constant-gain
+    // K = 0.0951249 (closed form, docs/references.md, "computed"). The constant-gain
     // filter's posterior estimate after one update is x + K (z - x).
     let (q, r) = (0.01_f64, 1.0_f64);
     let p = (q + (q * q + 4.0 * q * r).sqrt()) / 2.0;

@@ -205,7 +205,7 @@ fn cycle_bench_builds_and_says_qemu_cannot_count_cycles() {
     require_qemu();
     let elf = build_on_target().join("cycle_bench");
     let output = run_qemu(&elf, &[], Duration::from_secs(60));
-    // QEMU 7.2 does not model the DWT cycle counter (REFERENCES.md, measured
+    // QEMU 7.2 does not model the DWT cycle counter (docs/references.md, measured
     // here): the bench must say it measured nothing rather than print zeros
     // as if they were cycles.
     assert!(output.contains("predict (odometry) cycles"), "{output}");
