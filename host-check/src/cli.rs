@@ -75,6 +75,11 @@ pub enum Command {
     /// gain and covariance) as a Rust file of `const` arrays for firmware.
     #[command(after_help = crate::constants::command::EXIT_CODES)]
     Constants(crate::constants::command::ConstantsArgs),
+    /// Noise figures from your own sensor: the overlapping Allan deviation
+    /// of a recorded static log (streamed), the fitted N, B and K with
+    /// their uncertainty, the spec lines that use them, and the plot.
+    #[command(after_help = crate::allan::command::EXIT_CODES)]
+    Allan(crate::allan::command::AllanArgs),
 }
 
 /// `cairn cost`.
@@ -268,6 +273,7 @@ pub fn execute(cli: Cli) -> Result<u8, Failure> {
         Some(Command::Cost(a)) => cost(&a),
         Some(Command::Trials(a)) => crate::consistency::command::execute(&a),
         Some(Command::Constants(a)) => crate::constants::command::execute(&a),
+        Some(Command::Allan(a)) => crate::allan::command::execute(&a),
     }
 }
 

@@ -10,7 +10,7 @@
 //! The coefficients of `tau^-2 .. tau^2` are found by weighted least squares
 //! on the Allan *variance*, all of them non-negative: every subset of terms
 //! is solved and the feasible one with the smallest `chi^2 + 2 k` (Akaike's
-//! criterion, k terms) is kept. Each point's weight is one over
+//! criterion, k terms; plus [`RAMP_PENALTY`] when the ramp is in) is kept. Each point's weight is one over
 //! `(2 delta sigma^2)` squared (the variance's relative error is twice the
 //! deviation's, [`super::confidence`]), iterated three times with the
 //! fitted curve in place of the measured one so that low points do not
@@ -25,6 +25,9 @@
 use nalgebra::{DMatrix, DVector};
 
 use crate::numeric::noise::BIAS_FLOOR;
+
+/// Extra score a subset with the ramp term pays (see [`fit`]).
+pub const RAMP_PENALTY: f64 = 10.0;
 
 /// A solved subset: its columns, coefficients, their covariance and chi^2.
 type Solved = (Vec<usize>, DVector<f64>, DMatrix<f64>, f64);
@@ -185,7 +188,12 @@ pub fn fit(points: &[CurvePoint]) -> Option<Fit> {
             if x.iter().any(|&v| v.is_nan() || v <= 0.0) {
                 continue;
             }
-            let score = chi2 + 2.0 * cols.len() as f64;
+            // A ramp is a trend, not noise: it is kept only when it buys a
+            // clearly better fit (chi^2 lower by 10 more), so that the end of
+            // a rate random walk, which a short log cannot tell from a ramp,
+            // is read as K.
+            let ramp = if cols.contains(&4) { RAMP_PENALTY } else { 0.0 };
+            let score = chi2 + 2.0 * cols.len() as f64 + ramp;
             if score < best_score {
                 best_score = score;
                 best = Some((cols, x, cov, chi2));

@@ -3,6 +3,7 @@
 //!
 //! | module         | job                                                           |
 //! |----------------|---------------------------------------------------------------|
+//! | [`command`]    | `cairn allan`: options, log file to report and plot           |
 //! | [`reader`]     | the CSV log, streamed row by row, with located errors         |
 //! | [`variance`]   | overlapping Allan variance, a decimated cascade of bounded memory |
 //! | [`confidence`] | the 1-sigma error of each point (IEEE 952 / El-Sheimy rule)   |
@@ -13,6 +14,7 @@
 //! Memory is independent of the log's length: the reader holds one line,
 //! each axis a few thousand numbers ([`variance`]).
 
+pub mod command;
 pub mod confidence;
 pub mod fit;
 pub mod plot;
@@ -80,8 +82,9 @@ pub struct AxisResult {
     pub fit: Option<Fit>,
     /// Least-squares slope of the samples against time, units/s.
     pub drift_per_s: f64,
-    /// The lowest point of the curve (the bias-instability read-off).
-    pub minimum: Option<AllanPoint>,
+    /// The lowest point of the fitted curve within the measured cluster
+    /// times: `(tau, adev)` (the bias-instability read-off).
+    pub minimum: Option<(f64, f64)>,
     /// What the reader of the report should know.
     pub warnings: Vec<String>,
 }
@@ -258,6 +261,19 @@ pub fn analyse<R: BufRead>(file: &str, input: R, options: &Options) -> Result<An
     })
 }
 
+/// The lowest point of the fitted Allan deviation between `from` and `to`
+/// (a scan of 400 log-spaced cluster times).
+fn fitted_minimum(fit: &Fit, from: f64, to: f64) -> Option<(f64, f64)> {
+    let (a, b) = (from.ln(), to.ln());
+    (0..=400)
+        .map(|k| {
+            let tau = (a + (b - a) * f64::from(k) / 400.0).exp();
+            (tau, fit.avar(tau).sqrt())
+        })
+        .filter(|(_, v)| v.is_finite())
+        .min_by(|x, y| x.1.total_cmp(&y.1))
+}
+
 fn axis_result(axis: Axis, points: Vec<AllanPoint>, drift: f64, n: u64) -> AxisResult {
     let mut warnings = Vec::new();
     let curve: Vec<fit::CurvePoint> = points
@@ -279,18 +295,17 @@ fn axis_result(axis: Axis, points: Vec<AllanPoint>, drift: f64, n: u64) -> AxisR
     if points.iter().any(|p| p.adev == 0.0) {
         warnings.push("the Allan deviation is zero at some cluster times: the samples are constant or coarsely quantized".into());
     }
-    let minimum = points
-        .iter()
-        .filter(|p| p.adev > 0.0)
-        .min_by(|a, b| a.adev.total_cmp(&b.adev))
-        .copied();
+    let minimum = fitted
+        .as_ref()
+        .and_then(|f| fitted_minimum(f, points[0].tau, points[points.len() - 1].tau));
     let last = points[points.len() - 1];
     // A rate ramp R has Allan deviation R tau / sqrt(2) (IEEE Std 952-1997,
     // Annex C). A rate random walk looks like a drift over the whole log
     // too (its least-squares slope is typically 0.8 of its own Allan
-    // deviation at a third of the log), so both must agree: the fit's ramp
-    // term carries over half the variance at the longest cluster time and
-    // the least-squares drift explains half its deviation or more.
+    // deviation at a third of the log), so all must agree: the fit kept a
+    // ramp term that carries over half the variance at the longest cluster
+    // time, the least-squares drift explains half its deviation or more,
+    // and the curve still rises over the last octave.
     let ramp = drift.abs() * last.tau / 2f64.sqrt();
     let ramp_term = fitted
         .as_ref()
@@ -299,16 +314,27 @@ fn axis_result(axis: Axis, points: Vec<AllanPoint>, drift: f64, n: u64) -> AxisR
                 .map(|r| Term::R.avar(r.value, last.tau) / f.avar(last.tau))
         })
         .unwrap_or(0.0);
-    if ramp > 0.5 * last.adev && ramp_term > 0.5 {
+    let rising = points
+        .iter()
+        .rev()
+        .find(|p| p.tau <= last.tau / 2.0 * (1.0 + 1e-9))
+        .is_some_and(|half| half.adev > 0.0 && (last.adev / half.adev).log2() > 0.5);
+    if ramp > 0.5 * last.adev && ramp_term > 0.5 && rising {
         warnings.push(format!(
-            "the samples drift by {drift:e} per s (least squares; {ramp:e} as an Allan deviation at tau = {:e} s, against {:e} measured): the log is not static or not warmed up, and the long cluster times (K, and B) show the trend, not the sensor's noise",
+            "the samples drift by {drift:.3e} per s (least squares; {ramp:.3e} as an Allan deviation at tau = {:.4e} s, against {:.4e} measured): the log is not static or not warmed up, and the long cluster times (K, and B) show the trend, not the sensor's noise",
             last.tau, last.adev
         ));
     }
-    if let Some(m) = minimum
-        && m.m == last.m
+    if fitted
+        .as_ref()
+        .is_some_and(|f| f.get(Term::K).is_none() && f.get(Term::R).is_none())
+        && points
+            .iter()
+            .rev()
+            .nth(1)
+            .is_some_and(|p| p.adev > last.adev)
     {
-        warnings.push("the curve still falls at the longest cluster time: B and K are not resolved; record longer".into());
+        warnings.push("the curve still falls at the longest cluster time and no rate random walk is seen: K (and maybe B) is not resolved; record longer".into());
     }
     AxisResult {
         axis,

@@ -120,16 +120,16 @@ fn render_axis(o: &mut String, r: &AxisResult, ts: f64, step_s: f64) {
             }
         }
     }
-    let tc = r.minimum.map(|m| m.tau / noise::GAUSS_MARKOV_PEAK_AT);
-    if let Some(m) = r.minimum {
+    let tc = r.minimum.map(|(tau, _)| tau / noise::GAUSS_MARKOV_PEAK_AT);
+    if let Some((tau, adev)) = r.minimum {
         let _ = writeln!(
             o,
-            "    read-off at the curve's minimum: sigma = {} at tau = {} s -> B <= sigma/0.664 = {} {u}; \
+            "    read-off at the fitted curve's minimum: sigma = {} at tau = {} s -> B <= sigma/0.664 = {} {u}; \
              a Gauss-Markov bias peaking there has correlation time tau/1.89 = {} s",
-            sci(m.adev),
-            sci(m.tau),
-            sci(m.adev / noise::BIAS_FLOOR),
-            sci(m.tau / noise::GAUSS_MARKOV_PEAK_AT)
+            sci(adev),
+            sci(tau),
+            sci(adev / noise::BIAS_FLOOR),
+            sci(tau / noise::GAUSS_MARKOV_PEAK_AT)
         );
     }
     let _ = writeln!(
