@@ -193,7 +193,9 @@ pub enum ModeArg {
 /// `cairn noise`.
 #[derive(Debug, Args)]
 pub struct NoiseArgs {
-    /// The figure as the spec writes it, e.g. `density = 0.004` or `random_walk = 0.2`.
+    /// The figure as the spec writes it, e.g. `density = 0.004`,
+    /// `random_walk = 0.2` (N), `bias_instability = 3e-4` (B),
+    /// `rate_random_walk = 5e-5` (K) or `quantization = 1e-3` (Q).
     #[arg(value_name = "KIND=VALUE")]
     pub figure: String,
     /// Its unit, e.g. "deg/s/sqrt(Hz)", "deg/sqrt(h)", "(m/s^2)^2/Hz", "m".
@@ -212,7 +214,11 @@ pub struct NoiseArgs {
     /// figure's unit against it and converts into it.
     #[arg(long)]
     pub quantity: Option<String>,
-    /// Also give the variance of one sample at this rate, Hz.
+    /// Correlation time of a bias instability's Gauss-Markov state, s.
+    #[arg(long, value_name = "S")]
+    pub correlation_s: Option<f64>,
+    /// Also give the discrete number at this filter rate, Hz: a white
+    /// noise's per-sample variance, a bias state's Qd per step.
     #[arg(long, value_name = "HZ")]
     pub rate: Option<f64>,
 }
@@ -571,6 +577,9 @@ fn noise(a: &NoiseArgs) -> Result<u8, Failure> {
     }
     if let Some(r) = a.at_hz {
         doc.push_str(&format!("at_hz = {r:?}\n"));
+    }
+    if let Some(c) = a.correlation_s {
+        doc.push_str(&format!("correlation_s = {c:?}\n"));
     }
     if let Some(r) = a.rate
         && !(r.is_finite() && r > 0.0)
