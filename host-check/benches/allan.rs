@@ -60,7 +60,7 @@ fn bench(c: &mut Criterion) {
     let y = samples();
     let path = write_log(&y);
     let mut g = c.benchmark_group("allan");
-    g.sample_size(10).measurement_time(Duration::from_secs(30));
+    g.sample_size(10).measurement_time(Duration::from_secs(60));
     g.bench_function("file_to_fit_1axis_10M", |b| {
         b.iter(|| {
             let f = File::open(&path).unwrap();

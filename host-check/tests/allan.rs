@@ -463,6 +463,40 @@ fn the_report_says_what_each_figure_drives() {
 }
 
 #[test]
+fn the_reports_spec_lines_load_in_a_spec() {
+    // The K line `cairn allan` prints for the demo log, pasted into a spec
+    // with a random-walk bias state, discretises to K^2 T (closed form).
+    let path = repo().join("host-check/tests/data/tarn7-static.csv");
+    let (code, out, _) = cairn(&["allan", path.to_str().unwrap()]);
+    assert_eq!(code, 0);
+    let line = out
+        .lines()
+        .find(|l| l.trim_start().starts_with("{ rate_random_walk"))
+        .unwrap();
+    let table = &line.trim()[..line.trim().find('}').unwrap() + 1];
+    let k: f64 = table
+        .split('=')
+        .nth(1)
+        .unwrap()
+        .split(',')
+        .next()
+        .unwrap()
+        .trim()
+        .parse()
+        .unwrap();
+    let q = q_of(
+        &gyro_spec(table, "[[0.0, -1.0], [0.0, 0.0]]"),
+        "pasted.toml",
+    )
+    .unwrap();
+    let k_rad = k * std::f64::consts::PI / 180.0;
+    assert!(
+        (q[(1, 1)] / (k_rad * k_rad * 0.01) - 1.0).abs() < 1e-9,
+        "{table}: {q}"
+    );
+}
+
+#[test]
 fn cairn_noise_leads_a_bias_random_walk_to_k2_t() {
     // The trap of the issue: K = 5e-5 deg/s/sqrt(s) at 100 Hz. As a
     // `random_walk` it is refused with the reason; as `rate_random_walk` the

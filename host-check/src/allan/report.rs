@@ -145,10 +145,11 @@ fn render_axis(o: &mut String, r: &AxisResult, ts: f64, step_s: f64) {
             o,
             "    N: white noise on the rate itself. Per-sample variance N^2/Ts = {} at the log's {} Hz \
              (R of a rate channel, or the input noise of a predict that integrates the rate); \
-             the integrated quantity (angle, velocity) gains N^2 T = {} per filter step (its Q entry)",
+             the integrated quantity (angle, velocity) gains N^2 T = {} {}^2*s^2 per filter step (its Q entry)",
             sci(rate),
             sci(1.0 / ts),
-            sci(per_filter_step)
+            sci(per_filter_step),
+            paren(&u)
         );
     }
     if let Some(f) = fit.get(Term::B) {
