@@ -399,6 +399,46 @@ fn bad_logs_are_exit_2_with_file_and_line() {
         assert!(!err.contains("panicked"), "{err}");
         assert!(out.is_empty(), "{out}");
     }
+    // Values whose squares overflow f64: exit 2 naming the column, and no
+    // plot of infinite deviations is attempted.
+    let mut big = String::from("time[s],x[deg/s]\n");
+    for k in 0..400 {
+        big.push_str(&format!(
+            "{k},{}\n",
+            if k % 2 == 0 { 1e300 } else { -1e300 }
+        ));
+    }
+    let p = log_file("big.csv", &big);
+    let plot = scratch("big.svg");
+    let (code, _, err) = cairn(&[
+        "allan",
+        p.to_str().unwrap(),
+        "--plot",
+        plot.to_str().unwrap(),
+    ]);
+    assert_eq!(code, 2, "{err}");
+    assert!(
+        err.contains("column `x`") && err.contains("overflows"),
+        "{err}"
+    );
+    // A constant log: zero deviations are a warning, the plot is still drawn.
+    let flat: String = std::iter::once("time[s],x[deg/s]\n".to_string())
+        .chain((0..400).map(|k| format!("{k},5\n")))
+        .collect();
+    let p = log_file("flat.csv", &flat);
+    let (code, out, err) = cairn(&[
+        "allan",
+        p.to_str().unwrap(),
+        "--plot",
+        plot.to_str().unwrap(),
+    ]);
+    assert_eq!(code, 0, "{err}");
+    assert!(out.contains("the samples are constant"), "{out}");
+    assert!(
+        std::fs::read_to_string(&plot)
+            .unwrap()
+            .ends_with("</svg>\n")
+    );
     let (code, _, err) = cairn(&["allan", "/no/such/log.csv"]);
     assert_eq!(code, 2);
     assert!(err.contains("cannot read /no/such/log.csv"), "{err}");

@@ -242,6 +242,16 @@ pub fn analyse<R: BufRead>(file: &str, input: R, options: &Options) -> Result<An
                 }
             })
             .collect();
+        if points.iter().any(|p| !p.adev.is_finite()) {
+            return Err(LogError {
+                file: file.to_string(),
+                line: 0,
+                message: format!(
+                    "column `{}`: the Allan variance overflows f64 (values near 1e150 or beyond): give the samples in a larger unit",
+                    axis.name
+                ),
+            });
+        }
         if points.is_empty() {
             return Err(LogError {
                 file: file.to_string(),

@@ -28,7 +28,9 @@ fn escape(text: &str) -> String {
 pub fn svg(analysis: &Analysis) -> String {
     let pts = analysis.axes.iter().flat_map(|a| a.points.iter());
     let (mut tmin, mut tmax, mut ymin, mut ymax) = (f64::MAX, f64::MIN, f64::MAX, f64::MIN);
-    for p in pts {
+    // Only finite, positive values set the range (a constant log has
+    // zeros; the analysis refuses an overflowing one).
+    for p in pts.filter(|p| p.tau.is_finite() && p.tau > 0.0 && p.adev.is_finite()) {
         tmin = tmin.min(p.tau);
         tmax = tmax.max(p.tau);
         if p.lo > 0.0 {
@@ -36,19 +38,20 @@ pub fn svg(analysis: &Analysis) -> String {
         } else if p.adev > 0.0 {
             ymin = ymin.min(p.adev / 10.0);
         }
-        ymax = ymax.max(p.hi);
+        if p.hi.is_finite() {
+            ymax = ymax.max(p.hi);
+        }
     }
-    if !(tmin > 0.0 && tmax >= tmin && ymin > 0.0 && ymax >= ymin) {
+    if !(tmin > 0.0 && tmax >= tmin && ymin > 0.0 && ymax >= ymin && ymax.is_finite()) {
         (tmin, tmax, ymin, ymax) = (1.0, 10.0, 1.0, 10.0);
     }
     let (lx0, lx1) = (
         tmin.log10().floor(),
         tmax.log10().ceil().max(tmin.log10().floor() + 1.0),
     );
-    let (ly0, ly1) = (
-        ymin.log10().floor(),
-        ymax.log10().ceil().max(ymin.log10().floor() + 1.0),
-    );
+    let ly1 = ymax.log10().ceil().max(ymin.log10().floor() + 1.0);
+    // At most 40 decades: one grid line per decade keeps the file small.
+    let ly0 = ymin.log10().floor().max(ly1 - 40.0);
     let x = |t: f64| LEFT + (t.log10() - lx0) / (lx1 - lx0) * (W - LEFT - RIGHT);
     let y = |v: f64| TOP + (ly1 - v.log10()) / (ly1 - ly0) * (H - TOP - BOTTOM);
     let mut s = String::new();
@@ -110,7 +113,7 @@ pub fn svg(analysis: &Analysis) -> String {
     for (i, a) in analysis.axes.iter().enumerate() {
         let c = COLOURS[i % COLOURS.len()];
         for p in &a.points {
-            if p.adev <= 0.0 {
+            if !(p.adev > 0.0 && p.adev.is_finite()) {
                 continue;
             }
             let (px, py) = (x(p.tau), y(p.adev));

@@ -90,7 +90,10 @@ fn render_axis(o: &mut String, r: &AxisResult, ts: f64, step_s: f64) {
         );
     }
     let Some(fit) = &r.fit else {
-        let _ = writeln!(o, "  no term fit: too few cluster times");
+        let _ = writeln!(
+            o,
+            "  no term fit: too few cluster times with a non-zero deviation"
+        );
         return;
     };
     let _ = writeln!(
