@@ -8,7 +8,7 @@
 //! (2 m^2 (N - 2m + 1))` (in the samples' units squared; `tau = m Ts`).
 //!
 //! The lags are served by a *decimated cascade*: level `L` keeps the last
-//! [`RING`] values of `theta` at every `2^L`-th sample, and serves the
+//! `2 LEVEL_SPAN` = 128 values of `theta` at every `2^L`-th sample, and serves the
 //! cluster sizes `m = m' 2^L` with `m'` in `[LEVEL_SPAN / 2, LEVEL_SPAN)`
 //! (level 0: `m < LEVEL_SPAN`, every sample). Each level therefore sums the
 //! overlapping terms at a stride of `2^L <= m / 32` samples instead of 1:
