@@ -70,6 +70,11 @@ pub enum Command {
     /// gain and covariance) as a Rust file of `const` arrays for firmware.
     #[command(after_help = crate::constants::command::EXIT_CODES)]
     Constants(crate::constants::command::ConstantsArgs),
+    /// Noise figures from your own sensor: the overlapping Allan deviation
+    /// of a recorded static log (streamed), the fitted N, B and K with
+    /// their uncertainty, the spec lines that use them, and the plot.
+    #[command(after_help = crate::allan::command::EXIT_CODES)]
+    Allan(crate::allan::command::AllanArgs),
 }
 
 /// `cairn cost`.
@@ -183,7 +188,9 @@ pub enum ModeArg {
 /// `cairn noise`.
 #[derive(Debug, Args)]
 pub struct NoiseArgs {
-    /// The figure as the spec writes it, e.g. `density = 0.004` or `random_walk = 0.2`.
+    /// The figure as the spec writes it, e.g. `density = 0.004`,
+    /// `random_walk = 0.2` (N), `bias_instability = 3e-4` (B),
+    /// `rate_random_walk = 5e-5` (K) or `quantization = 1e-3` (Q).
     #[arg(value_name = "KIND=VALUE")]
     pub figure: String,
     /// Its unit, e.g. "deg/s/sqrt(Hz)", "deg/sqrt(h)", "(m/s^2)^2/Hz", "m".
@@ -202,7 +209,11 @@ pub struct NoiseArgs {
     /// figure's unit against it and converts into it.
     #[arg(long)]
     pub quantity: Option<String>,
-    /// Also give the variance of one sample at this rate, Hz.
+    /// Correlation time of a bias instability's Gauss-Markov state, s.
+    #[arg(long, value_name = "S")]
+    pub correlation_s: Option<f64>,
+    /// Also give the discrete number at this filter rate, Hz: a white
+    /// noise's per-sample variance, a bias state's Qd per step.
     #[arg(long, value_name = "HZ")]
     pub rate: Option<f64>,
 }
@@ -231,6 +242,7 @@ pub fn execute(cli: Cli) -> Result<u8, Failure> {
         Some(Command::Cost(a)) => cost(&a),
         Some(Command::Trials(a)) => crate::consistency::command::execute(&a),
         Some(Command::Constants(a)) => crate::constants::command::execute(&a),
+        Some(Command::Allan(a)) => crate::allan::command::execute(&a),
     }
 }
 
@@ -510,6 +522,9 @@ fn noise(a: &NoiseArgs) -> Result<u8, Failure> {
     }
     if let Some(r) = a.at_hz {
         doc.push_str(&format!("at_hz = {r:?}\n"));
+    }
+    if let Some(c) = a.correlation_s {
+        doc.push_str(&format!("correlation_s = {c:?}\n"));
     }
     if let Some(r) = a.rate
         && !(r.is_finite() && r > 0.0)

@@ -8,6 +8,7 @@
 //! | [`engine`]  | the check engine: any model, every variant, the reference    |
 //! | [`run`]     | the spec's check: the spec's models through the engine       |
 //! | [`report`]  | terminal text, JSON and the SVG drift plot                   |
+//! | [`allan`]   | Allan deviation of a recorded log, the inertial noise terms  |
 //! | [`cli`]     | the `cairn` command line                                     |
 //! | [`cost`]    | cycles per predict/update on a Cortex-M4F from QEMU traces   |
 //! | [`consistency`] | Monte Carlo NEES/NIS against chi-square intervals   |
@@ -17,6 +18,7 @@
 //! | [`numeric`] | double-double, Van Loan, Riccati, noise figures              |
 //! | [`output`]  | standard output and whole-or-nothing file writes             |
 
+pub mod allan;
 pub mod cli;
 pub mod consistency;
 pub mod constants;

@@ -489,6 +489,111 @@ pub fn random_walk_variance(intensity: f64, elapsed: f64) -> f64 {
     intensity * elapsed
 }
 
+/// `sqrt(2 ln 2 / pi)` = 0.6643: the Allan deviation floor of a bias
+/// instability `B` (flicker rate noise of two-sided PSD `B^2 / (2 pi f)`):
+/// `sigma(tau) = 0.664 B` on the flat part (IEEE Std 952-1997, Annex C;
+/// El-Sheimy, Hou & Niu 2008, Table I).
+pub const BIAS_FLOOR: f64 = 0.664_282_470_267_960_1;
+
+/// Largest Allan deviation of a first-order Gauss-Markov process over its
+/// steady standard deviation, `max sigma_A(tau) / sigma` = 0.6174, reached
+/// at `tau` = [`GAUSS_MARKOV_PEAK_AT`] correlation times (computed here from
+/// [`gauss_markov_allan_variance`]; a unit test recomputes both).
+pub const GAUSS_MARKOV_PEAK: f64 = 0.617_364_283;
+
+/// Cluster time of the Gauss-Markov Allan-deviation maximum, in correlation
+/// times: 1.8926 (computed, see [`GAUSS_MARKOV_PEAK`]).
+pub const GAUSS_MARKOV_PEAK_AT: f64 = 1.8926;
+
+/// Allan variance of a first-order Gauss-Markov process of steady variance
+/// `variance` and correlation time `correlation_s` at cluster time `tau`:
+/// `(2 s^2 Tc / tau) [1 - (Tc / 2 tau)(3 - 4 e^(-tau/Tc) + e^(-2 tau/Tc))]`
+/// (IEEE Std 952-1997, Annex C, exponentially correlated noise, written
+/// with the driving intensity `2 s^2 / Tc`; from memory, and checked in the
+/// tests against the exact variance of sampled cluster averages).
+#[must_use]
+pub fn gauss_markov_allan_variance(variance: f64, correlation_s: f64, tau: f64) -> f64 {
+    let x = tau / correlation_s;
+    // Series for small x, where the bracket cancels: 1 - (3 - 4e^-x + e^-2x)/(2x)
+    // = x^2/3 - x^3/4 + 7 x^4/60 - x^5/24 + 31 x^6/2520 - x^7/320 ...; the
+    // first term is a rate random walk of K^2 = 2 s^2 / Tc at short tau.
+    if x < 1e-2 {
+        let series =
+            1.0 / 3.0 + x * (-0.25 + x * (7.0 / 60.0 + x * (-1.0 / 24.0 + x * 31.0 / 2520.0)));
+        return 2.0 * variance * x * series;
+    }
+    let bracket = 1.0 - (-4.0 * (-x).exp_m1() + (-2.0 * x).exp_m1()) / (2.0 * x);
+    2.0 * variance / x * bracket
+}
+
+/// One discrete bias or noise state, as a filter step of `step_s` uses it.
+#[derive(Clone, Debug, PartialEq)]
+pub struct DiscreteTerm {
+    /// The state's transition over one step (1 for a random walk).
+    pub phi: f64,
+    /// The variance the state gains per step: its entry of Qd.
+    pub qd: f64,
+    /// Its steady variance, when it has one (a Gauss-Markov state).
+    pub steady_variance: Option<f64>,
+}
+
+/// A rate random walk `K` (units/s/sqrt(s), i.e. the bias's random walk;
+/// Allan variance `K^2 tau / 3`, IEEE Std 952-1997) as a random-walk bias
+/// state: `phi = 1`, `Qd = K^2 T` per step of `step_s` (Van Loan with
+/// `F = 0`, intensity `K^2`; common practice).
+#[must_use]
+pub fn rate_random_walk_state(k: f64, step_s: f64) -> DiscreteTerm {
+    DiscreteTerm {
+        phi: 1.0,
+        qd: k * k * step_s,
+        steady_variance: None,
+    }
+}
+
+/// The steady standard deviation of the Gauss-Markov bias state that stands
+/// for a bias instability `B`: the one whose Allan-deviation maximum
+/// ([`GAUSS_MARKOV_PEAK`] sigma) equals the bias-instability floor
+/// ([`BIAS_FLOOR`] B), so `sigma = 1.0760 B`.
+#[must_use]
+pub fn bias_instability_sigma(b: f64) -> f64 {
+    b * BIAS_FLOOR / GAUSS_MARKOV_PEAK
+}
+
+/// A first-order Gauss-Markov bias state of steady standard deviation
+/// `sigma` and correlation time `correlation_s`, stepped by `step_s`:
+/// `phi = exp(-T/tau)`, `Qd = sigma^2 (1 - exp(-2T/tau))` (the exact
+/// discretisation; Van Loan 1978 with `F = -1/tau` and intensity
+/// `2 sigma^2 / tau`), steady variance `sigma^2`.
+#[must_use]
+pub fn gauss_markov_state(sigma: f64, correlation_s: f64, step_s: f64) -> DiscreteTerm {
+    let a = step_s / correlation_s;
+    DiscreteTerm {
+        phi: (-a).exp(),
+        // -expm1(-2a) keeps the digits when T << tau.
+        qd: sigma * sigma * -(-2.0 * a).exp_m1(),
+        steady_variance: Some(sigma * sigma),
+    }
+}
+
+/// The two discrete numbers of white rate noise `N` (angle or velocity
+/// random walk, per sqrt(s)) at sample time `ts`: the rate's per-sample
+/// variance `N^2 / Ts`, and the variance the integrated quantity gains per
+/// step, `N^2 Ts` (IEEE Std 952-1997; common practice).
+#[must_use]
+pub fn white_rate_numbers(n: f64, ts: f64) -> (f64, f64) {
+    (n * n / ts, n * n * ts)
+}
+
+/// The two discrete numbers of quantization noise `Q` (in the integrated
+/// quantity's unit; Allan variance `3 Q^2 / tau^2`, IEEE Std 952-1997) at
+/// sample time `ts`: the integrated reading's error variance `Q^2` (white,
+/// per reading), and the variance of the rate formed from two readings,
+/// `2 Q^2 / Ts^2` (correlated -1/2 between neighbours; common practice).
+#[must_use]
+pub fn quantization_numbers(q: f64, ts: f64) -> (f64, f64) {
+    (q * q, 2.0 * q * q / (ts * ts))
+}
+
 /// Rule-of-thumb sample time for simulating white noise: a hundredth of the
 /// inverse of the system bandwidth, `0.01 / bandwidth_hz` seconds (common
 /// practice). NaN when the bandwidth is not a positive finite number.
@@ -690,6 +795,86 @@ mod tests {
         // Unit conversion inside the quantity: mm/sqrt(Hz) for a noise in m.
         let d = convert(3.0, "mm/sqrt(Hz)", "m", Some(Sided::Two), None).unwrap();
         assert!(rel(d.intensity, 9e-6) < 1e-14);
+    }
+
+    #[test]
+    fn gauss_markov_peak_and_floor_constants() {
+        // sqrt(2 ln 2 / pi) (IEEE Std 952-1997 Annex C: bias-instability
+        // floor 0.664 B).
+        assert!(rel(BIAS_FLOOR, (2.0 * 2f64.ln() / PI).sqrt()) < 1e-15);
+        // The Gauss-Markov Allan deviation peak, found by a fine scan of the
+        // closed form (computed): 0.61736 sigma at 1.8926 tau_c.
+        let (mut best, mut at) = (0.0, 0.0);
+        for i in 1_000..100_000 {
+            let x = f64::from(i) / 10_000.0;
+            let v = gauss_markov_allan_variance(1.0, 1.0, x);
+            if v > best {
+                (best, at) = (v, x);
+            }
+        }
+        assert!(
+            rel(best.sqrt(), GAUSS_MARKOV_PEAK) < 1e-8,
+            "{}",
+            best.sqrt()
+        );
+        assert!((at - GAUSS_MARKOV_PEAK_AT).abs() < 2e-4, "{at}");
+        // The series branch joins the closed form.
+        let (a, b) = (
+            gauss_markov_allan_variance(1.0, 1.0, 0.999_999e-2),
+            gauss_markov_allan_variance(1.0, 1.0, 1.000_001e-2),
+        );
+        assert!(rel(a / 0.999_999e-2, b / 1.000_001e-2) < 5e-8, "{a} {b}");
+        // Short tau: a rate random walk of K^2 = 2 s^2 / Tc, K^2 tau / 3
+        // (IEEE Std 952-1997 Annex C).
+        assert!(
+            rel(
+                gauss_markov_allan_variance(1.5, 2.0, 1e-5),
+                1.5 * 1e-5 / 3.0
+            ) < 1e-5
+        );
+        // Large tau: the white-noise limit 2 s^2 Tc / tau (Annex C).
+        assert!(rel(gauss_markov_allan_variance(2.0, 3.0, 3e4), 4.0 * 3.0 / 3e4) < 1e-3);
+        assert!(rel(bias_instability_sigma(1.0), 1.075_997_6) < 1e-6);
+    }
+
+    #[test]
+    fn discrete_terms_against_closed_forms() {
+        // Gauss-Markov: Qd = sigma^2 (1 - exp(-2T/tau)) (closed form;
+        // Van Loan 1978 for F = -1/tau, W = 2 sigma^2 / tau:
+        // Qd = (W tau / 2)(1 - e^(-2T/tau)), docs/references.md).
+        let (sigma, tau, t) = (0.3, 40.0, 0.01);
+        let gm = gauss_markov_state(sigma, tau, t);
+        assert!(rel(gm.qd, sigma * sigma * (1.0 - (-2.0 * t / tau).exp())) < 1e-12);
+        assert!(rel(gm.phi, (-t / tau).exp()) < 1e-15);
+        let w = 2.0 * sigma * sigma / tau;
+        let (phi, qd) = super::super::vanloan::discretize(
+            &nalgebra::DMatrix::from_element(1, 1, -1.0 / tau),
+            &nalgebra::DMatrix::identity(1, 1),
+            &nalgebra::DMatrix::from_element(1, 1, w),
+            t,
+        )
+        .unwrap();
+        assert!(rel(qd[(0, 0)], gm.qd) < 1e-10, "{} {}", qd[(0, 0)], gm.qd);
+        assert!(rel(phi[(0, 0)], gm.phi) < 1e-14);
+        // Stationary: phi^2 s^2 + Qd = s^2.
+        assert!(rel(gm.phi * gm.phi * sigma * sigma + gm.qd, sigma * sigma) < 1e-14);
+        // Rate random walk: Qd = K^2 T (Van Loan random walk, W T,
+        // docs/references.md: W = 3, T = 0.25 -> 0.75).
+        assert!(rel(rate_random_walk_state(3f64.sqrt(), 0.25).qd, 0.75) < 1e-15);
+        // The trap of the factor Ts^2: K = 5e-5 deg/s/sqrt(s) at 100 Hz gives
+        // Qd = K^2 T = 7.6e-15 (rad/s)^2 per step, not K^2/T = 7.6e-11.
+        let k = 5e-5 * PI / 180.0;
+        let kq = rate_random_walk_state(k, 0.01).qd;
+        assert!((kq - 7.615e-15).abs() < 1e-18, "{kq}");
+        // White rate noise: N^2/Ts and N^2 Ts (docs/references.md: 0.1
+        // deg/sqrt(h) = 2.909e-5 rad/sqrt(s); sigma at 100 Hz 2.91e-4 rad/s).
+        let (rate_var, angle_q) = white_rate_numbers(2.909e-5, 0.01);
+        assert!((rate_var.sqrt() - 2.909e-4).abs() < 1e-9);
+        assert!(rel(angle_q, 2.909e-5f64.powi(2) * 0.01) < 1e-15);
+        // Quantization: a white reading error e of variance Q^2 differenced:
+        // var(e1 - e0)/Ts^2 = 2 Q^2 / Ts^2 (common practice).
+        let (r_angle, r_rate) = quantization_numbers(1e-3, 0.5);
+        assert!(rel(r_angle, 1e-6) < 1e-15 && rel(r_rate, 8e-6) < 1e-15);
     }
 
     #[test]

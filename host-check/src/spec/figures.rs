@@ -20,7 +20,16 @@ pub enum Use {
     SampleVariance(f64),
     /// The variance a random walk gains over this time, s: W t.
     WalkVariance(f64),
+    /// The term's own discrete number at this filter step rate, Hz (`cairn
+    /// noise --rate`): a white noise's per-sample variance W / Ts (and what
+    /// the integrated quantity gains per step), a rate random walk's
+    /// Qd = K^2 T, a Gauss-Markov bias's Qd, a quantized reading's Q^2.
+    Discrete(f64),
 }
+
+/// The terms of the inertial noise model beside white noise, each with its
+/// own discrete model (IEEE Std 952-1997 names: B, K, Q).
+const TERM_KINDS: [&str; 3] = ["bias_instability", "rate_random_walk", "quantization"];
 
 /// One step of a conversion, for the report.
 #[derive(Debug, Clone, Serialize)]
@@ -71,7 +80,7 @@ pub fn convert(
             return Err(loc.error(
                 fig.span(),
                 field,
-                "give one of `density`, `psd`, `random_walk`, `std` or `variance`",
+                "give one of `density`, `psd`, `random_walk`, `bias_instability`, `rate_random_walk`, `quantization`, `std` or `variance`",
             ));
         }
         [_, (second, s), ..] => {
@@ -146,6 +155,30 @@ pub fn convert(
         return misplaced("at_hz", s.span());
     }
 
+    if kind != "bias_instability"
+        && let Some(s) = &raw.correlation_s
+    {
+        return misplaced("correlation_s", s.span());
+    }
+    let known = raw
+        .quantity
+        .as_ref()
+        .map(|q| (q.get_ref().trim().to_string(), Some(q.span())))
+        .or_else(|| quantity.map(|q| (q.to_string(), None)));
+    if kind == "random_walk" {
+        refuse_bias_walk(loc, raw, field, v, &unit, known.as_ref(), purpose, step_hz)?;
+    }
+    if TERM_KINDS.contains(&kind) {
+        return term(
+            loc,
+            fig,
+            field,
+            (kind, v, value.span()),
+            &unit,
+            known,
+            purpose,
+        );
+    }
     let rate_hz = match (&raw.at_hz, purpose) {
         (Some(r), _) => {
             let x = *r.get_ref();
@@ -158,7 +191,7 @@ pub fn convert(
             }
             Some(x)
         }
-        (None, Use::SampleVariance(rate)) => Some(rate),
+        (None, Use::SampleVariance(rate) | Use::Discrete(rate)) => Some(rate),
         (None, _) => None,
     };
     if matches!(kind, "std" | "variance") && rate_hz.is_none() {
@@ -255,7 +288,7 @@ pub fn convert(
     let w = conv.intensity;
     let (result, result_is) = match purpose {
         Use::Intensity => (w, "two-sided intensity W (continuous Qc entry)".to_string()),
-        Use::SampleVariance(rate) => {
+        Use::SampleVariance(rate) | Use::Discrete(rate) => {
             let r = noise::sample_variance(w, 1.0 / rate);
             steps.push(Step {
                 what: format!("variance of one sample at {rate} Hz"),
@@ -263,7 +296,24 @@ pub fn convert(
                 value: r,
                 unit: squared.clone(),
             });
-            (r, format!("per-sample variance at {rate} Hz"))
+            if matches!(purpose, Use::Discrete(_)) {
+                // White noise on a rate: the integrated quantity is a
+                // Wiener process, W T per step (IEEE Std 952-1997: N^2 T).
+                steps.push(Step {
+                    what: "if on a rate: the integrated quantity gains per step".into(),
+                    formula: "W T (N^2 T: its Q entry)".into(),
+                    value: noise::random_walk_variance(w, 1.0 / rate),
+                    unit: format!("{squared}*s^2"),
+                });
+                (
+                    r,
+                    format!(
+                        "per-sample variance at {rate} Hz (white noise: R of a reading, or a predict's input noise on the rate)"
+                    ),
+                )
+            } else {
+                (r, format!("per-sample variance at {rate} Hz"))
+            }
         }
         Use::WalkVariance(t) => {
             let r = noise::random_walk_variance(w, t);
@@ -299,6 +349,344 @@ pub fn convert(
     }
     if let Some(s) = &raw.at_hz {
         given.push_str(&format!(" at {} Hz", s.get_ref()));
+    }
+    Ok((
+        result,
+        ConversionRecord {
+            field: field.to_string(),
+            given,
+            steps,
+            result,
+            result_is,
+        },
+    ))
+}
+
+fn sqrt_second() -> Unit {
+    let mut d = [0; BASE_DIMS];
+    d[1] = 1;
+    Unit {
+        scale: 1.0,
+        dims: d,
+    }
+}
+
+/// Refuses a `random_walk` whose unit is that of a rate random walk K (the
+/// random walk of a bias, per sqrt(s) of the rate) where the figure would
+/// become a per-sample variance: K^2/Ts there is Ts^2 times the K^2 T a
+/// bias state needs per step. In a continuous model the same unit on the
+/// column into a bias state is right (W = K^2) and passes.
+#[allow(clippy::too_many_arguments)]
+fn refuse_bias_walk(
+    loc: &Locator<'_>,
+    raw: &RawNoise,
+    field: &str,
+    v: f64,
+    unit: &Unit,
+    quantity: Option<&(String, Option<std::ops::Range<usize>>)>,
+    purpose: Use,
+    step_hz: f64,
+) -> Result<(), SpecError> {
+    let looks_like_k = match quantity {
+        Some((q, _)) => match noise::parse_unit(q) {
+            Ok(qu) => {
+                !matches!(purpose, Use::Intensity) && unit.same_dimension(&qu.div(&sqrt_second()))
+            }
+            Err(_) => false,
+        },
+        None => {
+            // An angle per s^(3/2) (a gyro's K) or a length per s^(5/2)
+            // (an accelerometer's K); dims are twice the exponents.
+            let mut gyro = [0; BASE_DIMS];
+            gyro[1] = -3;
+            gyro[2] = 2;
+            let mut accel = [0; BASE_DIMS];
+            accel[0] = 2;
+            accel[1] = -5;
+            unit.dims == gyro || unit.dims == accel
+        }
+    };
+    if !looks_like_k {
+        return Ok(());
+    }
+    let k = v * unit.scale;
+    let t = 1.0 / step_hz;
+    Err(loc.error(
+        raw.unit.span(),
+        &format!("{field}.random_walk"),
+        format!(
+            "`{}` is the unit of a rate random walk K (the random walk of the sensor's bias, Allan slope +1/2), \
+             not of the white-noise random walk N that `random_walk` means (angle or velocity random walk, \
+             e.g. deg/sqrt(h) or deg/s/sqrt(Hz) for a gyro). Write `rate_random_walk = {v}`: it drives a \
+             random-walk bias state with Qd = K^2 T per step ({:e} in coherent units at T = {t} s), \
+             not a per-sample variance (K^2/T = {:e}, {:e} times too large)",
+            raw.unit.get_ref(),
+            k * k * t,
+            k * k / t,
+            1.0 / (t * t)
+        ),
+    ))
+}
+
+/// Converts a bias instability B, a rate random walk K or a quantization
+/// noise Q for `purpose`, each by its own discrete model
+/// ([`noise::gauss_markov_state`], [`noise::rate_random_walk_state`],
+/// [`noise::quantization_numbers`]).
+fn term(
+    loc: &Locator<'_>,
+    fig: &Spanned<RawNoise>,
+    field: &str,
+    (kind, v, vspan): (&str, f64, std::ops::Range<usize>),
+    unit: &Unit,
+    quantity: Option<(String, Option<std::ops::Range<usize>>)>,
+    purpose: Use,
+) -> Result<(f64, ConversionRecord), SpecError> {
+    let raw = fig.get_ref();
+    let vfield = format!("{field}.{kind}");
+    let ufield = format!("{field}.unit");
+    let unit_text = raw.unit.get_ref().trim();
+    let symbol = match kind {
+        "bias_instability" => "B",
+        "rate_random_walk" => "K",
+        _ => "Q",
+    };
+    let second = sqrt_second().mul(&sqrt_second());
+    // The rate the term belongs to: the reading itself, or in a continuous
+    // model the state the column drives (the white noise's unit times s).
+    let rate = match &quantity {
+        Some((q, qspan)) => {
+            let qu = noise::parse_unit(q).map_err(|e| {
+                loc.error(
+                    qspan.clone().unwrap_or(fig.span()),
+                    &format!("{field}.quantity"),
+                    e.to_string(),
+                )
+            })?;
+            Some(match purpose {
+                Use::Intensity => (qu.mul(&second), format!("({q})*s")),
+                _ => (qu, q.clone()),
+            })
+        }
+        None => None,
+    };
+    // The value in the rate's units (coherent SI when no unit is known);
+    // for Q, whether it is the integrated quantity's (the reading is a rate).
+    let (value, of_integral, in_units, factor) = match &rate {
+        Some((b, text)) => {
+            let expected = match kind {
+                "bias_instability" => b.clone(),
+                "rate_random_walk" => b.div(&sqrt_second()),
+                _ => b.mul(&second),
+            };
+            let f = unit.scale / b.scale;
+            if unit.same_dimension(&expected) {
+                (v * f, true, text.clone(), f)
+            } else if kind == "quantization" && unit.same_dimension(b) {
+                (v * f, false, text.clone(), f)
+            } else {
+                let form = match kind {
+                    "bias_instability" => {
+                        format!("a bias instability is in {text}, the unit of the rate it offsets")
+                    }
+                    "rate_random_walk" => format!(
+                        "a rate random walk is in ({text})/sqrt(s), e.g. deg/s/sqrt(s) or deg/h/sqrt(h) for deg/s"
+                    ),
+                    _ => format!(
+                        "a quantization noise is in ({text})*s, the integrated quantity (deg for a rate in deg/s), or in {text} for a reading of it"
+                    ),
+                };
+                return Err(loc.error(
+                    raw.unit.span(),
+                    &ufield,
+                    format!(
+                        "`{unit_text}` does not fit a `{kind}` of a quantity in `{text}`: {form}"
+                    ),
+                ));
+            }
+        }
+        None => (v * unit.scale, false, "SI".to_string(), unit.scale),
+    };
+    let squared = if in_units == "SI" {
+        "SI^2".to_string()
+    } else {
+        format!("({in_units})^2")
+    };
+    let p = format!("({in_units})");
+    let term_unit = match (kind, of_integral) {
+        _ if in_units == "SI" => in_units.clone(),
+        ("rate_random_walk", _) => format!("{p}/sqrt(s)"),
+        ("quantization", true) => format!("{p}*s"),
+        _ => in_units.clone(),
+    };
+    let mut steps = vec![Step {
+        what: format!("{symbol} in the quantity's units"),
+        formula: format!("{v} {unit_text} x {factor:.6e}"),
+        value,
+        unit: term_unit,
+    }];
+    let refuse = |why: String| Err(loc.error(fig.span(), field, why));
+    let (result, result_is) = match (kind, purpose) {
+        ("rate_random_walk", Use::Intensity) => {
+            let w = value * value;
+            steps.push(Step {
+                what: "two-sided intensity of the bias's random walk".into(),
+                formula: "W = K^2".into(),
+                value: w,
+                unit: format!("{squared}/s"),
+            });
+            (w, "two-sided intensity W = K^2 driving a random-walk bias state (Qc entry; Qd = K^2 T per step)".to_string())
+        }
+        ("rate_random_walk", Use::Discrete(hz)) => {
+            let t = 1.0 / hz;
+            let rw = noise::rate_random_walk_state(value, t);
+            steps.push(Step {
+                what: format!("variance a random-walk bias state gains per step (T = {t} s)"),
+                formula: "Qd = K^2 T (phi = 1)".into(),
+                value: rw.qd,
+                unit: squared.clone(),
+            });
+            steps.push(Step {
+                what: "not a per-sample variance: K^2/T would be".into(),
+                formula: "K^2 / T (wrong here)".into(),
+                value: value * value / t,
+                unit: squared.clone(),
+            });
+            (
+                rw.qd,
+                format!("Qd of a random-walk bias state per step at {hz} Hz (phi = 1)"),
+            )
+        }
+        ("rate_random_walk", _) => {
+            return refuse(
+                "a rate random walk K drives a random-walk bias state (Qd = K^2 T per step), it is not the white noise of a reading: \
+                 put the bias in the model as a state and give `rate_random_walk` as the `noise` of the column of `g` that drives it"
+                    .to_string(),
+            );
+        }
+        ("bias_instability", Use::Intensity | Use::Discrete(_)) => {
+            let Some(c) = &raw.correlation_s else {
+                return refuse(
+                    "a bias instability is modelled as a first-order Gauss-Markov bias state: give its correlation time \
+                     `correlation_s` in seconds (`cairn allan` estimates one from a recorded log)"
+                        .to_string(),
+                );
+            };
+            let tc = *c.get_ref();
+            if !(tc.is_finite() && tc > 0.0) {
+                return Err(loc.error(
+                    c.span(),
+                    &format!("{field}.correlation_s"),
+                    format!("a correlation time must be positive, got {tc}"),
+                ));
+            }
+            let sigma = noise::bias_instability_sigma(value);
+            steps.push(Step {
+                what:
+                    "steady sigma of the Gauss-Markov bias (Allan peak 0.617 sigma = floor 0.664 B)"
+                        .into(),
+                formula: "sigma = 0.664 B / 0.617".into(),
+                value: sigma,
+                unit: in_units.clone(),
+            });
+            if let Use::Discrete(hz) = purpose {
+                let t = 1.0 / hz;
+                let gm = noise::gauss_markov_state(sigma, tc, t);
+                steps.push(Step {
+                    what: format!("transition over one step (T = {t} s)"),
+                    formula: "phi = exp(-T/tau_c)".into(),
+                    value: gm.phi,
+                    unit: String::new(),
+                });
+                steps.push(Step {
+                    what: "variance the bias state gains per step".into(),
+                    formula: "Qd = sigma^2 (1 - exp(-2T/tau_c))".into(),
+                    value: gm.qd,
+                    unit: squared.clone(),
+                });
+                (
+                    gm.qd,
+                    format!(
+                        "Qd of a Gauss-Markov bias state per step at {hz} Hz (phi = {:.9}, steady variance {:e})",
+                        gm.phi,
+                        sigma * sigma
+                    ),
+                )
+            } else {
+                let w = 2.0 * sigma * sigma / tc;
+                steps.push(Step {
+                    what: "two-sided intensity driving it".into(),
+                    formula: "W = 2 sigma^2 / tau_c".into(),
+                    value: w,
+                    unit: format!("{squared}/s"),
+                });
+                (
+                    w,
+                    format!(
+                        "two-sided intensity W = 2 sigma^2 / tau_c driving a Gauss-Markov bias state (Qc entry; its diagonal of `a` is -1/tau_c = {:e})",
+                        -1.0 / tc
+                    ),
+                )
+            }
+        }
+        ("bias_instability", _) => {
+            return refuse(
+                "a bias instability B drives a Gauss-Markov bias state (Qd = sigma^2 (1 - exp(-2T/tau_c))), it is not the white noise of a reading: \
+                 put the bias in a continuous model as a state with a = -1/correlation_s and give `bias_instability` as the `noise` of the column of `g` that drives it"
+                    .to_string(),
+            );
+        }
+        ("quantization", Use::SampleVariance(hz) | Use::Discrete(hz)) => {
+            let (reading, rate_var) = noise::quantization_numbers(value, 1.0 / hz);
+            if of_integral {
+                steps.push(Step {
+                    what: format!("variance of a rate formed from two readings at {hz} Hz"),
+                    formula: "2 Q^2 / Ts^2".into(),
+                    value: rate_var,
+                    unit: squared.clone(),
+                });
+                (
+                    rate_var,
+                    format!(
+                        "per-sample variance at {hz} Hz of a rate from quantized readings (white approximation: neighbours correlate -1/2)"
+                    ),
+                )
+            } else {
+                steps.push(Step {
+                    what: "variance of one quantized reading".into(),
+                    formula: "Q^2".into(),
+                    value: reading,
+                    unit: squared.clone(),
+                });
+                (
+                    reading,
+                    "variance of one quantized reading of the integrated quantity (R entry)"
+                        .to_string(),
+                )
+            }
+        }
+        _ => {
+            return refuse(
+                "quantization noise is the error of each reading, not white noise driving a state: give it as a channel's noise \
+                 (R = Q^2 for a reading of the integrated quantity)"
+                    .to_string(),
+            );
+        }
+    };
+    if !(result.is_finite() && result >= 0.0)
+        || (result == 0.0 && v != 0.0)
+        || (result > 0.0 && result < f64::MIN_POSITIVE)
+    {
+        return Err(loc.error(
+            vspan,
+            &vfield,
+            format!(
+                "converts to an unusable value {result:e}; give a larger figure or a coarser unit"
+            ),
+        ));
+    }
+    let mut given = format!("{kind} = {v} {unit_text}");
+    if let Some(c) = &raw.correlation_s {
+        given.push_str(&format!(", correlation {} s", c.get_ref()));
     }
     Ok((
         result,
@@ -370,7 +758,7 @@ pub fn convert_standalone(doc: &str, rate: Option<f64>) -> Result<ConversionReco
             column: 0,
             ..loc.from_toml(&e)
         })?;
-    let purpose = rate.map_or(Use::Intensity, Use::SampleVariance);
+    let purpose = rate.map_or(Use::Intensity, Use::Discrete);
     // The text was put together from the options: a line and column in it
     // would point at nothing the user wrote, so none is printed.
     convert(&loc, &fig, "figure", purpose, rate.unwrap_or(1.0), None)

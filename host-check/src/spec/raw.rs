@@ -126,8 +126,20 @@ pub struct RawNoise {
     pub density: Option<Spanned<f64>>,
     /// Power spectral density.
     pub psd: Option<Spanned<f64>>,
-    /// Random-walk coefficient.
+    /// Random-walk coefficient N of the integrated quantity: white noise on
+    /// the rate (angle or velocity random walk, IEEE Std 952-1997).
     pub random_walk: Option<Spanned<f64>>,
+    /// Bias instability B (the Allan floor 0.664 B), modelled as a
+    /// first-order Gauss-Markov bias state; needs `correlation_s`.
+    pub bias_instability: Option<Spanned<f64>>,
+    /// Rate random walk K: the random walk of a bias state (Allan variance
+    /// K^2 tau / 3), units of the rate per sqrt(s).
+    pub rate_random_walk: Option<Spanned<f64>>,
+    /// Quantization noise Q, in the integrated quantity's unit (Allan
+    /// variance 3 Q^2 / tau^2).
+    pub quantization: Option<Spanned<f64>>,
+    /// Correlation time of a `bias_instability` Gauss-Markov state, s.
+    pub correlation_s: Option<Spanned<f64>>,
     /// Standard deviation of one sample at `at_hz`.
     pub std: Option<Spanned<f64>>,
     /// Variance of one sample at `at_hz`.

@@ -186,6 +186,25 @@ pub(super) fn plan(loc: &Locator<'_>, raw: RawSpec, base: Option<&Path>) -> R<Pl
                     step_hz,
                     quantity.as_deref(),
                 )?;
+                // A bias instability is a Gauss-Markov state: its row of
+                // `a` must decay at the figure's correlation time.
+                if let (Some(_), Some(c), Some(r)) = (
+                    fig.get_ref().bias_instability.as_ref(),
+                    fig.get_ref().correlation_s.as_ref(),
+                    selected_state(&g, i, true),
+                ) {
+                    let want = -1.0 / *c.get_ref();
+                    if ((a[(r, r)] - want) / want).abs() > 1e-6 {
+                        return Err(loc.error(
+                            c.span(),
+                            &format!("{field}.correlation_s"),
+                            format!(
+                                "a bias instability drives a Gauss-Markov state: model.a[{r}][{r}] must be -1/correlation_s = {want:e}, it is {:e}",
+                                a[(r, r)]
+                            ),
+                        ));
+                    }
+                }
                 qc[(i, i)] = w;
                 conversions.push(rec);
             }
@@ -1229,6 +1248,9 @@ pub(super) fn noise_value(fig: &RawNoise) -> Vec<(&'static str, &Spanned<f64>)> 
         ("density", &fig.density),
         ("psd", &fig.psd),
         ("random_walk", &fig.random_walk),
+        ("bias_instability", &fig.bias_instability),
+        ("rate_random_walk", &fig.rate_random_walk),
+        ("quantization", &fig.quantization),
         ("std", &fig.std),
         ("variance", &fig.variance),
     ] {
