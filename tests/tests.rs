@@ -5,3 +5,4 @@ mod core_closed_form;
 mod core_factored;
 mod core_invariants;
 mod target;
+mod target_user;

@@ -40,7 +40,11 @@ pub fn build_user_probe(probe: &ProbeCrate) -> Result<PathBuf, CostError> {
     }
     let mut cargo = Command::new("cargo");
     cargo
-        .args(["build", "--release", "--message-format=json-render-diagnostics"])
+        .args([
+            "build",
+            "--release",
+            "--message-format=json-render-diagnostics",
+        ])
         .current_dir(&probe.dir)
         .env_remove("RUSTFLAGS")
         .env_remove("CARGO_ENCODED_RUSTFLAGS")
@@ -81,11 +85,7 @@ fn executables(messages: &str) -> Vec<(String, PathBuf)> {
         .collect()
 }
 
-fn pick(
-    built: &[(String, PathBuf)],
-    bin: Option<&str>,
-    dir: &Path,
-) -> Result<PathBuf, CostError> {
+fn pick(built: &[(String, PathBuf)], bin: Option<&str>, dir: &Path) -> Result<PathBuf, CostError> {
     let names: Vec<&str> = built.iter().map(|b| b.0.as_str()).collect();
     match bin {
         Some(b) => built.iter().find(|(n, _)| n == b).map(|(_, p)| p.clone()),

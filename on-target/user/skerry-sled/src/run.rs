@@ -15,6 +15,8 @@ use skerry_sled::{
     VELOCITY, VelocityFix, YAW,
 };
 
+/// Predicts in the bit run (30 s at 100 Hz), on the target and the host.
+pub const STEPS: u32 = 3_000;
 /// The step, s (100 Hz).
 pub const DT: f32 = 0.01;
 /// Steps between position fixes (1 Hz).

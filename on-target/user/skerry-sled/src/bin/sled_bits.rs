@@ -6,10 +6,7 @@
 #![no_main]
 
 use cairn_probe::{Line, exit, print_bits};
-use skerry_sled_probe::run;
-
-/// Predicts in the run (30 s at 100 Hz); the host test uses the same.
-const STEPS: u32 = 3_000;
+use skerry_sled_probe::run::{self, STEPS};
 
 #[cairn_probe::entry]
 fn main() -> ! {
