@@ -10,8 +10,10 @@ use std::time::Duration;
 
 use super::target::{have_qemu, run_qemu};
 
+// Each run brings its own copy of on-target/user/common.rs, as each probe
+// crate does on the target.
 #[path = "../on-target/user/bramble-tug/src/run.rs"]
-#[allow(dead_code)]
+#[allow(dead_code, clippy::duplicate_mod)]
 mod tug;
 
 #[path = "../on-target/user/bramble-tug/src/log_rows.rs"]
@@ -19,7 +21,7 @@ mod tug;
 mod tug_log;
 
 #[path = "../on-target/user/skerry-sled/src/run.rs"]
-#[allow(dead_code)]
+#[allow(dead_code, clippy::duplicate_mod)]
 mod sled;
 
 fn on_target_dir() -> PathBuf {

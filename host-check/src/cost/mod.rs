@@ -130,7 +130,7 @@ impl fmt::Display for CostError {
                 write!(f, "`{tool}` is not installed ({hint})")
             }
             CostError::Config(m) => write!(f, "{m}"),
-            CostError::Build(m) => write!(f, "building the on-target cost probe failed:\n{m}"),
+            CostError::Build(m) => write!(f, "building the cost probe failed:\n{m}"),
             CostError::Tool { tool, detail } => write!(f, "{tool}: {detail}"),
             CostError::Io(p, e) => write!(f, "{}: {e}", p.display()),
             CostError::NoProbes(p) => write!(
