@@ -376,3 +376,25 @@ fn the_sleds_own_operations_are_priced_on_the_cortex_m4f() {
     let share = |n: &str| op(n).cpu_share(report.clock_mhz);
     assert!(share("predict") > share("velocity_update") + share("position_update"));
 }
+
+#[test]
+fn a_rate_for_an_operation_the_probe_lacks_is_refused_naming_the_operations() {
+    use cairn_host_check::cost::{CostConfig, CostError, estimate, user::ProbeCrate};
+    need_qemu();
+    build_user_probes();
+    let config = CostConfig {
+        probe: Some(ProbeCrate {
+            dir: on_target_dir().join("user/bramble-tug"),
+            bin: Some("tug_cost".to_string()),
+        }),
+        rates: vec![("odometry".to_string(), 100.0)],
+        ..CostConfig::default()
+    };
+    match estimate(&config) {
+        Err(CostError::Config(m)) => {
+            assert!(m.contains("no probe named odometry"), "{m}");
+            assert!(m.contains("radio_update"), "{m}");
+        }
+        other => panic!("expected a refused rate, got {other:?}"),
+    }
+}
