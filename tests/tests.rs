@@ -7,3 +7,4 @@ mod core_factored;
 mod core_invariants;
 mod readme_example;
 mod target;
+mod target_user;

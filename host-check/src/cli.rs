@@ -55,8 +55,9 @@ pub enum Command {
     #[command(after_help = "Exit codes:\n  0  converted\n  2  bad figure or unit")]
     Noise(NoiseArgs),
     /// Estimate the cycles of one predict and one update on a Cortex-M4F (and
-    /// a Cortex-M7): builds on-target's cost probe, traces it under QEMU and
-    /// weights the executed instructions with the published cycle tables.
+    /// a Cortex-M7): builds on-target's cost probe (or, with --probe, the
+    /// user's own probe crate), traces it under QEMU and weights the executed
+    /// instructions with the published cycle tables.
     #[command(
         after_help = "Exit codes:\n  0  estimate printed\n  2  bad option, missing tool or failed build/run"
     )]
@@ -80,9 +81,17 @@ pub enum Command {
 /// `cairn cost`.
 #[derive(Debug, Args)]
 pub struct CostArgs {
-    /// Trace this cost-probe ELF instead of building on-target's.
-    #[arg(long, value_name = "PATH")]
+    /// Trace this cost-probe ELF instead of building on-target's: cairn's
+    /// own or a user probe (`cairn_probe__NAME` symbols, docs/target-probes.md).
+    #[arg(long, value_name = "PATH", conflicts_with = "probe")]
     pub elf: Option<PathBuf>,
+    /// Build this probe crate (made with the cairn-probe harness) in release
+    /// for the Cortex-M4F and trace it: prices the user's own operations.
+    #[arg(long, value_name = "DIR")]
+    pub probe: Option<PathBuf>,
+    /// The binary of the probe crate to trace (needed when it has several).
+    #[arg(long, value_name = "NAME", requires = "probe")]
+    pub bin: Option<String>,
     /// The on-target workspace to build (default: ./on-target).
     #[arg(long, value_name = "DIR")]
     pub on_target: Option<PathBuf>,
@@ -284,6 +293,10 @@ fn cost(a: &CostArgs) -> Result<u8, Failure> {
     }
     let config = crate::cost::CostConfig {
         elf: a.elf.clone(),
+        probe: a.probe.clone().map(|dir| crate::cost::user::ProbeCrate {
+            dir,
+            bin: a.bin.clone(),
+        }),
         on_target: a.on_target.clone(),
         clock_mhz: a.clock_mhz,
         rates,

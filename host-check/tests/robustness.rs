@@ -518,3 +518,96 @@ fn mode_on_a_linear_model_is_refused() {
     let out = cairn(&["check", spec.to_str().unwrap(), "--mode", "end-to-end"]);
     bad_input(&out, &["--mode applies to the planar-pose model only"]);
 }
+
+/// A folder holding only links to the named programs found on PATH, to
+/// run `cairn` as on a machine that lacks the others.
+fn path_with(name: &str, programs: &[&str]) -> PathBuf {
+    let dir = scratch(name);
+    let _ = std::fs::remove_dir_all(&dir);
+    std::fs::create_dir_all(&dir).expect("tool folder");
+    let path = std::env::var_os("PATH").unwrap_or_default();
+    for p in programs {
+        let found = std::env::split_paths(&path)
+            .map(|d| d.join(p))
+            .find(|f| f.is_file())
+            .unwrap_or_else(|| panic!("{p} is needed for this test"));
+        std::os::unix::fs::symlink(found, dir.join(p)).expect("link");
+    }
+    dir
+}
+
+/// The first llvm-objdump on PATH (Debian ships it as llvm-objdump-14).
+fn objdump_name() -> &'static str {
+    ["llvm-objdump", "llvm-objdump-14"]
+        .into_iter()
+        .find(|n| {
+            Command::new(n)
+                .arg("--version")
+                .output()
+                .is_ok_and(|o| o.status.success())
+        })
+        .expect("llvm-objdump is needed for this test")
+}
+
+#[test]
+fn cost_without_objdump_or_qemu_is_bad_input_naming_the_tool() {
+    let elf = env!("CARGO_BIN_EXE_cairn");
+    let nothing = path_with("no-tools", &[]);
+    let out = Command::new(elf)
+        .args(["cost", "--elf", elf])
+        .env("PATH", &nothing)
+        .output()
+        .expect("runs");
+    bad_input(&out, &["llvm-objdump", "is not installed"]);
+    let objdump_only = path_with("objdump-only", &[objdump_name()]);
+    let out = Command::new(elf)
+        .args(["cost", "--elf", elf])
+        .env("PATH", &objdump_only)
+        .output()
+        .expect("runs");
+    bad_input(&out, &["qemu-system-arm", "is not installed"]);
+}
+
+#[test]
+fn cost_of_an_elf_without_probe_symbols_is_bad_input_naming_the_contract() {
+    // The cairn binary itself: a real ELF with no probe functions.
+    let elf = env!("CARGO_BIN_EXE_cairn");
+    let out = cairn(&["cost", "--elf", elf]);
+    bad_input(
+        &out,
+        &[
+            "holds no probe functions",
+            "cairn_probe__NAME",
+            "docs/target-probes.md",
+        ],
+    );
+    let out = cairn(&["cost", "--elf", "/nonexistent/probe.elf"]);
+    bad_input(&out, &["no such ELF"]);
+}
+
+#[test]
+fn cost_of_a_probe_crate_that_does_not_build_is_bad_input_with_the_compiler_message() {
+    let dir = scratch("broken-probe");
+    std::fs::create_dir_all(dir.join("src")).expect("crate folder");
+    std::fs::write(
+        dir.join("Cargo.toml"),
+        "[package]\nname = \"broken-probe\"\nversion = \"0.1.0\"\nedition = \"2024\"\n\n\
+         [workspace]\n",
+    )
+    .expect("manifest");
+    std::fs::write(
+        dir.join("src/main.rs"),
+        "fn main() {\n    let n: u32 = \"not a number\";\n}\n",
+    )
+    .expect("source");
+    let out = cairn(&["cost", "--probe", dir.to_str().expect("utf-8 path")]);
+    bad_input(
+        &out,
+        &["building the cost probe failed", "mismatched types"],
+    );
+    // A folder with no crate, and --bin without --probe, are refused too.
+    let out = cairn(&["cost", "--probe", "/nonexistent/probe-crate"]);
+    bad_input(&out, &["no Cargo.toml"]);
+    let out = cairn(&["cost", "--bin", "tug_cost"]);
+    assert_eq!(out.status.code(), Some(2), "{}", stderr(&out));
+}

@@ -17,6 +17,7 @@ pub mod estimate;
 pub mod listing;
 pub mod timing;
 pub mod trace;
+pub mod user;
 
 use std::fmt::{self, Write as _};
 use std::path::{Path, PathBuf};
@@ -28,8 +29,13 @@ use std::collections::HashMap;
 
 use listing::{Function, Instruction, function_at, parse_disassembly, parse_symbols};
 
-/// Where the probe symbols live.
+/// Where the probe symbols of cairn's own cost probe live.
 pub const PROBE_PATH: &str = "cairn_on_target::probe::";
+
+/// The prefix of a user probe's symbol: `cairn_probe__NAME` prices the
+/// operation NAME (the contract of the `cairn-probe` harness,
+/// docs/target-probes.md).
+pub const USER_PROBE_PREFIX: &str = "cairn_probe__";
 
 /// The demo's rates (odometry 200 Hz, beacon fix 4 Hz, sun compass 1 Hz), used
 /// for the pose probes of both filters (Joseph and U-D) when no rate is given.
@@ -52,8 +58,12 @@ pub fn is_ud_probe(name: &str) -> bool {
 /// What to estimate and for which clock and rates.
 #[derive(Debug, Clone, PartialEq)]
 pub struct CostConfig {
-    /// A cost-probe ELF already built; when `None`, `on_target` is built.
+    /// A cost-probe ELF already built; when `None`, `probe` or else
+    /// `on_target` is built.
     pub elf: Option<PathBuf>,
+    /// A user's probe crate to build (release, for the Cortex-M4F) and
+    /// trace, and the binary in it; see [`user::build_user_probe`].
+    pub probe: Option<user::ProbeCrate>,
     /// The `on-target` workspace; `None` finds it next to the current
     /// directory or this crate.
     pub on_target: Option<PathBuf>,
@@ -75,6 +85,7 @@ impl Default for CostConfig {
     fn default() -> Self {
         Self {
             elf: None,
+            probe: None,
             on_target: None,
             clock_mhz: 168.0,
             rates: Vec::new(),
@@ -119,12 +130,14 @@ impl fmt::Display for CostError {
                 write!(f, "`{tool}` is not installed ({hint})")
             }
             CostError::Config(m) => write!(f, "{m}"),
-            CostError::Build(m) => write!(f, "building the on-target cost probe failed:\n{m}"),
+            CostError::Build(m) => write!(f, "building the cost probe failed:\n{m}"),
             CostError::Tool { tool, detail } => write!(f, "{tool}: {detail}"),
             CostError::Io(p, e) => write!(f, "{}: {e}", p.display()),
             CostError::NoProbes(p) => write!(
                 f,
-                "{} holds no functions under `{PROBE_PATH}`: is it on-target's cost_probe?",
+                "{} holds no probe functions: a user probe exports `{USER_PROBE_PREFIX}NAME` \
+                 symbols (the cairn-probe harness, docs/target-probes.md), on-target's \
+                 cost_probe defines `{PROBE_PATH}*`",
                 p.display()
             ),
         }
@@ -223,7 +236,9 @@ impl OperationCost {
                     .entries
                     .iter()
                     .filter(|(n, _)| {
-                        !n.ends_with(&format!("::{name}")) && !estimate::is_soft_float(n)
+                        !n.ends_with(&format!("::{name}"))
+                            && **n != format!("{USER_PROBE_PREFIX}{name}")
+                            && !estimate::is_soft_float(n)
                     })
                     .map(|(n, &k)| (n.clone(), t.per_call(k)))
                     .collect();
@@ -754,6 +769,8 @@ pub fn probes(functions: &[Function]) -> Vec<(String, u32)> {
         .filter_map(|f| {
             f.name
                 .strip_prefix(PROBE_PATH)
+                .or_else(|| f.name.strip_prefix(USER_PROBE_PREFIX))
+                .filter(|n| !n.is_empty())
                 .map(|n| (n.to_string(), f.addr))
         })
         .collect();
@@ -821,7 +838,10 @@ pub fn estimate(config: &CostConfig) -> Result<CostReport, CostError> {
             }
             e.clone()
         }
-        None => build_probe(&on_target_dir(config)?, &config.sizes)?,
+        None => match &config.probe {
+            Some(p) => user::build_user_probe(p)?,
+            None => build_probe(&on_target_dir(config)?, &config.sizes)?,
+        },
     };
     let syms = run_tool(
         objdump,
@@ -868,11 +888,12 @@ pub fn estimate(config: &CostConfig) -> Result<CostReport, CostError> {
                     .map(|r| r.1)
             })
     };
-    let operations: Vec<OperationCost> = probes
+    let mut operations: Vec<OperationCost> = probes
         .iter()
         .zip(&tallies)
         .map(|((name, _), t)| OperationCost::from_tally(name, t, rate(name), &listing, &functions))
         .collect();
+    user::announced_order(&mut operations, &stdout);
     let warnings = warnings(
         &operations,
         &tallies,
