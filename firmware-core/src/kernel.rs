@@ -209,7 +209,7 @@ pub(crate) fn propagate_dots<T: Scalar, const N: usize>(
 /// and positive semidefinite by construction when every q[k] >= 0, which
 /// is all a caller has to check.
 #[inline(always)]
-pub(crate) fn from_sources<T: Scalar, const N: usize>(
+pub fn from_sources<T: Scalar, const N: usize>(
     g: &SMatrix<T, N, N>,
     q: &SVector<T, N>,
 ) -> SMatrix<T, N, N> {

@@ -181,6 +181,7 @@ pub use estimator::Estimator;
 pub use form::{Checked, Conventional, CovarianceForm, Joseph};
 pub use health::{HealthMonitor, HealthReport, NisBand, wilson_hilferty_bounds};
 pub use kalman::Kalman;
+pub use kernel::from_sources as noise_from_sources;
 pub use ldl::Ldl;
 pub use model::{Linearized, MeasurementModel, ProcessModel};
 /// The nalgebra the core is built on (0.34): models name its types through

@@ -111,28 +111,6 @@ impl<T: Scalar> TugMotion<T> {
     }
 }
 
-/// Q = G diag(q) G': entry (i, j) is `sum_k (G[i,k] G[j,k]) q[k]`, k
-/// ascending, from -0.0 — the order cairn-core's filters use when they form
-/// Q from the sources, so the two agree bit for bit.
-#[inline(always)]
-pub(crate) fn from_sources<T: Scalar, const N: usize>(
-    g: &SMatrix<T, N, N>,
-    q: &SVector<T, N>,
-) -> SMatrix<T, N, N> {
-    let mut out = SMatrix::<T, N, N>::zeros();
-    for j in 0..N {
-        for i in 0..=j {
-            let mut v = -T::zero();
-            for k in 0..N {
-                v += g[(i, k)] * g[(j, k)] * q[k];
-            }
-            out[(i, j)] = v;
-            out[(j, i)] = v;
-        }
-    }
-    out
-}
-
 impl<T: Scalar> ProcessModel<T, STATES> for TugMotion<T> {
     type Input = ImuSample<T>;
 
@@ -161,7 +139,7 @@ impl<T: Scalar> ProcessModel<T, STATES> for TugMotion<T> {
         dt: T,
     ) -> SMatrix<T, STATES, STATES> {
         let (g, q) = self.sources_at(dt);
-        from_sources(&g, &q)
+        cairn_core::noise_from_sources(&g, &q)
     }
 
     #[inline(always)]
@@ -182,7 +160,7 @@ impl<T: Scalar> ProcessModel<T, STATES> for TugMotion<T> {
         Linearized {
             next: Self::next(x, u, dt, s, c),
             jacobian: Self::jacobian_at(x, dt, s, c),
-            noise: from_sources(&g, &q),
+            noise: cairn_core::noise_from_sources(&g, &q),
             sources: Some((g, q)),
         }
     }

@@ -284,28 +284,6 @@ impl<T: Scalar> SledInertial<T> {
     }
 }
 
-/// Q = G diag(q) G': entry (i, j) is `sum_k (G[i,k] G[j,k]) q[k]`, k
-/// ascending, from -0.0 — the order cairn-core's filters use when they form
-/// Q from the sources, so the two agree bit for bit.
-#[inline(always)]
-fn from_sources<T: Scalar, const N: usize>(
-    g: &SMatrix<T, N, N>,
-    q: &SVector<T, N>,
-) -> SMatrix<T, N, N> {
-    let mut out = SMatrix::<T, N, N>::zeros();
-    for j in 0..N {
-        for i in 0..=j {
-            let mut v = -T::zero();
-            for k in 0..N {
-                v += g[(i, k)] * g[(j, k)] * q[k];
-            }
-            out[(i, j)] = v;
-            out[(j, i)] = v;
-        }
-    }
-    out
-}
-
 /// Wraps roll and yaw into (-pi, pi]; pitch stays as it is.
 #[inline(always)]
 pub(crate) fn wrap_attitude<T: Scalar>(x: &mut SVector<T, STATES>) {
@@ -342,7 +320,7 @@ impl<T: Scalar> ProcessModel<T, STATES> for SledInertial<T> {
     ) -> SMatrix<T, STATES, STATES> {
         let t = Trig::of(x);
         let (g, q) = self.sources_at(dt, &t.body_to_level(), &t.euler_rates());
-        from_sources(&g, &q)
+        cairn_core::noise_from_sources(&g, &q)
     }
 
     #[inline(always)]
@@ -366,7 +344,7 @@ impl<T: Scalar> ProcessModel<T, STATES> for SledInertial<T> {
         Linearized {
             next: self.next(x, u, dt, &c, &e),
             jacobian: Self::jacobian_at(x, u, dt, &t, &c, &e),
-            noise: from_sources(&g, &q),
+            noise: cairn_core::noise_from_sources(&g, &q),
             sources: Some((g, q)),
         }
     }
