@@ -7,7 +7,7 @@ use std::path::PathBuf;
 
 use clap::Args;
 
-use crate::cli::{EXIT_BAD_INPUT, EXIT_PASS, Failure};
+use crate::exit::{EXIT_BAD_INPUT, EXIT_PASS, Failure};
 use crate::output;
 
 /// Exit codes of `cairn allan`.

@@ -18,9 +18,9 @@ use super::system::System;
 use super::world::{Source, World};
 use crate::engine::external::ExternalStream;
 use crate::engine::metrics;
+use crate::engine::plan::{Mode, Plan};
 use crate::engine::verdict::judge;
 use crate::numeric::dare;
-use crate::spec::{Mode, Plan};
 
 /// Steps recorded by the reference stage per block.
 const BLOCK: usize = 1024;

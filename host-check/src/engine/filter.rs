@@ -8,7 +8,7 @@ use nalgebra::{DMatrix, SMatrix, SVector};
 use serde::Serialize;
 
 use super::system::{Sensor, System};
-use crate::spec::Precision;
+use crate::engine::plan::Precision;
 
 /// A covariance form of cairn-core.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]

@@ -9,7 +9,7 @@ use super::filter::{Filter, Variant};
 use super::stream::Record;
 use super::system::System;
 use crate::engine::metrics::{self, Failure, Tracker};
-use crate::spec::ChannelPlan;
+use crate::engine::plan::ChannelPlan;
 
 /// How the variants are driven.
 #[derive(Debug, Clone, Copy)]

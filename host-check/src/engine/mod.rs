@@ -6,6 +6,7 @@
 //!
 //! | module     | job                                                     |
 //! |------------|---------------------------------------------------------|
+//! | [`plan`]   | the scenario a check runs, as one validated value       |
 //! | [`system`] | the traits a user's models implement ([`System`], [`Sensor`]) |
 //! | [`channel`] | a sensor with its size erased, for the list of channels |
 //! | [`filter`] | the catalogue of variants and one running core filter each |
@@ -34,6 +35,7 @@ pub mod lanes;
 pub mod log;
 pub mod metrics;
 pub mod mission;
+pub mod plan;
 pub mod result;
 pub mod steady;
 pub mod stream;

@@ -6,7 +6,7 @@ use serde::Serialize;
 use super::jacobian::JacobianReport;
 use super::metrics::Tracker;
 pub use super::verdict::{Verdict, judge};
-use crate::spec::{Mode, Precision};
+use crate::engine::plan::{Mode, Precision};
 
 /// Options from the command line that shape a run.
 #[derive(Debug, Clone, Copy, Default)]

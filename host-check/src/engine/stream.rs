@@ -13,8 +13,8 @@ use super::system::System;
 use super::world::{StepInput, World, WorldError};
 use crate::engine::external::ExternalStream;
 use crate::engine::metrics::{self, BUCKETS};
+use crate::engine::plan::ChannelPlan;
 use crate::numeric::ReferenceFilter;
-use crate::spec::ChannelPlan;
 
 /// One measurement as the reference handled it.
 #[derive(Debug, Clone)]

@@ -10,7 +10,7 @@ use super::filter::UpdateInput;
 use super::filter::{Filter, Variant};
 use super::system::System;
 use super::world::{InputProfile, Source, StepInput, World, WorldError};
-use crate::spec::Plan;
+use crate::engine::plan::Plan;
 
 /// What one variant did over one run.
 #[derive(Debug, Clone)]

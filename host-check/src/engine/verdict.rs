@@ -4,7 +4,7 @@
 use serde::Serialize;
 
 use super::metrics::Tracker;
-use crate::spec::Thresholds;
+use crate::engine::plan::Thresholds;
 
 /// A variant's verdict.
 #[derive(Debug, Clone, Serialize)]

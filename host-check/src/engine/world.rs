@@ -7,8 +7,8 @@ use nalgebra::{DMatrix, SMatrix, SVector};
 use super::channel::Channel;
 use super::log::{Layout, LogError, LogReader, Row};
 use super::system::System;
+use crate::engine::plan::ChannelPlan;
 use crate::engine::synth::Noise;
-use crate::spec::ChannelPlan;
 
 /// The true input against time, for a simulated run.
 pub trait InputProfile: Sync {

@@ -53,6 +53,7 @@ macro_rules! dmat {
     }};
 }
 
+pub mod conversion;
 pub mod dare;
 pub mod dd;
 pub mod ddmat;

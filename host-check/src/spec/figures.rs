@@ -2,7 +2,6 @@
 //! deviation, each with a unit) converted into the filter's numbers through
 //! `numeric::noise`, keeping every step for the report.
 
-use serde::Serialize;
 use toml::Spanned;
 
 use super::error::{Locator, SpecError};
@@ -31,33 +30,7 @@ pub enum Use {
 /// own discrete model (IEEE Std 952-1997 names: B, K, Q).
 const TERM_KINDS: [&str; 3] = ["bias_instability", "rate_random_walk", "quantization"];
 
-/// One step of a conversion, for the report.
-#[derive(Debug, Clone, Serialize)]
-pub struct Step {
-    /// What the step computes.
-    pub what: String,
-    /// The formula.
-    pub formula: String,
-    /// The value obtained.
-    pub value: f64,
-    /// Its unit.
-    pub unit: String,
-}
-
-/// The chain of conversions of one noise figure.
-#[derive(Debug, Clone, Serialize)]
-pub struct ConversionRecord {
-    /// The spec field the figure came from.
-    pub field: String,
-    /// The figure as written.
-    pub given: String,
-    /// The steps, in order.
-    pub steps: Vec<Step>,
-    /// The number the filter uses.
-    pub result: f64,
-    /// What the result is.
-    pub result_is: String,
-}
+pub use crate::numeric::conversion::{ConversionRecord, Step};
 
 /// Converts one figure for `purpose`; returns the number and its record.
 ///

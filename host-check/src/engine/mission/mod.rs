@@ -8,9 +8,9 @@ pub mod fit;
 pub mod gain;
 pub mod types;
 
+use crate::engine::plan::{ChannelKind, ModelPlan, Plan};
 use crate::engine::result::{RunResult, SteadyResult};
 use crate::engine::steady::Lifted;
-use crate::spec::{ChannelKind, ModelPlan, Plan};
 pub use fit::Trend;
 pub use gain::{ConstantGain, GainLaneResult};
 pub use types::*;
@@ -349,7 +349,7 @@ fn variant_mission(
     v: &crate::engine::result::VariantResult,
     run: &RunResult,
     mission_steps: f64,
-    thresholds: &crate::spec::Thresholds,
+    thresholds: &crate::engine::plan::Thresholds,
     case: &(Case, String),
 ) -> VariantMission {
     let limit = thresholds.max_relative_error;
