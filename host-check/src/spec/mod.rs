@@ -74,6 +74,7 @@ pub fn parse(file: &str, text: &str, base: Option<&Path>) -> Result<Plan, SpecEr
 #[cfg(test)]
 mod tests {
     use super::*;
+    use nalgebra::DMatrix;
 
     fn channel(rate_hz: f64, dropouts: Vec<(f64, f64)>) -> ChannelPlan {
         ChannelPlan {
