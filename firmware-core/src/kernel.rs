@@ -206,7 +206,7 @@ pub(crate) fn propagate_dots<T: Scalar, const N: usize>(
 
 /// Q = G diag(q) G' from independent noise sources: entry (i, j) is
 /// `sum_k (G[i,k] G[j,k]) q[k]` (k ascending from zero), exactly symmetric,
-/// and positive semidefinite by construction when every q[k] >= 0, which
+/// and positive semidefinite by construction when every `q[k] >= 0`, which
 /// is all a caller has to check.
 #[inline(always)]
 pub fn from_sources<T: Scalar, const N: usize>(
