@@ -6,6 +6,8 @@ use nalgebra::{SMatrix, SVector};
 use crate::error::{FilterError, Operand, idx};
 use crate::ldl::failing_pivot;
 use crate::model::ProcessModel;
+use crate::pattern::Pattern;
+use crate::patterned::free_finite;
 use crate::scalar::Scalar;
 
 pub(crate) use crate::kernel::all_finite;
@@ -189,6 +191,15 @@ pub(crate) fn posterior<T: Scalar, const N: usize>(
     if !all_finite(x.as_slice()) {
         return Err(FilterError::NonFinite(Operand::State));
     }
+    covariance(p)
+}
+
+/// A computed covariance (upper triangle read): finite with a positive
+/// diagonal, as [`posterior`] without the state.
+#[inline(always)]
+pub(crate) fn covariance<T: Scalar, const N: usize>(
+    p: &SMatrix<T, N, N>,
+) -> Result<(), FilterError> {
     let mut positive = true;
     for i in 0..N {
         positive &= p[(i, i)] > T::zero();
@@ -230,28 +241,51 @@ pub(crate) fn time_step<T: Scalar>(dt: T) -> Result<(), FilterError> {
 pub(crate) fn linearized<T: Scalar, const N: usize, P: ProcessModel<T, N>>(
     model: &P,
     jacobian: &SMatrix<T, N, N>,
+    pattern: &Pattern<N, N>,
     next: &mut SVector<T, N>,
 ) -> Result<(), FilterError> {
-    finite(jacobian, Operand::Transition)?;
+    // Only the entries the kernels read.
+    if !free_finite(jacobian, pattern) {
+        return Err(FilterError::NonFinite(Operand::Transition));
+    }
     finite(next, Operand::Control)?;
     model.normalize(next);
     Ok(())
 }
 
-/// Independent noise sources: finite, every variance non-negative.
+/// Independent noise sources: the free entries of G (those the kernels
+/// read) finite, every variance finite and non-negative.
 #[inline(always)]
 pub(crate) fn sources<T: Scalar, const N: usize>(
     g: &SMatrix<T, N, N>,
+    pattern: &Pattern<N, N>,
     q: &SVector<T, N>,
 ) -> Result<(), FilterError> {
-    finite(g, Operand::ProcessNoise)?;
-    finite(q, Operand::ProcessNoise)?;
-    match q.iter().position(|&v| v < T::zero()) {
-        Some(i) => Err(FilterError::NotPositiveDefinite {
-            operand: Operand::ProcessNoise,
-            index: idx(i),
-        }),
-        None => Ok(()),
+    if !free_finite(g, pattern) {
+        return Err(FilterError::NonFinite(Operand::ProcessNoise));
+    }
+    // |v| - v is +0 for a finite v >= 0, positive for a negative v or -inf,
+    // NaN for NaN or +inf: one sum and one comparison test both conditions.
+    let mut acc = crate::kernel::neg_zero::<T>();
+    for &v in q.iter() {
+        acc += v.abs() - v;
+    }
+    if acc == T::zero() {
+        Ok(())
+    } else {
+        Err(bad_variances(q))
+    }
+}
+
+/// Which of the variances failed, and how (only on the error path).
+#[cold]
+fn bad_variances<T: Scalar, const N: usize>(q: &SVector<T, N>) -> FilterError {
+    if !all_finite(q.as_slice()) {
+        return FilterError::NonFinite(Operand::ProcessNoise);
+    }
+    FilterError::NotPositiveDefinite {
+        operand: Operand::ProcessNoise,
+        index: idx(q.iter().position(|&v| v < T::zero()).unwrap_or(0)),
     }
 }
 

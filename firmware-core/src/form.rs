@@ -6,6 +6,8 @@ use core::marker::PhantomData;
 use nalgebra::{SMatrix, SVector};
 
 use crate::kernel::{VECTOR, neg_zero};
+use crate::pattern::Pattern;
+use crate::patterned;
 use crate::scalar::Scalar;
 
 /// How the posterior covariance is formed from the prior and the gain.
@@ -34,6 +36,24 @@ pub trait CovarianceForm {
         r: &SMatrix<T, M, M>,
         s: &SMatrix<T, M, M>,
     );
+
+    /// [`CovarianceForm::posterior`] for an H with the structure `pattern`
+    /// (a model's [`crate::MeasurementModel::JACOBIAN_PATTERN`]): the same
+    /// numbers, the products with H's structural zeros skipped. The default
+    /// ignores the pattern.
+    #[inline(always)]
+    fn posterior_patterned<T: Scalar, const N: usize, const M: usize>(
+        p: &mut SMatrix<T, N, N>,
+        h: &SMatrix<T, M, N>,
+        pattern: &Pattern<M, N>,
+        b: &SMatrix<T, N, M>,
+        k: &SMatrix<T, N, M>,
+        r: &SMatrix<T, M, M>,
+        s: &SMatrix<T, M, M>,
+    ) {
+        let _ = pattern;
+        Self::posterior(p, h, b, k, r, s);
+    }
 
     /// Posterior covariance for one scalar measurement with row `h`,
     /// `b = P h'`, gain `k`, noise variance `r` and innovation variance `s`,
@@ -120,6 +140,19 @@ impl<F: CovarianceForm> CovarianceForm for Checked<F> {
     }
 
     #[inline(always)]
+    fn posterior_patterned<T: Scalar, const N: usize, const M: usize>(
+        p: &mut SMatrix<T, N, N>,
+        h: &SMatrix<T, M, N>,
+        pattern: &Pattern<M, N>,
+        b: &SMatrix<T, N, M>,
+        k: &SMatrix<T, N, M>,
+        r: &SMatrix<T, M, M>,
+        s: &SMatrix<T, M, M>,
+    ) {
+        F::posterior_patterned(p, h, pattern, b, k, r, s)
+    }
+
+    #[inline(always)]
     fn posterior_scalar<T: Scalar, const N: usize>(
         p: &mut SMatrix<T, N, N>,
         h: &SVector<T, N>,
@@ -145,6 +178,19 @@ impl CovarianceForm for Joseph {
         _s: &SMatrix<T, M, M>,
     ) {
         joseph::<T, N, M, VECTOR>(p, h, b, k, r)
+    }
+
+    #[inline(always)]
+    fn posterior_patterned<T: Scalar, const N: usize, const M: usize>(
+        p: &mut SMatrix<T, N, N>,
+        h: &SMatrix<T, M, N>,
+        pattern: &Pattern<M, N>,
+        b: &SMatrix<T, N, M>,
+        k: &SMatrix<T, N, M>,
+        r: &SMatrix<T, M, M>,
+        _s: &SMatrix<T, M, M>,
+    ) {
+        patterned::joseph(p, h, pattern, b, k, r)
     }
 
     #[inline(always)]
@@ -194,7 +240,7 @@ impl CovarianceForm for Conventional {
 
 /// Joseph's factored order for a vector measurement.
 #[inline(always)]
-fn joseph<T: Scalar, const N: usize, const M: usize, const COLUMNS: bool>(
+pub(crate) fn joseph<T: Scalar, const N: usize, const M: usize, const COLUMNS: bool>(
     p: &mut SMatrix<T, N, N>,
     h: &SMatrix<T, M, N>,
     b: &SMatrix<T, N, M>,

@@ -11,6 +11,8 @@ use crate::form::{CovarianceForm, Joseph};
 use crate::kernel::{from_sources, innovation, mirror_upper, propagate};
 use crate::ldl::Ldl;
 use crate::model::{Linearized, MeasurementModel, ProcessModel};
+use crate::pattern::Pattern;
+use crate::patterned;
 use crate::scalar::Scalar;
 
 /// A Kalman filter over `N` states in scalar `T`, with the covariance
@@ -207,21 +209,34 @@ impl<T: Scalar, const N: usize, F: CovarianceForm> Kalman<T, N, F> {
             noise,
             sources,
         } = model.linearize(&self.x, u, dt);
-        check::linearized(model, &jacobian, &mut next)?;
+        // The model's structure, constants of its type: a dense pattern
+        // takes the dense kernels.
+        let f_pattern = const { &P::JACOBIAN_PATTERN };
+        let g_columns = const { &P::SOURCES_PATTERN.transpose() };
+        check::linearized(model, &jacobian, f_pattern, &mut next)?;
         // Noise given as independent sources makes its own Q, symmetric and
         // semidefinite by construction: only the variances need checking.
         let q = match sources {
             Some((g, q)) => {
-                check::sources(&g, &q)?;
-                from_sources(&g, &q)
+                check::sources(&g, const { &P::SOURCES_PATTERN }, &q)?;
+                if g_columns.is_dense() {
+                    from_sources(&g, &q)
+                } else {
+                    patterned::from_sources(&g, g_columns, &q)
+                }
             }
             None => {
                 check::noise(&noise, Operand::ProcessNoise, false)?;
                 noise
             }
         };
-        let p = propagate(&jacobian, &self.p, &q);
-        self.commit(&next, &p)
+        let p = if f_pattern.is_dense() {
+            propagate(&jacobian, &self.p, &q)
+        } else {
+            patterned::propagate(&jacobian, f_pattern, &self.p, &q)
+        };
+        // `next` was checked finite and normalised (which keeps it finite).
+        self.store(&next, &p)
     }
 
     /// Linear update with measurement z = H x + v, v ~ N(0, R), solving with
@@ -252,7 +267,7 @@ impl<T: Scalar, const N: usize, F: CovarianceForm> Kalman<T, N, F> {
         check::finite(h, Operand::MeasurementMatrix)?;
         let nu = z - h * self.x;
         let mut post = self.p;
-        let weighed = self.weigh(nu, h, r, gate, &mut post)?;
+        let weighed = self.weigh(nu, h, const { &Pattern::DENSE }, r, gate, &mut post)?;
         self.finish(weighed, &post, |_| {})
     }
 
@@ -277,10 +292,13 @@ impl<T: Scalar, const N: usize, F: CovarianceForm> Kalman<T, N, F> {
         let nu = model.residual(z, &predicted);
         check::finite(&nu, Operand::Innovation)?;
         let h = model.jacobian(&self.x);
-        check::finite(&h, Operand::MeasurementMatrix)?;
+        let h_pattern = const { &Mm::JACOBIAN_PATTERN };
+        if !patterned::free_finite(&h, h_pattern) {
+            return Err(FilterError::NonFinite(Operand::MeasurementMatrix));
+        }
         let r = model.noise(&self.x);
         let mut post = self.p;
-        let weighed = self.weigh(nu, &h, &r, gate, &mut post)?;
+        let weighed = self.weigh(nu, &h, h_pattern, &r, gate, &mut post)?;
         self.finish(
             weighed,
             &post,
@@ -360,6 +378,7 @@ impl<T: Scalar, const N: usize, F: CovarianceForm> Kalman<T, N, F> {
         &self,
         nu: SVector<T, M>,
         h: &SMatrix<T, M, N>,
+        h_pattern: &Pattern<M, N>,
         r: &SMatrix<T, M, M>,
         gate: Option<T>,
         post: &mut SMatrix<T, N, N>,
@@ -375,7 +394,11 @@ impl<T: Scalar, const N: usize, F: CovarianceForm> Kalman<T, N, F> {
         }
         check::finite(&nu, Operand::Innovation)?;
         // B = P H' (n x m); S = H B + R.
-        let (b, s) = innovation(&self.p, h, r);
+        let (b, s) = if h_pattern.is_dense() {
+            innovation(&self.p, h, r)
+        } else {
+            patterned::innovation(&self.p, h, h_pattern, r)
+        };
         let ldl = Ldl::factor(&s).map_err(|j| FilterError::SingularInnovation { pivot: idx(j) })?;
         let nis = ldl.inverse_quadratic(&nu);
         if !nis.finite() {
@@ -388,7 +411,11 @@ impl<T: Scalar, const N: usize, F: CovarianceForm> Kalman<T, N, F> {
         }
         let k = ldl.right_divide(&b);
         let x = self.x + k * nu;
-        F::posterior(post, h, &b, &k, r, &s);
+        if h_pattern.is_dense() {
+            F::posterior(post, h, &b, &k, r, &s);
+        } else {
+            F::posterior_patterned(post, h, h_pattern, &b, &k, r, &s);
+        }
         Ok(Weighed::Apply { x, nis })
     }
 
@@ -415,6 +442,13 @@ impl<T: Scalar, const N: usize, F: CovarianceForm> Kalman<T, N, F> {
     #[inline(always)]
     fn commit(&mut self, x: &SVector<T, N>, p: &SMatrix<T, N, N>) -> Result<(), FilterError> {
         check::posterior(x, p)?;
+        self.store(x, p)
+    }
+
+    /// [`Kalman::commit`] for a state already checked finite.
+    #[inline(always)]
+    fn store(&mut self, x: &SVector<T, N>, p: &SMatrix<T, N, N>) -> Result<(), FilterError> {
+        check::covariance(p)?;
         // A compile-time choice: a filter without the check pays nothing.
         if F::CHECKS_DEFINITENESS {
             check::definite(p)?;

@@ -168,6 +168,8 @@ mod kalman;
 mod kernel;
 mod ldl;
 mod model;
+mod pattern;
+mod patterned;
 pub mod pose;
 mod scalar;
 mod steady;
@@ -187,6 +189,7 @@ pub use model::{Linearized, MeasurementModel, ProcessModel};
 /// The nalgebra the core is built on (0.34): models name its types through
 /// this path, so they are the core's own.
 pub use nalgebra;
+pub use pattern::{Entry, Pattern};
 pub use scalar::{Scalar, wrap_angle};
 pub use steady::SteadyGain;
 pub use ud::UdKalman;

@@ -3,6 +3,7 @@
 
 use nalgebra::{SMatrix, SVector};
 
+use crate::pattern::Pattern;
 use crate::scalar::Scalar;
 
 /// Everything one extended predict needs from a process model at the
@@ -26,6 +27,16 @@ pub struct Linearized<T: Scalar, const N: usize> {
 pub trait ProcessModel<T: Scalar, const N: usize> {
     /// The control input (odometry, commanded rates, ...).
     type Input;
+
+    /// Which entries of the Jacobian F are structurally zero or one for
+    /// every state and input: the predict's kernels skip them (see
+    /// [`Pattern`]). The default, [`Pattern::DENSE`], declares none.
+    const JACOBIAN_PATTERN: Pattern<N, N> = Pattern::DENSE;
+
+    /// Which entries of the noise-source matrix G (the first part of the
+    /// model's noise sources) are structurally zero or one; the columns of
+    /// G beyond the number of sources are zero. Default: none declared.
+    const SOURCES_PATTERN: Pattern<N, N> = Pattern::DENSE;
 
     /// The propagated state f(x, u, dt).
     fn transition(&self, x: &SVector<T, N>, u: &Self::Input, dt: T) -> SVector<T, N>;
@@ -69,6 +80,11 @@ pub trait ProcessModel<T: Scalar, const N: usize> {
 /// A nonlinear measurement model z = h(x) + v with its Jacobian, noise and
 /// residual rule.
 pub trait MeasurementModel<T: Scalar, const N: usize, const M: usize> {
+    /// Which entries of the Jacobian H are structurally zero or one for
+    /// every state: the update's kernels skip them (see [`Pattern`]). The
+    /// default, [`Pattern::DENSE`], declares none.
+    const JACOBIAN_PATTERN: Pattern<M, N> = Pattern::DENSE;
+
     /// The predicted measurement h(x).
     fn predict(&self, x: &SVector<T, N>) -> SVector<T, M>;
 

@@ -5,6 +5,7 @@ use nalgebra::{Matrix2, SMatrix, SVector, Vector2, Vector3};
 
 use crate::kernel::from_sources;
 use crate::model::{Linearized, MeasurementModel, ProcessModel};
+use crate::pattern::Pattern;
 use crate::scalar::{Scalar, wrap_angle};
 
 /// One odometry sample: forward speed (m/s) and yaw rate (rad/s), averaged
@@ -46,6 +47,13 @@ impl<T: Scalar> PlanarOdometry<T> {
 
 impl<T: Scalar> ProcessModel<T, 3> for PlanarOdometry<T> {
     type Input = Odometry<T>;
+
+    /// The identity plus the heading's effect on x and y.
+    const JACOBIAN_PATTERN: Pattern<3, 3> = Pattern::IDENTITY.free(0, 2).free(1, 2);
+    /// Speed and yaw rate drive x and y; yaw rate and drift the heading
+    /// (drift with weight one).
+    const SOURCES_PATTERN: Pattern<3, 3> =
+        Pattern::ZERO.free_block(0, 0, 2, 2).free(2, 1).one(2, 2);
 
     #[inline(always)]
     fn transition(&self, x: &Vector3<T>, u: &Odometry<T>, dt: T) -> Vector3<T> {
@@ -151,6 +159,9 @@ impl<T: Scalar> PositionFix<T> {
 }
 
 impl<T: Scalar> MeasurementModel<T, 3, 2> for PositionFix<T> {
+    /// H selects x and y.
+    const JACOBIAN_PATTERN: Pattern<2, 3> = Pattern::IDENTITY;
+
     #[inline(always)]
     fn predict(&self, x: &Vector3<T>) -> Vector2<T> {
         Vector2::new(x[0], x[1])
@@ -179,6 +190,9 @@ pub struct HeadingFix<T> {
 }
 
 impl<T: Scalar> MeasurementModel<T, 3, 1> for HeadingFix<T> {
+    /// H selects the heading.
+    const JACOBIAN_PATTERN: Pattern<1, 3> = Pattern::ZERO.one(0, 2);
+
     #[inline(always)]
     fn predict(&self, x: &Vector3<T>) -> SVector<T, 1> {
         SVector::<T, 1>::new(x[2])

@@ -7,6 +7,7 @@ use crate::check;
 use crate::error::{FilterError, Operand, Outcome, idx};
 use crate::ldl::Ldl;
 use crate::model::{Linearized, MeasurementModel, ProcessModel};
+use crate::pattern::Pattern;
 use crate::scalar::Scalar;
 
 /// A Kalman filter that carries its covariance as U-D factors.
@@ -248,10 +249,10 @@ impl<T: Scalar, const N: usize> UdKalman<T, N> {
             noise,
             sources,
         } = model.linearize(&self.x, u, dt);
-        check::linearized(model, &jacobian, &mut next)?;
+        check::linearized(model, &jacobian, const { &Pattern::DENSE }, &mut next)?;
         let ud = match sources {
             Some((g, q)) => {
-                check::sources(&g, &q)?;
+                check::sources(&g, const { &Pattern::DENSE }, &q)?;
                 self.gram_schmidt(&jacobian, &g, &q)?
             }
             None => {
@@ -301,7 +302,7 @@ impl<T: Scalar, const N: usize> UdKalman<T, N> {
         q: &SVector<T, N>,
     ) -> Result<(), FilterError> {
         check::finite(f, Operand::Transition)?;
-        check::sources(g, q)?;
+        check::sources(g, const { &Pattern::DENSE }, q)?;
         let x = f * self.x;
         let ud = self.gram_schmidt(f, g, q)?;
         self.commit::<true>(x, ud)

@@ -1,0 +1,350 @@
+//! The covariance products over a [`Pattern`]'s non-zero entries.
+//!
+//! Each kernel computes every entry as the dense kernels do (the same
+//! products, summed in the same ascending order from -0), skipping the
+//! products with a structural zero and taking a structural one's product as
+//! the other factor. One loop shape, an entry at a time, serves every
+//! target: skipping zeros leaves no contiguous columns for a vector unit to
+//! run, and one shape makes the host's f32 the target's by construction.
+//! Small patterns (the pose model's) unroll completely, their lists folded
+//! into straight-line code; larger ones loop over the constant lists.
+
+use nalgebra::{SMatrix, SVector};
+
+use crate::kernel::neg_zero;
+use crate::pattern::Pattern;
+use crate::scalar::Scalar;
+
+/// `factor`'s product with an entry: the entry itself when it is a
+/// structural one, else `factor * entry`.
+#[inline(always)]
+fn times<T: Scalar>(factor: T, one: bool, entry: T) -> T {
+    if one { factor } else { factor * entry }
+}
+
+/// `true` when every free entry is finite (the only entries the kernels
+/// read).
+#[allow(clippy::eq_op)]
+#[inline(always)]
+pub(crate) fn free_finite<T: Scalar, const R: usize, const C: usize>(
+    m: &SMatrix<T, R, C>,
+    pattern: &Pattern<R, C>,
+) -> bool {
+    if pattern.is_dense() {
+        return crate::kernel::all_finite(m.as_slice());
+    }
+    let mut acc = neg_zero::<T>();
+    for i in 0..R {
+        pattern.each_in_row(
+            i,
+            #[inline(always)]
+            |j, one| {
+                if !one {
+                    let v = m[(i, j)];
+                    acc += v - v;
+                }
+            },
+        );
+    }
+    acc == T::zero()
+}
+
+/// F P F' + Q for a symmetric P and an F with structure `pattern`: the upper
+/// triangle (diagonal included); the lower one is left unspecified.
+///
+/// Entry (i, j), i <= j, is `sum_e C[i,e] F[j,e]` over row j's non-zero e
+/// (ascending) plus `Q[i,j]`, where `C[i,e] = sum_k F[i,k] P[k,e]` over row
+/// i's non-zero k (ascending): the dense kernel's sums less their zero
+/// terms. About nnz(F) (n + (n + 1) / 2) multiply-adds instead of 1.5 n^3.
+#[inline(always)]
+pub(crate) fn propagate<T: Scalar, const N: usize>(
+    f: &SMatrix<T, N, N>,
+    pattern: &Pattern<N, N>,
+    p: &SMatrix<T, N, N>,
+    q: &SMatrix<T, N, N>,
+) -> SMatrix<T, N, N> {
+    // A = C' (A[e,i] = C[i,e]): P's column e is its row e.
+    let mut a = SMatrix::<T, N, N>::from_element(neg_zero());
+    for i in 0..N {
+        for e in 0..N {
+            let mut v = neg_zero::<T>();
+            pattern.each_in_row(
+                i,
+                #[inline(always)]
+                |k, one| v += times(p[(k, e)], one, f[(i, k)]),
+            );
+            a[(e, i)] = v;
+        }
+    }
+    let mut out = SMatrix::<T, N, N>::from_element(neg_zero());
+    for j in 0..N {
+        for i in 0..=j {
+            let mut v = neg_zero::<T>();
+            pattern.each_in_row(
+                j,
+                #[inline(always)]
+                |e, one| v += times(a[(e, i)], one, f[(j, e)]),
+            );
+            out[(i, j)] = v + q[(i, j)];
+        }
+    }
+    out
+}
+
+/// Q = G diag(q) G' for a G whose transposed structure is `columns` (row k
+/// of `columns` lists the states noise source k drives): entry (i, j) is
+/// `sum_k (G[i,k] G[j,k]) q[k]` over the sources that drive both i and j,
+/// k ascending, from -0; exactly symmetric.
+#[inline(always)]
+pub(crate) fn from_sources<T: Scalar, const N: usize>(
+    g: &SMatrix<T, N, N>,
+    columns: &Pattern<N, N>,
+    q: &SVector<T, N>,
+) -> SMatrix<T, N, N> {
+    let mut out = SMatrix::<T, N, N>::from_element(neg_zero());
+    // Source by source (k ascending), so each entry's sum keeps its order.
+    for k in 0..N {
+        let qk = q[k];
+        columns.each_in_row(
+            k,
+            #[inline(always)]
+            |j, one_j| {
+                columns.each_in_row(
+                    k,
+                    #[inline(always)]
+                    |i, one_i| {
+                        if i <= j {
+                            // (G[i,k] G[j,k]) q[k], with a one's product taken as
+                            // the other factor.
+                            out[(i, j)] += match (one_i, one_j) {
+                                (true, true) => qk,
+                                (true, false) => g[(j, k)] * qk,
+                                (false, true) => g[(i, k)] * qk,
+                                (false, false) => g[(i, k)] * g[(j, k)] * qk,
+                            };
+                        }
+                    },
+                );
+            },
+        );
+    }
+    for j in 1..N {
+        for i in 0..j {
+            out[(j, i)] = out[(i, j)];
+        }
+    }
+    out
+}
+
+/// B = P H' (n x m) and S = H B + R (m x m, exactly symmetric) for an H with
+/// structure `pattern`: `B[i,c] = sum_e P[e,i] H[c,e]` and
+/// `S[i,j] = sum_e H[i,e] B[e,j] + R[i,j]` (i >= j, mirrored), over the rows'
+/// non-zero e, ascending.
+#[inline(always)]
+pub(crate) fn innovation<T: Scalar, const N: usize, const M: usize>(
+    p: &SMatrix<T, N, N>,
+    h: &SMatrix<T, M, N>,
+    pattern: &Pattern<M, N>,
+    r: &SMatrix<T, M, M>,
+) -> (SMatrix<T, N, M>, SMatrix<T, M, M>) {
+    let mut b = SMatrix::<T, N, M>::from_element(neg_zero());
+    for c in 0..M {
+        for i in 0..N {
+            let mut v = neg_zero::<T>();
+            pattern.each_in_row(
+                c,
+                #[inline(always)]
+                |e, one| v += times(p[(e, i)], one, h[(c, e)]),
+            );
+            b[(i, c)] = v;
+        }
+    }
+    let mut s = SMatrix::<T, M, M>::from_element(neg_zero());
+    for j in 0..M {
+        for i in j..M {
+            let mut v = neg_zero::<T>();
+            pattern.each_in_row(
+                i,
+                #[inline(always)]
+                |e, one| v += times(b[(e, j)], one, h[(i, e)]),
+            );
+            let v = v + r[(i, j)];
+            s[(i, j)] = v;
+            s[(j, i)] = v;
+        }
+    }
+    (b, s)
+}
+
+/// Joseph's factored order (see [`crate::Joseph`]) for an H with structure
+/// `pattern`, in place in `p` (upper triangle of the result): W = P - K B',
+/// computed where it is read (the upper triangle and the columns H uses);
+/// D = K R - W H' over H's non-zero entries; P+ = W + D K'.
+#[inline(always)]
+pub(crate) fn joseph<T: Scalar, const N: usize, const M: usize>(
+    p: &mut SMatrix<T, N, N>,
+    h: &SMatrix<T, M, N>,
+    pattern: &Pattern<M, N>,
+    b: &SMatrix<T, N, M>,
+    k: &SMatrix<T, N, M>,
+    r: &SMatrix<T, M, M>,
+) {
+    let w = p;
+    for j in 0..N {
+        // Below the diagonal, W is read only in the columns D reads.
+        let rows = if pattern.column_used(j) { N } else { j + 1 };
+        for i in 0..rows {
+            let mut v = w[(i, j)];
+            for c in 0..M {
+                v -= k[(i, c)] * b[(j, c)];
+            }
+            w[(i, j)] = v;
+        }
+    }
+    let mut d = SMatrix::<T, N, M>::from_element(neg_zero());
+    for c in 0..M {
+        for i in 0..N {
+            let mut v = neg_zero::<T>();
+            for e in 0..M {
+                v += k[(i, e)] * r[(e, c)];
+            }
+            pattern.each_in_row(
+                c,
+                #[inline(always)]
+                |e, one| v -= times(w[(i, e)], one, h[(c, e)]),
+            );
+            d[(i, c)] = v;
+        }
+    }
+    for j in 0..N {
+        for i in 0..=j {
+            let mut v = w[(i, j)];
+            for c in 0..M {
+                v += d[(i, c)] * k[(j, c)];
+            }
+            w[(i, j)] = v;
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::kernel;
+    use crate::kernel::testing::Lcg;
+    use crate::pattern::Entry;
+
+    /// A random matrix that obeys `pattern`.
+    fn obeying<T: Scalar, const R: usize, const C: usize>(
+        g: &mut Lcg,
+        pattern: &Pattern<R, C>,
+    ) -> SMatrix<T, R, C> {
+        let mut m: SMatrix<T, R, C> = g.matrix();
+        for i in 0..R {
+            for j in 0..C {
+                match pattern.entry(i, j) {
+                    Entry::Zero => m[(i, j)] = T::zero(),
+                    Entry::One => m[(i, j)] = T::one(),
+                    Entry::Free => {}
+                }
+            }
+        }
+        m
+    }
+
+    /// Equal as numbers on and above the diagonal, and bit for bit except
+    /// for the sign of an exact zero (the only thing a skipped zero product
+    /// can change).
+    fn same_upper<T: Scalar, const R: usize, const C: usize>(
+        a: &SMatrix<T, R, C>,
+        b: &SMatrix<T, R, C>,
+        upper_only: bool,
+    ) -> bool {
+        (0..C).all(|j| {
+            let rows = if upper_only { j + 1 } else { R };
+            (0..rows).all(|i| {
+                let (x, y) = (a[(i, j)], b[(i, j)]);
+                x == y && (x == T::zero() || x.to_f64().to_bits() == y.to_f64().to_bits())
+            })
+        })
+    }
+
+    /// A pattern with a random mix of zeros, ones and free entries.
+    fn random_pattern<const R: usize, const C: usize>(g: &mut Lcg) -> Pattern<R, C> {
+        let mut cells = [[Entry::Free; C]; R];
+        for row in &mut cells {
+            for cell in row.iter_mut() {
+                let u = g.unit();
+                *cell = if u < -0.2 {
+                    Entry::Zero
+                } else if u < 0.2 {
+                    Entry::One
+                } else {
+                    Entry::Free
+                };
+            }
+        }
+        Pattern::from_cells(cells)
+    }
+
+    fn agree_with_dense<T: Scalar, const N: usize, const M: usize>(seed: u32) {
+        let mut g = Lcg(seed);
+        for round in 0..40 {
+            let fp: Pattern<N, N> = if round == 0 {
+                Pattern::DENSE
+            } else {
+                random_pattern(&mut g)
+            };
+            let hp: Pattern<M, N> = random_pattern(&mut g);
+            let f = obeying::<T, N, N>(&mut g, &fp);
+            let p = g.covariance::<T, N>();
+            let q = g.covariance::<T, N>();
+            let dense = kernel::propagate_dots(&f, &p, &q);
+            assert!(
+                same_upper(&propagate(&f, &fp, &p, &q), &dense, true),
+                "predict n = {N}"
+            );
+            let gm = obeying::<T, N, N>(&mut g, &fp);
+            let qv = SVector::<T, N>::from_fn(|i, _| {
+                T::of(g.unit().abs() + f64::from(u8::from(i == 0)))
+            });
+            let dense = kernel::from_sources(&gm, &qv);
+            assert!(
+                same_upper(&from_sources(&gm, &fp.transpose(), &qv), &dense, false),
+                "sources n = {N}"
+            );
+            let h = obeying::<T, M, N>(&mut g, &hp);
+            let r = g.covariance::<T, M>();
+            let (bd, sd) = kernel::innovation_shaped::<T, N, M, false>(&p, &h, &r);
+            let (bp, sp) = innovation(&p, &h, &hp, &r);
+            assert!(
+                same_upper(&bp, &bd, false) && same_upper(&sp, &sd, false),
+                "innovation"
+            );
+            let k: SMatrix<T, N, M> = g.matrix();
+            let mut dense = p;
+            crate::form::joseph::<T, N, M, false>(&mut dense, &h, &bd, &k, &r);
+            let mut sparse = p;
+            joseph(&mut sparse, &h, &hp, &bd, &k, &r);
+            assert!(same_upper(&sparse, &dense, true), "joseph n = {N}, m = {M}");
+        }
+    }
+
+    #[test]
+    fn patterned_kernels_compute_the_dense_numbers() {
+        agree_with_dense::<f32, 3, 2>(31);
+        agree_with_dense::<f32, 3, 1>(32);
+        agree_with_dense::<f32, 15, 3>(33);
+        agree_with_dense::<f64, 9, 3>(34);
+        agree_with_dense::<f64, 24, 1>(35);
+    }
+
+    #[test]
+    fn only_free_entries_are_tested_for_finiteness() {
+        const P: Pattern<2, 2> = Pattern::IDENTITY.free(0, 1);
+        let mut m = SMatrix::<f32, 2, 2>::new(f32::NAN, 2.0, f32::INFINITY, 1.0);
+        assert!(free_finite(&m, &P));
+        m[(0, 1)] = f32::NAN;
+        assert!(!free_finite(&m, &P));
+    }
+}
