@@ -14,14 +14,15 @@ use crate::ud::UdKalman;
 pub enum NisBand {
     /// Fewer samples than the monitor needs to judge.
     TooFew,
-    /// Below the lower bound: the filter claims too little confidence (R or
-    /// Q too large).
-    Low,
+    /// Below the lower bound: pessimistic, the filter claims more
+    /// uncertainty than it has (R or Q too large).
+    Pessimistic,
     /// Inside the two-sided interval.
     Consistent,
-    /// Above the upper bound: innovations are larger than the filter expects
-    /// (Q or R too small, a model error, or divergence).
-    High,
+    /// Above the upper bound: optimistic, the filter claims less
+    /// uncertainty than it has; innovations are larger than it expects (Q or
+    /// R too small, a model error, or divergence).
+    Optimistic,
 }
 
 /// One poll of the health monitor.
@@ -60,7 +61,7 @@ pub struct HealthReport<T> {
 /// for 10 or more degrees of freedom in the window the lower bound is
 /// within 0.8% and the upper within 1e-4; the upper bound is within 2% for
 /// any window. Below 10 the lower bound is too low (4% at 5 degrees of
-/// freedom, 48% at 2, zero at 1), so a small window flags [`NisBand::Low`]
+/// freedom, 48% at 2, zero at 1), so a small window flags [`NisBand::Pessimistic`]
 /// late, never early: size `W` for 10 or more degrees of freedom where a
 /// too-large Q or R matters.
 #[derive(Debug, Clone)]
@@ -162,7 +163,11 @@ impl<T: Scalar, const W: usize> HealthMonitor<T, W> {
     pub fn assess_factored<const N: usize>(&self, filter: &UdKalman<T, N>) -> HealthReport<T> {
         let d = filter.d();
         let finite = filter.factors().iter().all(|v| v.finite())
-            && filter.covariance().diagonal().iter().all(|v| v.finite());
+            && filter
+                .rebuild_covariance()
+                .diagonal()
+                .iter()
+                .all(|v| v.finite());
         let min_d = d
             .iter()
             .copied()
@@ -198,9 +203,9 @@ impl<T: Scalar, const W: usize> HealthMonitor<T, W> {
             let mean = sum / k;
             let (lo, hi) = wilson_hilferty_bounds(k, self.z);
             let band = if mean < lo {
-                NisBand::Low
+                NisBand::Pessimistic
             } else if mean > hi {
-                NisBand::High
+                NisBand::Optimistic
             } else {
                 NisBand::Consistent
             };
@@ -318,7 +323,7 @@ mod tests {
             m.record_nis(9.0, 1);
         }
         let r = m.assess(&p);
-        assert_eq!(r.nis, NisBand::High);
+        assert_eq!(r.nis, NisBand::Optimistic);
         assert!(!r.healthy);
         m.clear();
         for _ in 0..20 {

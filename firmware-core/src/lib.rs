@@ -48,8 +48,8 @@
 //! ## Your own model
 //! A model is two small trait implementations: [`ProcessModel`] (the
 //! transition, its Jacobian and the process noise, here as independent
-//! sources Q = G diag(q) G') and [`MeasurementModel`] (the prediction, its
-//! Jacobian and R). Written once over [`Scalar`], the same model runs in
+//! sources Q = G diag(q) G') and [`MeasurementModel`] (the expected
+//! measurement h(x), its Jacobian and R). Written once over [`Scalar`], the same model runs in
 //! `f32` on the target and in `f64` (or `f32`) on the host. A turntable
 //! whose angle is read by a pair of Hall sensors:
 //! ```
@@ -82,7 +82,7 @@
 //!         let (g, q) = self.sources(dt);
 //!         g * Matrix2::from_diagonal(&q) * g.transpose()
 //!     }
-//!     fn noise_input(&self, _x: &Vector2<T>, _u: &T, dt: T) -> Option<(Matrix2<T>, Vector2<T>)> {
+//!     fn noise_sources(&self, _x: &Vector2<T>, _u: &T, dt: T) -> Option<(Matrix2<T>, Vector2<T>)> {
 //!         Some(self.sources(dt))
 //!     }
 //!     fn normalize(&self, x: &mut Vector2<T>) {
@@ -96,7 +96,7 @@
 //! }
 //!
 //! impl<T: Scalar> MeasurementModel<T, 2, 2> for HallPair<T> {
-//!     fn predict(&self, x: &Vector2<T>) -> Vector2<T> {
+//!     fn expected(&self, x: &Vector2<T>) -> Vector2<T> {
 //!         let (s, c) = x[0].sin_cos_rad();
 //!         Vector2::new(c, s)
 //!     }

@@ -72,7 +72,7 @@ impl<T: Scalar> ProcessModel<T, 3> for PlanarOdometry<T> {
     }
 
     #[inline(always)]
-    fn noise_input(
+    fn noise_sources(
         &self,
         x: &Vector3<T>,
         u: &Odometry<T>,
@@ -152,7 +152,7 @@ impl<T: Scalar> PositionFix<T> {
 
 impl<T: Scalar> MeasurementModel<T, 3, 2> for PositionFix<T> {
     #[inline(always)]
-    fn predict(&self, x: &Vector3<T>) -> Vector2<T> {
+    fn expected(&self, x: &Vector3<T>) -> Vector2<T> {
         Vector2::new(x[0], x[1])
     }
     #[inline(always)]
@@ -180,7 +180,7 @@ pub struct HeadingFix<T> {
 
 impl<T: Scalar> MeasurementModel<T, 3, 1> for HeadingFix<T> {
     #[inline(always)]
-    fn predict(&self, x: &Vector3<T>) -> SVector<T, 1> {
+    fn expected(&self, x: &Vector3<T>) -> SVector<T, 1> {
         SVector::<T, 1>::new(x[2])
     }
     #[inline(always)]
@@ -192,8 +192,8 @@ impl<T: Scalar> MeasurementModel<T, 3, 1> for HeadingFix<T> {
         SMatrix::<T, 1, 1>::new(self.var)
     }
     #[inline(always)]
-    fn residual(&self, z: &SVector<T, 1>, predicted: &SVector<T, 1>) -> SVector<T, 1> {
-        SVector::<T, 1>::new(wrap_angle(z[0] - predicted[0]))
+    fn residual(&self, z: &SVector<T, 1>, expected: &SVector<T, 1>) -> SVector<T, 1> {
+        SVector::<T, 1>::new(wrap_angle(z[0] - expected[0]))
     }
     #[inline(always)]
     fn normalize(&self, x: &mut Vector3<T>) {
@@ -296,10 +296,10 @@ mod tests {
                 xs[c] += s;
                 xs
             };
-            let dpos = (fix.predict(&step(h)) - fix.predict(&step(-h))) / (2.0 * h);
+            let dpos = (fix.expected(&step(h)) - fix.expected(&step(-h))) / (2.0 * h);
             let hp = MeasurementModel::<f64, 3, 2>::jacobian(&fix, &x);
             assert!((dpos - hp.column(c)).amax() < 1e-9, "position column {c}");
-            let dh = (heading.predict(&step(h)) - heading.predict(&step(-h))) / (2.0 * h);
+            let dh = (heading.expected(&step(h)) - heading.expected(&step(-h))) / (2.0 * h);
             let hh = MeasurementModel::<f64, 3, 1>::jacobian(&heading, &x);
             assert!((dh - hh.column(c)).amax() < 1e-9, "heading column {c}");
         }
