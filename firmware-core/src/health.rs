@@ -1,5 +1,6 @@
 //! A runtime health monitor a firmware loop can poll: windowed mean NIS
-//! against chi-square bounds, covariance asymmetry and smallest variance.
+//! against chi-square bounds, correlation asymmetry of the covariance and
+//! smallest variance.
 
 use nalgebra::SMatrix;
 
@@ -39,8 +40,10 @@ pub struct HealthReport<T> {
     pub upper: T,
     /// The NIS verdict.
     pub nis: NisBand,
-    /// Largest |P_ij - P_ji| relative to sqrt(P_ii P_jj).
-    pub asymmetry: T,
+    /// The correlation asymmetry: the largest |P_ij - P_ji| relative to
+    /// sqrt(P_ii P_jj). (The verifier's "asymmetry" is another measure,
+    /// max |P_ij - P_ji| relative to the Frobenius norm of P.)
+    pub correlation_asymmetry: T,
     /// Smallest diagonal entry of P (for a factored filter, the smallest D).
     pub min_variance: T,
     /// `true` when P is positive definite by an LDL' factorisation (the
@@ -77,13 +80,13 @@ pub struct HealthMonitor<T: Scalar, const W: usize> {
     filled: usize,
     z: T,
     min_samples: u16,
-    asymmetry_limit: T,
+    correlation_asymmetry_limit: T,
 }
 
 impl<T: Scalar, const W: usize> HealthMonitor<T, W> {
     /// A monitor with a two-sided 95% interval (standard normal quantile
     /// 1.959964), judging once it holds `W / 2` measurements and flagging
-    /// asymmetry above 1e3 machine epsilons.
+    /// correlation asymmetry above 1e3 machine epsilons.
     #[must_use]
     pub fn new() -> Self {
         Self::build(T::of(1.959_963_984_540_054))
@@ -112,7 +115,7 @@ impl<T: Scalar, const W: usize> HealthMonitor<T, W> {
             filled: 0,
             z,
             min_samples: (W / 2).max(1).min(u16::MAX as usize) as u16,
-            asymmetry_limit: T::EPSILON * T::of(1e3),
+            correlation_asymmetry_limit: T::EPSILON * T::of(1e3),
         }
     }
 
@@ -149,16 +152,16 @@ impl<T: Scalar, const W: usize> HealthMonitor<T, W> {
     /// n - 1 divides), not by the diagonal alone.
     #[must_use]
     pub fn assess<const N: usize>(&self, p: &SMatrix<T, N, N>) -> HealthReport<T> {
-        let (asymmetry, min_variance, finite) = covariance_sanity(p);
+        let (correlation_asymmetry, min_variance, finite) = covariance_sanity(p);
         let definite = finite && check::definite(p).is_ok();
-        self.judge(asymmetry, min_variance, finite, definite)
+        self.judge(correlation_asymmetry, min_variance, finite, definite)
     }
 
     /// Judges the window and a U-D factored filter. Definiteness is read
     /// from D (every entry positive and finite: U D U' is then positive
     /// definite by construction) and from the variances of U D U' being
     /// finite, so `min_variance` reports the smallest D; the factors carry
-    /// no asymmetry.
+    /// no asymmetry (its correlation asymmetry is zero).
     #[must_use]
     pub fn assess_factored<const N: usize>(&self, filter: &UdKalman<T, N>) -> HealthReport<T> {
         let d = filter.d();
@@ -180,7 +183,7 @@ impl<T: Scalar, const W: usize> HealthMonitor<T, W> {
 
     fn judge(
         &self,
-        asymmetry: T,
+        correlation_asymmetry: T,
         min_variance: T,
         finite: bool,
         positive_definite: bool,
@@ -214,7 +217,7 @@ impl<T: Scalar, const W: usize> HealthMonitor<T, W> {
         let healthy = finite
             && positive_definite
             && min_variance > T::zero()
-            && asymmetry <= self.asymmetry_limit
+            && correlation_asymmetry <= self.correlation_asymmetry_limit
             && matches!(nis, NisBand::Consistent | NisBand::TooFew);
         HealthReport {
             samples,
@@ -222,7 +225,7 @@ impl<T: Scalar, const W: usize> HealthMonitor<T, W> {
             lower,
             upper,
             nis,
-            asymmetry,
+            correlation_asymmetry,
             min_variance,
             positive_definite,
             healthy,
@@ -236,8 +239,8 @@ impl<T: Scalar, const W: usize> Default for HealthMonitor<T, W> {
     }
 }
 
-/// Largest relative asymmetry, smallest diagonal entry, and whether every
-/// diagonal entry is finite.
+/// Correlation asymmetry (largest |P_ij - P_ji| / sqrt(P_ii P_jj)), smallest
+/// diagonal entry, and whether every diagonal entry is finite.
 fn covariance_sanity<T: Scalar, const N: usize>(p: &SMatrix<T, N, N>) -> (T, T, bool) {
     let mut asymmetry = T::zero();
     let mut min_variance = T::max_value().unwrap_or_else(T::one);
