@@ -148,6 +148,10 @@
 //!   1e-3 accurate; the verifier's report shows what that costs).
 //! - `defmt`: `defmt::Format` for the error, outcome and health types.
 //!
+//! `libm-trig` and `fast-trig` each choose the one `f32` sine and cosine, so
+//! they exclude each other: enabling both is a compile error that says so
+//! (rather than one silently winning). Enable at most one of them.
+//!
 //! ## MSRV
 //! Rust 1.95.
 #![cfg_attr(not(test), no_std)]
@@ -158,6 +162,12 @@
     clippy::missing_panics_doc,
     clippy::must_use_candidate
 )]
+
+// The two trigonometry features each choose the f32 sine and cosine.
+#[cfg(all(feature = "fast-trig", feature = "libm-trig"))]
+compile_error!(
+    "cairn-core: the features `fast-trig` and `libm-trig` both choose the f32 sine and cosine; enable one of them, not both"
+);
 
 mod check;
 mod error;
