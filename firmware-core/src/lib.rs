@@ -130,6 +130,21 @@
 //! The example crates `examples/bramble-tug` (n = 5) and
 //! `examples/skerry-sled` (n = 15) in the repository are fuller models.
 //!
+//! ## Covariance forms: why U-D is its own type
+//! Joseph and conventional are a type parameter of one filter,
+//! [`Kalman<T, N, F>`](Kalman) with `F:` [`CovarianceForm`]: both store P,
+//! share the predict, the gain and the innovation solve, and differ only in
+//! the formula that turns the prior P into the posterior
+//! ([`CovarianceForm::posterior`]). The U-D filter, [`UdKalman`], stores the
+//! factors U and D of P = U D U', not P. Its measurement update (Bierman's)
+//! and its time update (Thornton's weighted Gram-Schmidt) are different
+//! algorithms over the factors, not a posterior formula over a stored P, so
+//! it cannot be a `CovarianceForm`; it is its own type. [`Estimator`] is the
+//! one trait over all three, for code that switches form by changing one
+//! type: [`Kalman::covariance`] borrows the stored P, while
+//! [`UdKalman::rebuild_covariance`] computes U D U' (O(n^3)), and
+//! [`Estimator::covariance_snapshot`] is the owned copy either way.
+//!
 //! ## nalgebra
 //! The core is built on nalgebra 0.34 (default features off, with `libm`)
 //! and re-exports it as [`nalgebra`]. Write `cairn_core::nalgebra::...` in
