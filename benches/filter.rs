@@ -187,7 +187,7 @@ macro_rules! bench_predict {
         g.bench_function("u-d_sources", |b| {
             b.iter(|| {
                 let mut k = black_box(ud);
-                let o = k.predict_noise_input(black_box(&f), black_box(&g_src), black_box(&q_src));
+                let o = k.predict_with_sources(black_box(&f), black_box(&g_src), black_box(&q_src));
                 (k, o)
             })
         });

@@ -18,7 +18,7 @@ fn gain_of<const N: usize, F: CovarianceForm>(
     // Back to the origin (P unchanged), so the next prior state is exactly
     // zero and the next difference carries no rounding of a large state.
     let here = *kf.state();
-    kf.shift_origin_mut(&here).unwrap();
+    kf.shift_origin(&here).unwrap();
     gain
 }
 
@@ -178,9 +178,9 @@ fn white_noise_acceleration_tracker_reaches_its_closed_form_steady_state() {
         // The U-D filter's posterior agrees: (I - K H) P-.
         let post = want_prior - want_gain * (h * want_prior);
         assert!(
-            (ud.covariance() - post).amax() < 1e-10 * post.amax(),
+            (ud.rebuild_covariance() - post).amax() < 1e-10 * post.amax(),
             "U-D {}",
-            ud.covariance()
+            ud.rebuild_covariance()
         );
     }
 }
@@ -195,7 +195,7 @@ fn health_bounds_against_exact_chi_square_quantiles() {
     // room: for k >= 10 the lower bound within 0.8% and the upper within
     // 1e-4; for k >= 50 both within 3e-4; the upper bound within 2% for
     // every k >= 1; the lower bound always below the exact one (at small
-    // windows "Low" is flagged late, never early): 48% low at k = 2, 4% at
+    // windows "Pessimistic" is flagged late, never early): 48% low at k = 2, 4% at
     // k = 5, and 0 at k = 1, where the approximation goes negative.
     let z = 1.959_963_984_540_054;
     let mut lines = Vec::new();

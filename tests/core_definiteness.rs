@@ -283,7 +283,7 @@ fn a_ud_covariance_that_overflows_is_refused_as_the_covariance_form_refuses_it()
     assert_eq!(bits(ud.state(), ud.factors()), before);
     let g = Matrix2::identity();
     assert_eq!(
-        ud.predict_noise_input(&f, &g, &Vector2::zeros()),
+        ud.predict_with_sources(&f, &g, &Vector2::zeros()),
         Err(FilterError::CovarianceLost { index: 0 })
     );
     assert_eq!(bits(ud.state(), ud.factors()), before);
@@ -291,7 +291,7 @@ fn a_ud_covariance_that_overflows_is_refused_as_the_covariance_form_refuses_it()
     // off-diagonal sums) it still propagates: P00 = 1.5e38.
     let mut half = UdKalman::<f32, 2>::try_new(Vector2::zeros(), p0 / 4.0).unwrap();
     assert!(half.predict(&f, &q).is_ok());
-    assert!(half.covariance().iter().all(|v| v.is_finite()));
+    assert!(half.rebuild_covariance().iter().all(|v| v.is_finite()));
 }
 
 #[test]
@@ -313,13 +313,13 @@ fn a_ud_filter_keeps_a_small_variance_from_a_full_q() {
     for _ in 0..steps {
         ud.predict(&f, &q).unwrap();
         sources
-            .predict_noise_input(&f, &Matrix2::identity(), &Vector2::new(qp, qb))
+            .predict_with_sources(&f, &Matrix2::identity(), &Vector2::new(qp, qb))
             .unwrap();
     }
     let want = 1e-10 + f64::from(steps) * 1e-10;
     for (name, got) in [
-        ("full Q", f64::from(ud.covariance()[(1, 1)])),
-        ("sources", f64::from(sources.covariance()[(1, 1)])),
+        ("full Q", f64::from(ud.rebuild_covariance()[(1, 1)])),
+        ("sources", f64::from(sources.rebuild_covariance()[(1, 1)])),
     ] {
         // f32 sums of 1000 terms: a relative error of a few 1e-5 at most.
         assert!((got - want).abs() < 1e-4 * want, "{name}: {got} vs {want}");

@@ -50,7 +50,7 @@ fn ud_survives_the_ill_conditioned_example_where_covariance_forms_break() {
             None,
         )
         .unwrap();
-    let p_ud = ud.covariance().map(f64::from);
+    let p_ud = ud.rebuild_covariance().map(f64::from);
     assert!(rel(&p_ud) < 5e-3, "U-D relative error {}", rel(&p_ud));
     assert!(ud.d().iter().all(|&v| v > 0.0));
     for (name, p) in [
@@ -114,7 +114,7 @@ proptest! {
             prop_assert!((a.nis() - b.nis()).abs() < 1e-9 * a.nis().max(1.0));
         }
         let pj = j.covariance();
-        let pu = u.covariance();
+        let pu = u.rebuild_covariance();
         prop_assert!((pj - pu).norm() / pj.norm() < 1e-9);
         prop_assert!((j.state() - u.state()).norm() < 1e-9 * j.state().norm().max(1.0));
     }
@@ -200,7 +200,7 @@ fn through_trait<E: cairn_core::Estimator<f64, 3>>() -> Matrix3<f64> {
             )
             .unwrap();
     }
-    e.covariance_matrix()
+    e.covariance_snapshot()
 }
 
 #[test]
@@ -215,7 +215,7 @@ fn every_form_behind_the_estimator_trait_gives_the_same_posterior() {
 }
 
 #[test]
-fn noise_input_time_update_equals_the_full_q_one() {
+fn noise_sources_time_update_equals_the_full_q_one() {
     // Thornton and Bierman (1977): the weighted Gram-Schmidt time update
     // accepts Q as G diag(q) G' directly; in f64 it must give F P F' + Q.
     use cairn_core::ProcessModel;
@@ -234,13 +234,13 @@ fn noise_input_time_update_equals_the_full_q_one() {
             yaw_rate: 0.26 * ((k / 400) % 2) as f64,
         };
         let x = *b.state();
-        let (g, q) = motion.noise_input(&x, &u, 0.005).unwrap();
+        let (g, q) = motion.noise_sources(&x, &u, 0.005).unwrap();
         let gq = g * Matrix3::from_diagonal(&q) * g.transpose();
         assert!((gq - motion.noise(&x, &u, 0.005)).norm() <= 1e-15 * gq.norm().max(1e-30));
         a.predict_with(&motion, &u, 0.005).unwrap();
         b.predict_with(&motion, &u, 0.005).unwrap();
     }
-    let (pa, pb) = (a.covariance(), *b.covariance());
+    let (pa, pb) = (a.rebuild_covariance(), *b.covariance());
     assert!(
         (pa - pb).norm() / pb.norm() < 1e-12,
         "{}",
@@ -311,7 +311,7 @@ fn predict_from_noise_sources_equals_predict_from_q() {
     };
     assert!(
         motion
-            .noise_input(
+            .noise_sources(
                 &Vector3::zeros(),
                 &Odometry {
                     speed: 1.0,

@@ -25,7 +25,7 @@ pub struct Encoder<T> {
     var: T,
 }
 impl<T: Scalar> MeasurementModel<T, 2, 1> for Encoder<T> {
-    fn predict(&self, x: &Vector2<T>) -> Vector1<T> {
+    fn expected(&self, x: &Vector2<T>) -> Vector1<T> {
         Vector1::new(x[0])
     }
     fn jacobian(&self, _x: &Vector2<T>) -> SMatrix<T, 1, 2> {

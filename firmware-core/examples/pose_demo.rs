@@ -107,12 +107,12 @@ fn main() {
         p[(2, 2)].sqrt()
     );
     println!(
-        "  health: mean NIS/dof {:.3} in [{:.3}, {:.3}] over {} fixes, asymmetry {:.1e}, healthy {}",
+        "  health: mean NIS/dof {:.3} in [{:.3}, {:.3}] over {} fixes, correlation asymmetry {:.1e}, healthy {}",
         report.mean_nis_per_dof,
         report.lower,
         report.upper,
         report.samples,
-        report.asymmetry,
+        report.correlation_asymmetry,
         report.healthy
     );
 }

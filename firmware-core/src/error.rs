@@ -28,7 +28,7 @@ pub enum Operand {
     TimeStep,
     /// The gate threshold.
     Gate,
-    /// The predicted measurement h(x) or the residual.
+    /// The expected measurement h(x) or the residual.
     Innovation,
     /// The health monitor's standard normal quantile.
     Quantile,

@@ -15,8 +15,9 @@ use crate::ud::UdKalman;
 /// same contracts (transactional, no panics); see their inherent methods for
 /// the documentation of each operation and its errors.
 pub trait Estimator<T: Scalar, const N: usize>: Sized {
-    /// Short name of the form, for reports.
-    const FORM: &'static str;
+    /// Short name of the form, for reports (for a covariance filter, its
+    /// form's [`CovarianceForm::NAME`]).
+    const NAME: &'static str;
 
     /// A filter from an initial state and covariance.
     ///
@@ -27,16 +28,19 @@ pub trait Estimator<T: Scalar, const N: usize>: Sized {
     /// The state estimate.
     fn state(&self) -> &SVector<T, N>;
 
-    /// The covariance as a full symmetric matrix (for factored forms, built
-    /// from the factors).
-    fn covariance_matrix(&self) -> SMatrix<T, N, N>;
+    /// An owned copy of the covariance as a full symmetric matrix: a copy of
+    /// the stored P for the covariance forms ([`Kalman::covariance`] borrows
+    /// it), an O(n^3) rebuild from the factors for the U-D filter
+    /// ([`UdKalman::rebuild_covariance`]). For reports and checks, not the
+    /// hot path.
+    fn covariance_snapshot(&self) -> SMatrix<T, N, N>;
 
     /// Moves the origin the state is expressed in: x -= offset, covariance
     /// unchanged (keeps f32 positions near a local origin).
     ///
     /// # Errors
-    /// As [`Kalman::shift_origin_mut`]; nothing changes on error.
-    fn shift_origin_mut(&mut self, offset: &SVector<T, N>) -> Result<(), FilterError>;
+    /// As [`Kalman::shift_origin`]; nothing changes on error.
+    fn shift_origin(&mut self, offset: &SVector<T, N>) -> Result<(), FilterError>;
 
     /// Linear predict.
     ///
@@ -50,7 +54,7 @@ pub trait Estimator<T: Scalar, const N: usize>: Sized {
     /// default uses Q).
     ///
     /// # Errors
-    /// As [`Kalman::predict`] and [`UdKalman::predict_noise_input`].
+    /// As [`Kalman::predict`] and [`UdKalman::predict_with_sources`].
     fn predict_with_sources(
         &mut self,
         f: &SMatrix<T, N, N>,
@@ -110,8 +114,8 @@ pub trait Estimator<T: Scalar, const N: usize>: Sized {
 
 macro_rules! forward {
     () => {
-        fn shift_origin_mut(&mut self, offset: &SVector<T, N>) -> Result<(), FilterError> {
-            Self::shift_origin_mut(self, offset)
+        fn shift_origin(&mut self, offset: &SVector<T, N>) -> Result<(), FilterError> {
+            Self::shift_origin(self, offset)
         }
         fn predict(
             &mut self,
@@ -158,29 +162,29 @@ macro_rules! forward {
 }
 
 impl<T: Scalar, const N: usize, F: CovarianceForm> Estimator<T, N> for Kalman<T, N, F> {
-    const FORM: &'static str = F::NAME;
+    const NAME: &'static str = F::NAME;
     fn try_new(x: SVector<T, N>, p: SMatrix<T, N, N>) -> Result<Self, FilterError> {
         Kalman::try_new(x, p)
     }
     fn state(&self) -> &SVector<T, N> {
         Kalman::state(self)
     }
-    fn covariance_matrix(&self) -> SMatrix<T, N, N> {
+    fn covariance_snapshot(&self) -> SMatrix<T, N, N> {
         *self.covariance()
     }
     forward!();
 }
 
 impl<T: Scalar, const N: usize> Estimator<T, N> for UdKalman<T, N> {
-    const FORM: &'static str = "u-d";
+    const NAME: &'static str = "u-d";
     fn try_new(x: SVector<T, N>, p: SMatrix<T, N, N>) -> Result<Self, FilterError> {
         UdKalman::try_new(x, p)
     }
     fn state(&self) -> &SVector<T, N> {
         UdKalman::state(self)
     }
-    fn covariance_matrix(&self) -> SMatrix<T, N, N> {
-        self.covariance()
+    fn covariance_snapshot(&self) -> SMatrix<T, N, N> {
+        self.rebuild_covariance()
     }
     fn predict_with_sources(
         &mut self,
@@ -189,7 +193,7 @@ impl<T: Scalar, const N: usize> Estimator<T, N> for UdKalman<T, N> {
         g: &SMatrix<T, N, N>,
         q_sources: &SVector<T, N>,
     ) -> Result<(), FilterError> {
-        self.predict_noise_input(f, g, q_sources)
+        UdKalman::predict_with_sources(self, f, g, q_sources)
     }
     forward!();
 }

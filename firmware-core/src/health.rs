@@ -1,5 +1,6 @@
 //! A runtime health monitor a firmware loop can poll: windowed mean NIS
-//! against chi-square bounds, covariance asymmetry and smallest variance.
+//! against chi-square bounds, correlation asymmetry of the covariance and
+//! smallest variance.
 
 use nalgebra::SMatrix;
 
@@ -14,14 +15,15 @@ use crate::ud::UdKalman;
 pub enum NisBand {
     /// Fewer samples than the monitor needs to judge.
     TooFew,
-    /// Below the lower bound: the filter claims too little confidence (R or
-    /// Q too large).
-    Low,
+    /// Below the lower bound: pessimistic, the filter claims more
+    /// uncertainty than it has (R or Q too large).
+    Pessimistic,
     /// Inside the two-sided interval.
     Consistent,
-    /// Above the upper bound: innovations are larger than the filter expects
-    /// (Q or R too small, a model error, or divergence).
-    High,
+    /// Above the upper bound: optimistic, the filter claims less
+    /// uncertainty than it has; innovations are larger than it expects (Q or
+    /// R too small, a model error, or divergence).
+    Optimistic,
 }
 
 /// One poll of the health monitor.
@@ -38,8 +40,10 @@ pub struct HealthReport<T> {
     pub upper: T,
     /// The NIS verdict.
     pub nis: NisBand,
-    /// Largest |P_ij - P_ji| relative to sqrt(P_ii P_jj).
-    pub asymmetry: T,
+    /// The correlation asymmetry: the largest |P_ij - P_ji| relative to
+    /// sqrt(P_ii P_jj). (The verifier's "asymmetry" is another measure,
+    /// max |P_ij - P_ji| relative to the Frobenius norm of P.)
+    pub correlation_asymmetry: T,
     /// Smallest diagonal entry of P (for a factored filter, the smallest D).
     pub min_variance: T,
     /// `true` when P is positive definite by an LDL' factorisation (the
@@ -60,7 +64,7 @@ pub struct HealthReport<T> {
 /// for 10 or more degrees of freedom in the window the lower bound is
 /// within 0.8% and the upper within 1e-4; the upper bound is within 2% for
 /// any window. Below 10 the lower bound is too low (4% at 5 degrees of
-/// freedom, 48% at 2, zero at 1), so a small window flags [`NisBand::Low`]
+/// freedom, 48% at 2, zero at 1), so a small window flags [`NisBand::Pessimistic`]
 /// late, never early: size `W` for 10 or more degrees of freedom where a
 /// too-large Q or R matters.
 #[derive(Debug, Clone)]
@@ -76,13 +80,13 @@ pub struct HealthMonitor<T: Scalar, const W: usize> {
     filled: usize,
     z: T,
     min_samples: u16,
-    asymmetry_limit: T,
+    correlation_asymmetry_limit: T,
 }
 
 impl<T: Scalar, const W: usize> HealthMonitor<T, W> {
     /// A monitor with a two-sided 95% interval (standard normal quantile
     /// 1.959964), judging once it holds `W / 2` measurements and flagging
-    /// asymmetry above 1e3 machine epsilons.
+    /// correlation asymmetry above 1e3 machine epsilons.
     #[must_use]
     pub fn new() -> Self {
         Self::build(T::of(1.959_963_984_540_054))
@@ -111,7 +115,7 @@ impl<T: Scalar, const W: usize> HealthMonitor<T, W> {
             filled: 0,
             z,
             min_samples: (W / 2).max(1).min(u16::MAX as usize) as u16,
-            asymmetry_limit: T::EPSILON * T::of(1e3),
+            correlation_asymmetry_limit: T::EPSILON * T::of(1e3),
         }
     }
 
@@ -148,21 +152,25 @@ impl<T: Scalar, const W: usize> HealthMonitor<T, W> {
     /// n - 1 divides), not by the diagonal alone.
     #[must_use]
     pub fn assess<const N: usize>(&self, p: &SMatrix<T, N, N>) -> HealthReport<T> {
-        let (asymmetry, min_variance, finite) = covariance_sanity(p);
+        let (correlation_asymmetry, min_variance, finite) = covariance_sanity(p);
         let definite = finite && check::definite(p).is_ok();
-        self.judge(asymmetry, min_variance, finite, definite)
+        self.judge(correlation_asymmetry, min_variance, finite, definite)
     }
 
     /// Judges the window and a U-D factored filter. Definiteness is read
     /// from D (every entry positive and finite: U D U' is then positive
     /// definite by construction) and from the variances of U D U' being
     /// finite, so `min_variance` reports the smallest D; the factors carry
-    /// no asymmetry.
+    /// no asymmetry (its correlation asymmetry is zero).
     #[must_use]
     pub fn assess_factored<const N: usize>(&self, filter: &UdKalman<T, N>) -> HealthReport<T> {
         let d = filter.d();
         let finite = filter.factors().iter().all(|v| v.finite())
-            && filter.covariance().diagonal().iter().all(|v| v.finite());
+            && filter
+                .rebuild_covariance()
+                .diagonal()
+                .iter()
+                .all(|v| v.finite());
         let min_d = d
             .iter()
             .copied()
@@ -175,7 +183,7 @@ impl<T: Scalar, const W: usize> HealthMonitor<T, W> {
 
     fn judge(
         &self,
-        asymmetry: T,
+        correlation_asymmetry: T,
         min_variance: T,
         finite: bool,
         positive_definite: bool,
@@ -198,9 +206,9 @@ impl<T: Scalar, const W: usize> HealthMonitor<T, W> {
             let mean = sum / k;
             let (lo, hi) = wilson_hilferty_bounds(k, self.z);
             let band = if mean < lo {
-                NisBand::Low
+                NisBand::Pessimistic
             } else if mean > hi {
-                NisBand::High
+                NisBand::Optimistic
             } else {
                 NisBand::Consistent
             };
@@ -209,7 +217,7 @@ impl<T: Scalar, const W: usize> HealthMonitor<T, W> {
         let healthy = finite
             && positive_definite
             && min_variance > T::zero()
-            && asymmetry <= self.asymmetry_limit
+            && correlation_asymmetry <= self.correlation_asymmetry_limit
             && matches!(nis, NisBand::Consistent | NisBand::TooFew);
         HealthReport {
             samples,
@@ -217,7 +225,7 @@ impl<T: Scalar, const W: usize> HealthMonitor<T, W> {
             lower,
             upper,
             nis,
-            asymmetry,
+            correlation_asymmetry,
             min_variance,
             positive_definite,
             healthy,
@@ -231,8 +239,8 @@ impl<T: Scalar, const W: usize> Default for HealthMonitor<T, W> {
     }
 }
 
-/// Largest relative asymmetry, smallest diagonal entry, and whether every
-/// diagonal entry is finite.
+/// Correlation asymmetry (largest |P_ij - P_ji| / sqrt(P_ii P_jj)), smallest
+/// diagonal entry, and whether every diagonal entry is finite.
 fn covariance_sanity<T: Scalar, const N: usize>(p: &SMatrix<T, N, N>) -> (T, T, bool) {
     let mut asymmetry = T::zero();
     let mut min_variance = T::max_value().unwrap_or_else(T::one);
@@ -318,7 +326,7 @@ mod tests {
             m.record_nis(9.0, 1);
         }
         let r = m.assess(&p);
-        assert_eq!(r.nis, NisBand::High);
+        assert_eq!(r.nis, NisBand::Optimistic);
         assert!(!r.healthy);
         m.clear();
         for _ in 0..20 {

@@ -106,14 +106,10 @@ impl<T: Scalar, const N: usize, F: CovarianceForm> Kalman<T, N, F> {
         &self.x
     }
 
-    /// The covariance P (exactly symmetric).
+    /// The stored covariance P (exactly symmetric), borrowed: no copy, no
+    /// arithmetic.
     pub fn covariance(&self) -> &SMatrix<T, N, N> {
         &self.p
-    }
-
-    /// The name of the covariance form, for reports.
-    pub fn form_name(&self) -> &'static str {
-        F::NAME
     }
 
     /// Moves the origin the state is expressed in: x -= offset, P unchanged.
@@ -131,7 +127,7 @@ impl<T: Scalar, const N: usize, F: CovarianceForm> Kalman<T, N, F> {
     ///
     /// # Panics
     /// Never.
-    pub fn shift_origin_mut(&mut self, offset: &SVector<T, N>) -> Result<(), FilterError> {
+    pub fn shift_origin(&mut self, offset: &SVector<T, N>) -> Result<(), FilterError> {
         self.x = check::shifted(&self.x, offset)?;
         Ok(())
     }
@@ -287,9 +283,9 @@ impl<T: Scalar, const N: usize, F: CovarianceForm> Kalman<T, N, F> {
         gate: Option<T>,
     ) -> Result<Outcome<T>, FilterError> {
         check::finite(z, Operand::Measurement)?;
-        let predicted = model.predict(&self.x);
-        check::finite(&predicted, Operand::Innovation)?;
-        let nu = model.residual(z, &predicted);
+        let expected = model.expected(&self.x);
+        check::finite(&expected, Operand::Innovation)?;
+        let nu = model.residual(z, &expected);
         check::finite(&nu, Operand::Innovation)?;
         let h = model.jacobian(&self.x);
         let h_pattern = const { &Mm::JACOBIAN_PATTERN };

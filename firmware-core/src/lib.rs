@@ -48,8 +48,8 @@
 //! ## Your own model
 //! A model is two small trait implementations: [`ProcessModel`] (the
 //! transition, its Jacobian and the process noise, here as independent
-//! sources Q = G diag(q) G') and [`MeasurementModel`] (the prediction, its
-//! Jacobian and R). Written once over [`Scalar`], the same model runs in
+//! sources Q = G diag(q) G') and [`MeasurementModel`] (the expected
+//! measurement h(x), its Jacobian and R). Written once over [`Scalar`], the same model runs in
 //! `f32` on the target and in `f64` (or `f32`) on the host. A turntable
 //! whose angle is read by a pair of Hall sensors:
 //! ```
@@ -82,7 +82,7 @@
 //!         let (g, q) = self.sources(dt);
 //!         g * Matrix2::from_diagonal(&q) * g.transpose()
 //!     }
-//!     fn noise_input(&self, _x: &Vector2<T>, _u: &T, dt: T) -> Option<(Matrix2<T>, Vector2<T>)> {
+//!     fn noise_sources(&self, _x: &Vector2<T>, _u: &T, dt: T) -> Option<(Matrix2<T>, Vector2<T>)> {
 //!         Some(self.sources(dt))
 //!     }
 //!     fn normalize(&self, x: &mut Vector2<T>) {
@@ -96,7 +96,7 @@
 //! }
 //!
 //! impl<T: Scalar> MeasurementModel<T, 2, 2> for HallPair<T> {
-//!     fn predict(&self, x: &Vector2<T>) -> Vector2<T> {
+//!     fn expected(&self, x: &Vector2<T>) -> Vector2<T> {
 //!         let (s, c) = x[0].sin_cos_rad();
 //!         Vector2::new(c, s)
 //!     }
@@ -130,6 +130,21 @@
 //! The example crates `examples/bramble-tug` (n = 5) and
 //! `examples/skerry-sled` (n = 15) in the repository are fuller models.
 //!
+//! ## Covariance forms: why U-D is its own type
+//! Joseph and conventional are a type parameter of one filter,
+//! [`Kalman<T, N, F>`](Kalman) with `F:` [`CovarianceForm`]: both store P,
+//! share the predict, the gain and the innovation solve, and differ only in
+//! the formula that turns the prior P into the posterior
+//! ([`CovarianceForm::posterior`]). The U-D filter, [`UdKalman`], stores the
+//! factors U and D of P = U D U', not P. Its measurement update (Bierman's)
+//! and its time update (Thornton's weighted Gram-Schmidt) are different
+//! algorithms over the factors, not a posterior formula over a stored P, so
+//! it cannot be a `CovarianceForm`; it is its own type. [`Estimator`] is the
+//! one trait over all three, for code that switches form by changing one
+//! type: [`Kalman::covariance`] borrows the stored P, while
+//! [`UdKalman::rebuild_covariance`] computes U D U' (O(n^3)), and
+//! [`Estimator::covariance_snapshot`] is the owned copy either way.
+//!
 //! ## nalgebra
 //! The core is built on nalgebra 0.34 (default features off, with `libm`)
 //! and re-exports it as [`nalgebra`]. Write `cairn_core::nalgebra::...` in
@@ -148,6 +163,10 @@
 //!   1e-3 accurate; the verifier's report shows what that costs).
 //! - `defmt`: `defmt::Format` for the error, outcome and health types.
 //!
+//! `libm-trig` and `fast-trig` each choose the one `f32` sine and cosine, so
+//! they exclude each other: enabling both is a compile error that says so
+//! (rather than one silently winning). Enable at most one of them.
+//!
 //! ## MSRV
 //! Rust 1.95.
 #![cfg_attr(not(test), no_std)]
@@ -158,6 +177,12 @@
     clippy::missing_panics_doc,
     clippy::must_use_candidate
 )]
+
+// The two trigonometry features each choose the f32 sine and cosine.
+#[cfg(all(feature = "fast-trig", feature = "libm-trig"))]
+compile_error!(
+    "cairn-core: the features `fast-trig` and `libm-trig` both choose the f32 sine and cosine; enable one of them, not both"
+);
 
 mod check;
 mod error;

@@ -51,7 +51,7 @@ pub trait ProcessModel<T: Scalar, const N: usize> {
     /// when the model knows them (columns of G beyond the number of sources
     /// are zero). Factored filters then skip factoring Q. The default is
     /// `None`.
-    fn noise_input(
+    fn noise_sources(
         &self,
         _x: &SVector<T, N>,
         _u: &Self::Input,
@@ -68,7 +68,7 @@ pub trait ProcessModel<T: Scalar, const N: usize> {
             next: self.transition(x, u, dt),
             jacobian: self.jacobian(x, u, dt),
             noise: self.noise(x, u, dt),
-            sources: self.noise_input(x, u, dt),
+            sources: self.noise_sources(x, u, dt),
         }
     }
 
@@ -85,8 +85,9 @@ pub trait MeasurementModel<T: Scalar, const N: usize, const M: usize> {
     /// default, [`Pattern::DENSE`], declares none.
     const JACOBIAN_PATTERN: Pattern<M, N> = Pattern::DENSE;
 
-    /// The predicted measurement h(x).
-    fn predict(&self, x: &SVector<T, N>) -> SVector<T, M>;
+    /// The expected measurement h(x) at the state x (not the filter's
+    /// predict step).
+    fn expected(&self, x: &SVector<T, N>) -> SVector<T, M>;
 
     /// The Jacobian of h with respect to x.
     fn jacobian(&self, x: &SVector<T, N>) -> SMatrix<T, M, N>;
@@ -95,8 +96,8 @@ pub trait MeasurementModel<T: Scalar, const N: usize, const M: usize> {
     fn noise(&self, x: &SVector<T, N>) -> SMatrix<T, M, M>;
 
     /// The innovation z - h(x). Override to wrap angles.
-    fn residual(&self, z: &SVector<T, M>, predicted: &SVector<T, M>) -> SVector<T, M> {
-        z - predicted
+    fn residual(&self, z: &SVector<T, M>, expected: &SVector<T, M>) -> SVector<T, M> {
+        z - expected
     }
 
     /// Brings the posterior state back to its canonical range. The default

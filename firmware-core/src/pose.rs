@@ -80,7 +80,7 @@ impl<T: Scalar> ProcessModel<T, 3> for PlanarOdometry<T> {
     }
 
     #[inline(always)]
-    fn noise_input(
+    fn noise_sources(
         &self,
         x: &Vector3<T>,
         u: &Odometry<T>,
@@ -163,7 +163,7 @@ impl<T: Scalar> MeasurementModel<T, 3, 2> for PositionFix<T> {
     const JACOBIAN_PATTERN: Pattern<2, 3> = Pattern::IDENTITY;
 
     #[inline(always)]
-    fn predict(&self, x: &Vector3<T>) -> Vector2<T> {
+    fn expected(&self, x: &Vector3<T>) -> Vector2<T> {
         Vector2::new(x[0], x[1])
     }
     #[inline(always)]
@@ -194,7 +194,7 @@ impl<T: Scalar> MeasurementModel<T, 3, 1> for HeadingFix<T> {
     const JACOBIAN_PATTERN: Pattern<1, 3> = Pattern::ZERO.one(0, 2);
 
     #[inline(always)]
-    fn predict(&self, x: &Vector3<T>) -> SVector<T, 1> {
+    fn expected(&self, x: &Vector3<T>) -> SVector<T, 1> {
         SVector::<T, 1>::new(x[2])
     }
     #[inline(always)]
@@ -206,8 +206,8 @@ impl<T: Scalar> MeasurementModel<T, 3, 1> for HeadingFix<T> {
         SMatrix::<T, 1, 1>::new(self.var)
     }
     #[inline(always)]
-    fn residual(&self, z: &SVector<T, 1>, predicted: &SVector<T, 1>) -> SVector<T, 1> {
-        SVector::<T, 1>::new(wrap_angle(z[0] - predicted[0]))
+    fn residual(&self, z: &SVector<T, 1>, expected: &SVector<T, 1>) -> SVector<T, 1> {
+        SVector::<T, 1>::new(wrap_angle(z[0] - expected[0]))
     }
     #[inline(always)]
     fn normalize(&self, x: &mut Vector3<T>) {
@@ -310,10 +310,10 @@ mod tests {
                 xs[c] += s;
                 xs
             };
-            let dpos = (fix.predict(&step(h)) - fix.predict(&step(-h))) / (2.0 * h);
+            let dpos = (fix.expected(&step(h)) - fix.expected(&step(-h))) / (2.0 * h);
             let hp = MeasurementModel::<f64, 3, 2>::jacobian(&fix, &x);
             assert!((dpos - hp.column(c)).amax() < 1e-9, "position column {c}");
-            let dh = (heading.predict(&step(h)) - heading.predict(&step(-h))) / (2.0 * h);
+            let dh = (heading.expected(&step(h)) - heading.expected(&step(-h))) / (2.0 * h);
             let hh = MeasurementModel::<f64, 3, 1>::jacobian(&heading, &x);
             assert!((dh - hh.column(c)).amax() < 1e-9, "heading column {c}");
         }

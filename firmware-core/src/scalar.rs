@@ -10,7 +10,8 @@ use nalgebra::RealField;
 /// Cortex-M target: `f32` uses the crate's own single-precision kernel (all
 /// f32 arithmetic, hardware on a Cortex-M4F), or libm's `sinf`/`cosf` with
 /// the `libm-trig` feature (which compute in f64: software on an M4), or
-/// micromath's approximations with `fast-trig`; `f64` uses libm.
+/// micromath's approximations with `fast-trig` (the two features exclude
+/// each other); `f64` uses libm.
 pub trait Scalar: RealField + Copy {
     /// Machine epsilon (unit roundoff times two) of the type.
     const EPSILON: Self;

@@ -27,8 +27,8 @@ use crate::scalar::Scalar;
 /// are finite, as the covariance form refuses it.
 ///
 /// Give the process noise as sources where you can
-/// ([`UdKalman::predict_noise_input`], or a model's
-/// [`crate::ProcessModel::noise_input`]): a full Q must be factored first,
+/// ([`UdKalman::predict_with_sources`], or a model's
+/// [`crate::ProcessModel::noise_sources`]): a full Q must be factored first,
 /// and that factorisation has to decide which of its pivots are zero. A
 /// pivot at the rounding level of the largest variance that lost most of
 /// its own diagonal entry to cancellation counts as zero; a small variance
@@ -164,10 +164,11 @@ impl<T: Scalar, const N: usize> UdKalman<T, N> {
         self.ud.diagonal()
     }
 
-    /// The covariance U D U', exactly symmetric (upper triangle computed,
-    /// mirrored). O(n^3 / 3); for reports and checks, not the hot path.
+    /// The covariance U D U', rebuilt from the factors (the filter stores U
+    /// and D, not P): exactly symmetric (upper triangle computed, mirrored),
+    /// O(n^3 / 3) multiply-adds; for reports and checks, not the hot path.
     #[must_use]
-    pub fn covariance(&self) -> SMatrix<T, N, N> {
+    pub fn rebuild_covariance(&self) -> SMatrix<T, N, N> {
         let mut p = SMatrix::<T, N, N>::zeros();
         for j in 0..N {
             for i in 0..=j {
@@ -185,13 +186,8 @@ impl<T: Scalar, const N: usize> UdKalman<T, N> {
         p
     }
 
-    /// The name of the form, for reports.
-    pub fn form_name(&self) -> &'static str {
-        "u-d"
-    }
-
     /// Moves the origin the state is expressed in: x -= offset, factors
-    /// unchanged; see [`crate::Kalman::shift_origin_mut`].
+    /// unchanged; see [`crate::Kalman::shift_origin`].
     ///
     /// # Errors
     /// [`FilterError::NonFinite`] for a non-finite offset or result; nothing
@@ -199,7 +195,7 @@ impl<T: Scalar, const N: usize> UdKalman<T, N> {
     ///
     /// # Panics
     /// Never.
-    pub fn shift_origin_mut(&mut self, offset: &SVector<T, N>) -> Result<(), FilterError> {
+    pub fn shift_origin(&mut self, offset: &SVector<T, N>) -> Result<(), FilterError> {
         self.x = check::shifted(&self.x, offset)?;
         Ok(())
     }
@@ -295,7 +291,7 @@ impl<T: Scalar, const N: usize> UdKalman<T, N> {
     ///
     /// # Panics
     /// Never.
-    pub fn predict_noise_input(
+    pub fn predict_with_sources(
         &mut self,
         f: &SMatrix<T, N, N>,
         g: &SMatrix<T, N, N>,
@@ -400,9 +396,9 @@ impl<T: Scalar, const N: usize> UdKalman<T, N> {
         gate: Option<T>,
     ) -> Result<Outcome<T>, FilterError> {
         check::finite(z, Operand::Measurement)?;
-        let predicted = model.predict(&self.x);
-        check::finite(&predicted, Operand::Innovation)?;
-        let nu = model.residual(z, &predicted);
+        let expected = model.expected(&self.x);
+        check::finite(&expected, Operand::Innovation)?;
+        let nu = model.residual(z, &expected);
         let h = model.jacobian(&self.x);
         check::finite(&h, Operand::MeasurementMatrix)?;
         let r = model.noise(&self.x);

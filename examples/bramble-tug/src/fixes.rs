@@ -24,7 +24,7 @@ impl<T: Scalar> WheelSpeed<T> {
 
 impl<T: Scalar> MeasurementModel<T, STATES, 1> for WheelSpeed<T> {
     #[inline(always)]
-    fn predict(&self, x: &SVector<T, STATES>) -> SVector<T, 1> {
+    fn expected(&self, x: &SVector<T, STATES>) -> SVector<T, 1> {
         SVector::<T, 1>::new(x[SPEED])
     }
     #[inline(always)]
@@ -62,7 +62,7 @@ impl<T: Scalar> RadioFix<T> {
 
 impl<T: Scalar> MeasurementModel<T, STATES, 2> for RadioFix<T> {
     #[inline(always)]
-    fn predict(&self, x: &SVector<T, STATES>) -> SVector<T, 2> {
+    fn expected(&self, x: &SVector<T, STATES>) -> SVector<T, 2> {
         SVector::<T, 2>::new(x[X], x[Y])
     }
     #[inline(always)]
@@ -102,7 +102,7 @@ impl<T: Scalar> HeadingFix<T> {
 
 impl<T: Scalar> MeasurementModel<T, STATES, 1> for HeadingFix<T> {
     #[inline(always)]
-    fn predict(&self, x: &SVector<T, STATES>) -> SVector<T, 1> {
+    fn expected(&self, x: &SVector<T, STATES>) -> SVector<T, 1> {
         SVector::<T, 1>::new(x[HEADING])
     }
     #[inline(always)]
@@ -132,24 +132,24 @@ mod tests {
     #[test]
     fn channels_select_their_states() {
         let x = SVector::<f64, 5>::from([4.0, -2.0, 0.3, 1.25, 0.01]);
-        assert_eq!(WheelSpeed::new(0.03).predict(&x)[0], 1.25);
+        assert_eq!(WheelSpeed::new(0.03).expected(&x)[0], 1.25);
         assert_eq!(
-            RadioFix::new(0.1).predict(&x),
+            RadioFix::new(0.1).expected(&x),
             SVector::<f64, 2>::new(4.0, -2.0)
         );
-        assert_eq!(HeadingFix::new(0.02).predict(&x)[0], 0.3);
+        assert_eq!(HeadingFix::new(0.02).expected(&x)[0], 0.3);
         // A linear channel's Jacobian reproduces its prediction: h(x) = H x.
         assert_eq!(
             WheelSpeed::new(0.03).jacobian(&x) * x,
-            WheelSpeed::new(0.03).predict(&x)
+            WheelSpeed::new(0.03).expected(&x)
         );
         assert_eq!(
             RadioFix::new(0.1).jacobian(&x) * x,
-            RadioFix::new(0.1).predict(&x)
+            RadioFix::new(0.1).expected(&x)
         );
         assert_eq!(
             HeadingFix::new(0.02).jacobian(&x) * x,
-            HeadingFix::new(0.02).predict(&x)
+            HeadingFix::new(0.02).expected(&x)
         );
         // R is sigma^2.
         assert_eq!(

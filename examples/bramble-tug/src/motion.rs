@@ -143,7 +143,7 @@ impl<T: Scalar> ProcessModel<T, STATES> for TugMotion<T> {
     }
 
     #[inline(always)]
-    fn noise_input(
+    fn noise_sources(
         &self,
         _x: &SVector<T, STATES>,
         _u: &ImuSample<T>,
@@ -237,7 +237,7 @@ mod tests {
             accel: 0.0,
         };
         for dt in [0.009, 0.01, 0.011, 2.0] {
-            let (g, q) = m.noise_input(&x, &u, dt).unwrap();
+            let (g, q) = m.noise_sources(&x, &u, dt).unwrap();
             let q_mat = m.noise(&x, &u, dt);
             // The plain matrix product, nalgebra's (a general-purpose library).
             let reference: Matrix5<f64> = g * Matrix5::from_diagonal(&q) * g.transpose();
@@ -263,7 +263,7 @@ mod tests {
         assert_eq!(lin.next, m.transition(&x, &u, 0.01));
         assert_eq!(lin.jacobian, m.jacobian(&x, &u, 0.01));
         assert_eq!(lin.noise, m.noise(&x, &u, 0.01));
-        assert_eq!(lin.sources, m.noise_input(&x, &u, 0.01));
+        assert_eq!(lin.sources, m.noise_sources(&x, &u, 0.01));
     }
 
     #[test]

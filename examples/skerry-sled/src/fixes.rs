@@ -49,7 +49,7 @@ impl<T: Scalar> PositionFix<T> {
 
 impl<T: Scalar> MeasurementModel<T, STATES, 3> for PositionFix<T> {
     #[inline(always)]
-    fn predict(&self, x: &SVector<T, STATES>) -> SVector<T, 3> {
+    fn expected(&self, x: &SVector<T, STATES>) -> SVector<T, 3> {
         Vector3::new(x[POSITION], x[POSITION + 1], x[POSITION + 2])
     }
     #[inline(always)]
@@ -91,7 +91,7 @@ impl<T: Scalar> VelocityFix<T> {
 
 impl<T: Scalar> MeasurementModel<T, STATES, 3> for VelocityFix<T> {
     #[inline(always)]
-    fn predict(&self, x: &SVector<T, STATES>) -> SVector<T, 3> {
+    fn expected(&self, x: &SVector<T, STATES>) -> SVector<T, 3> {
         Vector3::new(x[VELOCITY], x[VELOCITY + 1], x[VELOCITY + 2])
     }
     #[inline(always)]
@@ -127,7 +127,7 @@ impl<T: Scalar> MagYaw<T> {
 
 impl<T: Scalar> MeasurementModel<T, STATES, 1> for MagYaw<T> {
     #[inline(always)]
-    fn predict(&self, x: &SVector<T, STATES>) -> SVector<T, 1> {
+    fn expected(&self, x: &SVector<T, STATES>) -> SVector<T, 1> {
         SVector::<T, 1>::new(x[YAW])
     }
     #[inline(always)]
@@ -163,13 +163,13 @@ mod tests {
         let pos = PositionFix::new(0.02, 0.05);
         let vel = VelocityFix::new(0.05, 0.1);
         let yaw = MagYaw::new(0.03);
-        assert_eq!(pos.predict(&x), Vector3::new(0.5, 1.5, 2.5));
-        assert_eq!(vel.predict(&x), Vector3::new(3.5, 4.5, 5.5));
-        assert_eq!(yaw.predict(&x)[0], 8.5);
+        assert_eq!(pos.expected(&x), Vector3::new(0.5, 1.5, 2.5));
+        assert_eq!(vel.expected(&x), Vector3::new(3.5, 4.5, 5.5));
+        assert_eq!(yaw.expected(&x)[0], 8.5);
         // Linear channels: h(x) = H x.
-        assert_eq!(pos.jacobian(&x) * x, pos.predict(&x));
-        assert_eq!(vel.jacobian(&x) * x, vel.predict(&x));
-        assert_eq!(yaw.jacobian(&x) * x, yaw.predict(&x));
+        assert_eq!(pos.jacobian(&x) * x, pos.expected(&x));
+        assert_eq!(vel.jacobian(&x) * x, vel.expected(&x));
+        assert_eq!(yaw.jacobian(&x) * x, yaw.expected(&x));
         // R = diag of the squared deviations.
         let r = pos.noise(&x);
         assert_eq!(

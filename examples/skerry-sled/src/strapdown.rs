@@ -324,7 +324,7 @@ impl<T: Scalar> ProcessModel<T, STATES> for SledInertial<T> {
     }
 
     #[inline(always)]
-    fn noise_input(
+    fn noise_sources(
         &self,
         x: &SVector<T, STATES>,
         _u: &ImuSample<T>,
@@ -496,7 +496,7 @@ mod tests {
         for att in [[0.0, 0.0, 0.0], [0.3, -0.2, 1.1], [-1.2, 0.9, -2.8]] {
             let x = state(att, 2.0);
             for dt in [0.01, 0.011, 2.0] {
-                let (g, q) = m.noise_input(&x, &u, dt).unwrap();
+                let (g, q) = m.noise_sources(&x, &u, dt).unwrap();
                 let q_mat = m.noise(&x, &u, dt);
                 // The plain product, nalgebra's (a general-purpose library).
                 let reference = g * SMatrix::<f64, 15, 15>::from_diagonal(&q) * g.transpose();
@@ -529,7 +529,7 @@ mod tests {
         assert_eq!(lin.next, m.transition(&x, &u, 0.01));
         assert_eq!(lin.jacobian, m.jacobian(&x, &u, 0.01));
         assert_eq!(lin.noise, m.noise(&x, &u, 0.01));
-        assert_eq!(lin.sources, m.noise_input(&x, &u, 0.01));
+        assert_eq!(lin.sources, m.noise_sources(&x, &u, 0.01));
     }
 
     #[test]

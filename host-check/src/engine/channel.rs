@@ -63,7 +63,7 @@ impl<const N: usize, const M: usize, S: Sensor<N, M>> Channel<N> for SensorChann
 
     fn evaluate(&self, x: &SVector<f64, N>) -> Evaluation {
         let m = self.0.model::<f64>();
-        let h = m.predict(x);
+        let h = m.expected(x);
         let jac = m.jacobian(x);
         let r = m.noise(x);
         Evaluation {

@@ -264,7 +264,7 @@ impl<const N: usize> Filter<N> {
     /// The covariance, widened to f64.
     #[must_use]
     pub fn covariance(&self) -> SMatrix<f64, N, N> {
-        each!(self, f, T => widen::<T, N, N>(&f.covariance_matrix()))
+        each!(self, f, T => widen::<T, N, N>(&f.covariance_snapshot()))
     }
 
     /// The state, widened to f64.
@@ -287,7 +287,9 @@ impl<const N: usize> Filter<N> {
         each!(self, e, T => {
             let (fs, qs) = (f.map(T::of), q.map(T::of));
             match sources {
-                Some((g, qv)) => e.predict_with_sources(&fs, &qs, &g.map(T::of), &qv.map(T::of)),
+                Some((g, qv)) => {
+                    Estimator::predict_with_sources(e, &fs, &qs, &g.map(T::of), &qv.map(T::of))
+                }
                 None => e.predict(&fs, &qs),
             }
         })
@@ -316,7 +318,7 @@ impl<const N: usize> Filter<N> {
     /// # Errors
     /// The core's error; nothing changes.
     pub fn shift_origin(&mut self, offset: &SVector<f64, N>) -> Result<(), FilterError> {
-        each!(self, e, T => e.shift_origin_mut(&offset.map(T::of)))
+        each!(self, e, T => e.shift_origin(&offset.map(T::of)))
     }
 
     /// The NEES (x + origin - truth)' P^-1 (x + origin - truth) in f64,
@@ -381,7 +383,7 @@ fn update_typed<
     gate: Option<f64>,
 ) -> Result<LaneUpdate, FilterError> {
     let gate_t = gate.map(T::of);
-    let p = e.covariance_matrix();
+    let p = e.covariance_snapshot();
     match input {
         UpdateInput::Shared { h, r, innovation } => {
             let hs = to_s::<T, M, N>(h);

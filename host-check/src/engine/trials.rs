@@ -49,14 +49,14 @@ impl<T: Scalar, const N: usize, P: ProcessModel<T, N>> ProcessModel<T, N> for Sc
         self.inner.noise(x, u, dt) * self.scale
     }
 
-    fn noise_input(
+    fn noise_sources(
         &self,
         x: &SVector<T, N>,
         u: &P::Input,
         dt: T,
     ) -> Option<(SMatrix<T, N, N>, SVector<T, N>)> {
         self.inner
-            .noise_input(x, u, dt)
+            .noise_sources(x, u, dt)
             .map(|(g, q)| (g, q * self.scale))
     }
 

@@ -83,7 +83,7 @@ pub struct LinearMeasurement<T: Scalar, const N: usize, const M: usize> {
 impl<T: Scalar, const N: usize, const M: usize> MeasurementModel<T, N, M>
     for LinearMeasurement<T, N, M>
 {
-    fn predict(&self, x: &SVector<T, N>) -> SVector<T, M> {
+    fn expected(&self, x: &SVector<T, N>) -> SVector<T, M> {
         self.h * x
     }
 

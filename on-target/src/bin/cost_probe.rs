@@ -81,8 +81,9 @@ fn main() -> ! {
         failures += u32::from(probe::definiteness3(black_box(&plain)).is_err());
     }
     // The health monitor, a full window of invented NIS values: linked here
-    // for the no-panic proof, not a probe (its asymmetry and chi-square
-    // bounds take square roots, which `cairn cost` flags in any probe).
+    // for the no-panic proof, not a probe (its correlation asymmetry and
+    // chi-square bounds take square roots, which `cairn cost` flags in any
+    // probe).
     let Ok(mut monitor) = HealthMonitor::<f32, 16>::try_with_quantile(1.96) else {
         exit(false)
     };
