@@ -210,7 +210,7 @@ pub use health::{HealthMonitor, HealthReport, NisBand, wilson_hilferty_bounds};
 pub use kalman::Kalman;
 pub use kernel::from_sources as noise_from_sources;
 pub use ldl::Ldl;
-pub use model::{Linearized, MeasurementModel, ProcessModel};
+pub use model::{Dense, Linearized, MeasurementModel, ProcessModel};
 /// The nalgebra the core is built on (0.34): models name its types through
 /// this path, so they are the core's own.
 pub use nalgebra;

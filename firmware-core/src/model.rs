@@ -104,3 +104,68 @@ pub trait MeasurementModel<T: Scalar, const N: usize, const M: usize> {
     /// does nothing.
     fn normalize(&self, _x: &mut SVector<T, N>) {}
 }
+
+/// A model with its structural patterns switched off: the same functions,
+/// the dense kernels. For pricing or comparing a pattern (the numbers are
+/// the same but for the sign of an exact zero, see [`Pattern`]).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Dense<M>(pub M);
+
+impl<T: Scalar, const N: usize, P: ProcessModel<T, N>> ProcessModel<T, N> for Dense<P> {
+    type Input = P::Input;
+
+    #[inline(always)]
+    fn transition(&self, x: &SVector<T, N>, u: &Self::Input, dt: T) -> SVector<T, N> {
+        self.0.transition(x, u, dt)
+    }
+    #[inline(always)]
+    fn jacobian(&self, x: &SVector<T, N>, u: &Self::Input, dt: T) -> SMatrix<T, N, N> {
+        self.0.jacobian(x, u, dt)
+    }
+    #[inline(always)]
+    fn noise(&self, x: &SVector<T, N>, u: &Self::Input, dt: T) -> SMatrix<T, N, N> {
+        self.0.noise(x, u, dt)
+    }
+    #[inline(always)]
+    fn noise_sources(
+        &self,
+        x: &SVector<T, N>,
+        u: &Self::Input,
+        dt: T,
+    ) -> Option<(SMatrix<T, N, N>, SVector<T, N>)> {
+        self.0.noise_sources(x, u, dt)
+    }
+    #[inline(always)]
+    fn linearize(&self, x: &SVector<T, N>, u: &Self::Input, dt: T) -> Linearized<T, N> {
+        self.0.linearize(x, u, dt)
+    }
+    #[inline(always)]
+    fn normalize(&self, x: &mut SVector<T, N>) {
+        self.0.normalize(x);
+    }
+}
+
+impl<T: Scalar, const N: usize, const M: usize, H: MeasurementModel<T, N, M>>
+    MeasurementModel<T, N, M> for Dense<H>
+{
+    #[inline(always)]
+    fn expected(&self, x: &SVector<T, N>) -> SVector<T, M> {
+        self.0.expected(x)
+    }
+    #[inline(always)]
+    fn jacobian(&self, x: &SVector<T, N>) -> SMatrix<T, M, N> {
+        self.0.jacobian(x)
+    }
+    #[inline(always)]
+    fn noise(&self, x: &SVector<T, N>) -> SMatrix<T, M, M> {
+        self.0.noise(x)
+    }
+    #[inline(always)]
+    fn residual(&self, z: &SVector<T, M>, expected: &SVector<T, M>) -> SVector<T, M> {
+        self.0.residual(z, expected)
+    }
+    #[inline(always)]
+    fn normalize(&self, x: &mut SVector<T, N>) {
+        self.0.normalize(x);
+    }
+}

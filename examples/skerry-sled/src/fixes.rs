@@ -2,13 +2,21 @@
 //! in the local level frame, and magnetometer yaw.
 
 use cairn_core::nalgebra::{Matrix3, SMatrix, SVector, Vector3};
-use cairn_core::{MeasurementModel, Scalar, wrap_angle};
+use cairn_core::{MeasurementModel, Pattern, Scalar, wrap_angle};
 
 use crate::strapdown::wrap_attitude;
 use crate::{POSITION, STATES, VELOCITY, YAW};
 
 /// H selecting three consecutive states starting at `first`.
 #[inline(always)]
+/// The structure of [`select`]'s H: ones at (i, first + i).
+const fn selection(first: usize) -> Pattern<3, STATES> {
+    Pattern::ZERO
+        .one(0, first)
+        .one(1, first + 1)
+        .one(2, first + 2)
+}
+
 fn select<T: Scalar>(first: usize) -> SMatrix<T, 3, STATES> {
     let mut h = SMatrix::<T, 3, STATES>::zeros();
     for i in 0..3 {
@@ -48,6 +56,8 @@ impl<T: Scalar> PositionFix<T> {
 }
 
 impl<T: Scalar> MeasurementModel<T, STATES, 3> for PositionFix<T> {
+    const JACOBIAN_PATTERN: Pattern<3, STATES> = selection(POSITION);
+
     #[inline(always)]
     fn expected(&self, x: &SVector<T, STATES>) -> SVector<T, 3> {
         Vector3::new(x[POSITION], x[POSITION + 1], x[POSITION + 2])
@@ -90,6 +100,8 @@ impl<T: Scalar> VelocityFix<T> {
 }
 
 impl<T: Scalar> MeasurementModel<T, STATES, 3> for VelocityFix<T> {
+    const JACOBIAN_PATTERN: Pattern<3, STATES> = selection(VELOCITY);
+
     #[inline(always)]
     fn expected(&self, x: &SVector<T, STATES>) -> SVector<T, 3> {
         Vector3::new(x[VELOCITY], x[VELOCITY + 1], x[VELOCITY + 2])
@@ -126,6 +138,8 @@ impl<T: Scalar> MagYaw<T> {
 }
 
 impl<T: Scalar> MeasurementModel<T, STATES, 1> for MagYaw<T> {
+    const JACOBIAN_PATTERN: Pattern<1, STATES> = Pattern::ZERO.one(0, YAW);
+
     #[inline(always)]
     fn expected(&self, x: &SVector<T, STATES>) -> SVector<T, 1> {
         SVector::<T, 1>::new(x[YAW])

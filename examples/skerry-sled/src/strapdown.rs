@@ -2,7 +2,7 @@
 //! Euler attitude driven by a 3-axis gyro and accelerometer, with biases.
 
 use cairn_core::nalgebra::{Matrix3, SMatrix, SVector, Vector3};
-use cairn_core::{Linearized, ProcessModel, Scalar, wrap_angle};
+use cairn_core::{Entry, Linearized, Pattern, ProcessModel, Scalar, wrap_angle};
 
 use crate::{ACCEL_BIAS, GYRO_BIAS, PITCH, POSITION, ROLL, STATES, VELOCITY, YAW};
 
@@ -291,8 +291,48 @@ pub(crate) fn wrap_attitude<T: Scalar>(x: &mut SVector<T, STATES>) {
     x[YAW] = wrap_angle(x[YAW]);
 }
 
+/// The structure of [`SledInertial::jacobian_at`]'s F: the identity; dt from
+/// velocity to position; attitude and accelerometer bias into velocity (the
+/// down velocity does not depend on yaw); roll and pitch into the attitude
+/// rates; gyro bias into the attitude. 48 of 225 entries are not
+/// structurally zero, 13 of them ones.
+const JACOBIAN: Pattern<STATES, STATES> = {
+    let mut p = Pattern::IDENTITY
+        .free_block(VELOCITY, ROLL, 3, 3)
+        .zero(VELOCITY + 2, YAW)
+        .free_block(VELOCITY, ACCEL_BIAS, 3, 3)
+        .free_block(ROLL, ROLL, 3, 2)
+        .free_block(ROLL, GYRO_BIAS, 3, 3);
+    let mut i = 0;
+    while i < 3 {
+        p = p.free(POSITION + i, VELOCITY + i);
+        i += 1;
+    }
+    p
+};
+
+/// The structure of [`SledInertial::sources_at`]'s G: gyro noise into the
+/// attitude, accelerometer noise into the velocity, each bias step into its
+/// own bias with weight one.
+const SOURCES: Pattern<STATES, STATES> = {
+    let mut p = Pattern::ZERO
+        .free_block(ROLL, 0, 3, 3)
+        .free_block(VELOCITY, 3, 3, 3);
+    let mut i = 0;
+    while i < 3 {
+        p = p
+            .with(GYRO_BIAS + i, 6 + i, Entry::One)
+            .with(ACCEL_BIAS + i, 9 + i, Entry::One);
+        i += 1;
+    }
+    p
+};
+
 impl<T: Scalar> ProcessModel<T, STATES> for SledInertial<T> {
     type Input = ImuSample<T>;
+
+    const JACOBIAN_PATTERN: Pattern<STATES, STATES> = JACOBIAN;
+    const SOURCES_PATTERN: Pattern<STATES, STATES> = SOURCES;
 
     #[inline(always)]
     fn transition(&self, x: &SVector<T, STATES>, u: &ImuSample<T>, dt: T) -> SVector<T, STATES> {

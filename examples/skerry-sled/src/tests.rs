@@ -6,7 +6,9 @@ extern crate std;
 use std::vec::Vec;
 
 use cairn_core::nalgebra::{Cholesky, Matrix3, SMatrix, SVector, Vector3};
-use cairn_core::{Joseph, Kalman, Outcome, Scalar, UdKalman, wrap_angle};
+use cairn_core::{
+    Dense, Joseph, Kalman, MeasurementModel, Outcome, ProcessModel, Scalar, UdKalman, wrap_angle,
+};
 
 use crate::{
     ImuSample, MagYaw, PITCH, PositionFix, ROLL, STANDARD_GRAVITY, SledInertial, VelocityFix, YAW,
@@ -283,4 +285,82 @@ fn the_factored_filter_agrees_with_the_joseph_filter() {
         "P differs by {dp}"
     );
     assert!(dx < 1e-9, "x differs by {dx}");
+}
+
+/// Runs `steps` through a patterned and a dense (`Dense`) Joseph filter in
+/// scalar T and asserts that they hold the same numbers after every
+/// operation (the patterns only skip products with structural zeros and
+/// ones; equality as numbers, so the sign of an exact zero may differ).
+fn patterned_equals_dense<T: Scalar>(
+    steps: &[Step],
+    x0: &SVector<f64, 15>,
+    p0: &SMatrix<f64, 15, 15>,
+) {
+    let of = |v: f64| T::of(v);
+    let start: Kalman<T, 15, Joseph> = Kalman::try_new(x0.map(of), p0.map(of)).unwrap();
+    let (mut patterned, mut dense) = (start, start);
+    let model = SledInertial::new(
+        of(GYRO_ARW),
+        of(ACCEL_VRW),
+        of(GYRO_BIAS_RW),
+        of(ACCEL_BIAS_RW),
+    );
+    let pos = PositionFix::new(of(0.02), of(0.05));
+    let vel = VelocityFix::new(of(0.05), of(0.1));
+    let yaw = MagYaw::new(of(0.03));
+    let same = |a: &Kalman<T, 15, Joseph>, b: &Kalman<T, 15, Joseph>, k: usize| {
+        assert!(a.covariance() == b.covariance(), "P differs at step {k}");
+        assert!(a.state() == b.state(), "x differs at step {k}");
+    };
+    for (k, s) in steps.iter().enumerate() {
+        let u = ImuSample {
+            gyro: s.imu.gyro.map(of),
+            accel: s.imu.accel.map(of),
+        };
+        patterned.predict_with(&model, &u, of(s.dt)).unwrap();
+        dense.predict_with(&Dense(model), &u, of(s.dt)).unwrap();
+        same(&patterned, &dense, k);
+        if let Some((p, v, y)) = s.fix {
+            let y = SVector::<T, 1>::new(of(y));
+            patterned.update_with(&pos, &p.map(of), None).unwrap();
+            dense.update_with(&Dense(pos), &p.map(of), None).unwrap();
+            patterned.update_with(&vel, &v.map(of), None).unwrap();
+            dense.update_with(&Dense(vel), &v.map(of), None).unwrap();
+            patterned.update_with(&yaw, &y, None).unwrap();
+            dense.update_with(&Dense(yaw), &y, None).unwrap();
+            same(&patterned, &dense, k);
+        }
+    }
+}
+
+#[test]
+fn the_patterns_hold_along_a_tow_and_change_no_number() {
+    let (steps, truth0) = scenario(77);
+    let (x0, p0) = start(&truth0, &mut Rng(78));
+    // The declared structure fits the model's matrices along the whole run
+    // (at the true states and the recorded inputs).
+    let model = SledInertial::new(GYRO_ARW, ACCEL_VRW, GYRO_BIAS_RW, ACCEL_BIAS_RW);
+    let f_pattern = <SledInertial<f64> as ProcessModel<f64, 15>>::JACOBIAN_PATTERN;
+    let g_pattern = <SledInertial<f64> as ProcessModel<f64, 15>>::SOURCES_PATTERN;
+    assert_eq!((f_pattern.nonzero(), g_pattern.nonzero()), (48, 24));
+    for s in &steps {
+        let f = model.jacobian(&s.truth, &s.imu, s.dt);
+        assert_eq!(f_pattern.first_violation(&f), None);
+        let (g, _) = model.noise_sources(&s.truth, &s.imu, s.dt).unwrap();
+        assert_eq!(g_pattern.first_violation(&g), None);
+    }
+    for (h, pattern) in [
+        (
+            PositionFix::new(0.02, 0.05).jacobian(&x0),
+            <PositionFix<f64> as MeasurementModel<f64, 15, 3>>::JACOBIAN_PATTERN,
+        ),
+        (
+            VelocityFix::new(0.05, 0.1).jacobian(&x0),
+            <VelocityFix<f64> as MeasurementModel<f64, 15, 3>>::JACOBIAN_PATTERN,
+        ),
+    ] {
+        assert_eq!(pattern.first_violation(&h), None);
+    }
+    patterned_equals_dense::<f64>(&steps[..2000], &x0, &p0);
+    patterned_equals_dense::<f32>(&steps[..2000], &x0, &p0);
 }

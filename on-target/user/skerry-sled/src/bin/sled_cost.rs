@@ -1,11 +1,13 @@
 //! The sled's cost probe for `cairn cost --probe`: one probe per filter
 //! operation (the 15-state predict and the three fixes, Joseph form), each
-//! called `CALLS` times on a filter driven along the simulated tow.
+//! called `CALLS` times on a filter driven along the simulated tow; and the
+//! predict and the position fix once more with the models' structural
+//! patterns switched off (`Dense`), which prices the patterns.
 #![no_std]
 #![no_main]
 
 use cairn_core::nalgebra::{Vector1, Vector3};
-use cairn_core::{Joseph, Kalman};
+use cairn_core::{Dense, Joseph, Kalman};
 use core::hint::black_box;
 use skerry_sled::{MagYaw, PositionFix, STATES, SledInertial, VelocityFix};
 use skerry_sled_probe::run::{self, DT, GATE_1, GATE_3, common::Lcg};
@@ -15,6 +17,14 @@ type Filter = Kalman<f32, STATES, Joseph>;
 cairn_probe::predict_probe!(
     /// One strapdown predict over one IMU sample.
     predict, Filter, SledInertial<f32>, STATES
+);
+cairn_probe::predict_probe!(
+    /// The same predict with the patterns off: dense kernels.
+    dense_predict, Filter, Dense<SledInertial<f32>>, STATES
+);
+cairn_probe::update_probe!(
+    /// The position fix with the pattern off: dense kernels.
+    dense_position_update, Filter, Dense<PositionFix<f32>>, STATES, 3
 );
 cairn_probe::update_probe!(
     /// One satellite position fix (m = 3).
@@ -38,9 +48,19 @@ fn main() -> ! {
     let mut filter = run::initial_filter();
     let mut noise = Lcg(0x5eed_0015);
     let mut failures = 0u32;
+    let mut twin = filter;
+    let dense = Dense(m.inertial);
     for k in 1..=CALLS {
         let u = run::tow(k);
         failures += u32::from(predict(black_box(&mut filter), &m.inertial, &u, DT).is_err());
+        failures += u32::from(dense_predict(black_box(&mut twin), &dense, &u, DT).is_err());
+    }
+    let dense = Dense(m.position);
+    for _ in 0..CALLS {
+        let x = *twin.state();
+        let z = Vector3::new(x[0] + 0.02, x[1] - 0.02, x[2] + 0.05);
+        let r = dense_position_update(black_box(&mut twin), &dense, &z, Some(GATE_3));
+        failures += u32::from(r.is_err());
     }
     for _ in 0..CALLS {
         let x = *filter.state();
@@ -75,6 +95,8 @@ fn main() -> ! {
             "position_update",
             "velocity_update",
             "mag_yaw_update",
+            "dense_predict",
+            "dense_position_update",
         ],
     )
 }
