@@ -156,8 +156,8 @@ fn the_fixed_gain_variance_converges_to_the_closed_form() {
     // little: a large, long transient.
     assert!(max_excess > 1.0 && settle > 5.0);
     // The core's SteadyGain ran in both precisions and agrees.
-    assert_eq!(cg.lanes.len(), 2);
-    for l in &cg.lanes {
+    assert_eq!(cg.variants.len(), 2);
+    for l in &cg.variants {
         assert!(l.refused.is_none(), "{l:?}");
         assert!(l.max_state_difference_sigma < 1e-3, "{l:?}");
     }

@@ -936,7 +936,7 @@ fn recentring_brings_f32_positions_far_from_the_origin_back_onto_the_f64_run() {
         assert_eq!(v["verdict"]["passes"], true, "{name}");
         // The start re-centres and so does every 10 m of the ~48 m run;
         // the origin is whole metres and within 10 m and a step of the
-        // reference's final position (the lane's local state is no larger).
+        // reference's final position (the variant's local state is no larger).
         assert!(num(&v["recentres"]) >= 2.0, "{name}: {v}");
         for i in 0..2 {
             let o = num(&v["origin"][i]);
@@ -945,8 +945,9 @@ fn recentring_brings_f32_positions_far_from_the_origin_back_onto_the_f64_run() {
         }
     }
 
-    // Shifted far out, the lanes behave as lanes started at the origin: the
-    // same arithmetic on the same local numbers gives the same figure.
+    // Shifted far out, the variants behave as variants started at the
+    // origin: the same arithmetic on the same local numbers gives the same
+    // figure.
     let text = std::fs::read_to_string(&far).unwrap();
     let near = scratch("near-rover-recentred.toml");
     std::fs::write(

@@ -4,7 +4,7 @@
 use cairn_core::MeasurementModel;
 use nalgebra::{DMatrix, SVector};
 
-use super::filter::{Filter, LaneUpdate, UpdateInput};
+use super::filter::{Filter, UpdateInput, VariantUpdate};
 use super::system::Sensor;
 
 /// One measurement model evaluated in `f64`.
@@ -50,7 +50,7 @@ pub trait Channel<const N: usize>: Sync {
         input: UpdateInput<'_>,
         apply: bool,
         gate: Option<f64>,
-    ) -> Result<LaneUpdate, cairn_core::FilterError>;
+    ) -> Result<VariantUpdate, cairn_core::FilterError>;
 }
 
 /// A [`Sensor`] of `M` components as a [`Channel`].
@@ -94,7 +94,7 @@ impl<const N: usize, const M: usize, S: Sensor<N, M>> Channel<N> for SensorChann
         input: UpdateInput<'_>,
         apply: bool,
         gate: Option<f64>,
-    ) -> Result<LaneUpdate, cairn_core::FilterError> {
+    ) -> Result<VariantUpdate, cairn_core::FilterError> {
         super::filter::update_channel::<N, M, S>(&self.0, filter, input, apply, gate)
     }
 }

@@ -8,13 +8,13 @@ use rayon::prelude::*;
 use super::channel::Channel;
 use super::filter::{BASELINE, Filter, VARIANTS};
 use super::jacobian::{DEFAULT_TOLERANCE, JacobianCheck};
-use super::lanes::{Context, Drive, Lane, compare_states};
 use super::result::{
     ExternalResult, Reach, ReferenceResult, RunError, RunOptions, RunResult, SteadyResult,
     VariantResult,
 };
 use super::stream::{Record, ReferenceFigures, ReferenceStage};
 use super::system::System;
+use super::variants::{Context, Drive, VariantRun, compare_states};
 use super::world::{Source, World};
 use crate::engine::external::ExternalStream;
 use crate::engine::metrics;
@@ -51,12 +51,12 @@ fn drive<const N: usize, S: System<N>>(plan: &Plan, system: &S, mode: Mode, step
 /// Starts every variant; with re-centring, a variant that starts far out
 /// starts in its own frame (x0 - origin formed in f64, then rounded, as
 /// firmware would initialise it).
-fn start_lanes<const N: usize, S: System<N>>(
+fn start_variants<const N: usize, S: System<N>>(
     system: &S,
     drive: &Drive,
     x0: &SVector<f64, N>,
     p0: &SMatrix<f64, N, N>,
-) -> Vec<Lane<N>> {
+) -> Vec<VariantRun<N>> {
     let mut origin = SVector::<f64, N>::zeros();
     let mut recentres = 0;
     if let Some(d) = drive.recentre_m
@@ -70,7 +70,7 @@ fn start_lanes<const N: usize, S: System<N>>(
     let local = x0 - origin;
     VARIANTS
         .iter()
-        .map(|&v| Lane::new(v, Filter::start(v, &local, p0), origin, recentres))
+        .map(|&v| VariantRun::new(v, Filter::start(v, &local, p0), origin, recentres))
         .collect()
 }
 
@@ -78,7 +78,7 @@ fn start_lanes<const N: usize, S: System<N>>(
 /// the variants run block b, each variant on its own thread.
 fn stream<const N: usize, S: System<N>>(
     stage: &mut ReferenceStage<'_, N, S>,
-    lanes: &mut [Lane<N>],
+    runs: &mut [VariantRun<N>],
     cx: &Context<'_, N, S>,
 ) -> Result<(), RunError> {
     let baseline = VARIANTS.iter().position(|v| *v == BASELINE).unwrap_or(0);
@@ -90,14 +90,13 @@ fn stream<const N: usize, S: System<N>>(
         let (ahead, ()) = rayon::join(
             || stage.advance(&mut next, BLOCK),
             || {
-                lanes
-                    .par_iter_mut()
-                    .for_each(|lane| lane.run_block(cx, &current));
+                runs.par_iter_mut()
+                    .for_each(|run| run.run_block(cx, &current));
             },
         );
         ahead?;
         if cx.drive.compare_states {
-            compare_states(lanes, baseline, &current, angles);
+            compare_states(runs, baseline, &current, angles);
         }
         std::mem::swap(&mut current, &mut next);
     }
@@ -176,7 +175,7 @@ pub fn check<const N: usize, S: System<N>>(
         }
     };
     let drive = drive(plan, system, mode, steps);
-    let mut lanes = start_lanes(system, &drive, &x0, &p0);
+    let mut runs = start_variants(system, &drive, &x0, &p0);
 
     let world = World::new(
         system,
@@ -225,15 +224,15 @@ pub fn check<const N: usize, S: System<N>>(
         drive,
     };
     let _ = opts.progress;
-    stream(&mut stage, &mut lanes, &cx)?;
+    stream(&mut stage, &mut runs, &cx)?;
     let (jacobians, figures, reference) = stage.into_jacobians();
     let jacobians = (!system.is_linear()).then(|| jacobians.finish());
 
     // Steady state.
-    let (steady_result, steady_note) = solve_steady(steady, &mut lanes, &figures);
+    let (steady_result, steady_note) = solve_steady(steady, &mut runs, &figures);
 
     // Verdicts.
-    let variants = judge_all(plan, lanes, &figures, jacobians.as_ref());
+    let variants = judge_all(plan, runs, &figures, jacobians.as_ref());
     let flash = format!("{} {}", plan.flash.precision.name(), plan.flash.form);
     let flash_passes_horizon = variants.iter().any(|v| v.name == flash && v.verdict.passes);
     let cheapest_passing = variants
@@ -313,7 +312,7 @@ pub fn f32_spacing(x: f64) -> f64 {
 
 fn solve_steady<const N: usize>(
     steady: &Steady,
-    lanes: &mut [Lane<N>],
+    runs: &mut [VariantRun<N>],
     figures: &ReferenceFigures,
 ) -> (Option<SteadyResult>, Option<String>) {
     let mut note = steady.note.clone();
@@ -323,8 +322,8 @@ fn solve_steady<const N: usize>(
     match dare::solve(fl, hl, ql, rl) {
         Ok(s) => {
             let sn = s.posterior.norm();
-            for lane in lanes.iter_mut() {
-                let t = &mut lane.tracker;
+            for run in runs.iter_mut() {
+                let t = &mut run.tracker;
                 t.steady_distance = t
                     .last_posterior
                     .as_ref()
@@ -356,7 +355,7 @@ fn solve_steady<const N: usize>(
 
 fn judge_all<const N: usize>(
     plan: &Plan,
-    lanes: Vec<Lane<N>>,
+    runs: Vec<VariantRun<N>>,
     figures: &ReferenceFigures,
     jacobians: Option<&super::jacobian::JacobianReport>,
 ) -> Vec<VariantResult> {
@@ -378,12 +377,11 @@ fn judge_all<const N: usize>(
             },
         )
     });
-    lanes
-        .into_iter()
-        .map(|lane| {
-            let v = lane.variant;
+    runs.into_iter()
+        .map(|run| {
+            let v = run.variant;
             let innovation_rounding = figures.max_cond * v.precision.epsilon();
-            let mut verdict = judge(&lane.tracker, &plan.thresholds);
+            let mut verdict = judge(&run.tracker, &plan.thresholds);
             if let Some(line) = &jac_line {
                 verdict.passes = false;
                 verdict.reasons.push(line.clone());
@@ -394,14 +392,14 @@ fn judge_all<const N: usize>(
                 precision: v.precision,
                 form: v.form.name().to_string(),
                 cost_rank: v.cost_rank,
-                figures: lane.tracker,
+                figures: run.tracker,
                 innovation_rounding,
                 verdict,
-                recentres: lane.recentres,
-                origin: [lane.origin[0], if N > 1 { lane.origin[1] } else { 0.0 }],
-                gate_differences: lane.gate_differences,
-                first_gate_difference: lane.first_gate_difference,
-                max_nees: (lane.nees.1 > 0).then_some(lane.nees.0),
+                recentres: run.recentres,
+                origin: [run.origin[0], if N > 1 { run.origin[1] } else { 0.0 }],
+                gate_differences: run.gate_differences,
+                first_gate_difference: run.first_gate_difference,
+                max_nees: (run.nees.1 > 0).then_some(run.nees.0),
                 why,
             }
         })

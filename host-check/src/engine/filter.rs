@@ -203,7 +203,7 @@ pub enum UpdateInput<'a> {
 
 /// What one update did in a variant.
 #[derive(Debug, Clone)]
-pub struct LaneUpdate {
+pub struct VariantUpdate {
     /// The gain K = P H' S^-1 formed from the variant's prior in its own
     /// precision (the arithmetic of the core's covariance forms), or `None`
     /// when S could not be factored.
@@ -381,7 +381,7 @@ fn update_typed<
     input: UpdateInput<'_>,
     apply: bool,
     gate: Option<f64>,
-) -> Result<LaneUpdate, FilterError> {
+) -> Result<VariantUpdate, FilterError> {
     let gate_t = gate.map(T::of);
     let p = e.covariance_snapshot();
     match input {
@@ -415,7 +415,7 @@ fn update_typed<
             } else {
                 false
             };
-            Ok(LaneUpdate {
+            Ok(VariantUpdate {
                 gain: g,
                 pivot_ratio,
                 applied,
@@ -446,7 +446,7 @@ fn update_typed<
             } else {
                 false
             };
-            Ok(LaneUpdate {
+            Ok(VariantUpdate {
                 gain: g,
                 pivot_ratio,
                 applied,
@@ -464,6 +464,6 @@ pub(crate) fn update_channel<const N: usize, const M: usize, S: Sensor<N, M>>(
     input: UpdateInput<'_>,
     apply: bool,
     gate: Option<f64>,
-) -> Result<LaneUpdate, FilterError> {
+) -> Result<VariantUpdate, FilterError> {
     each!(filter, e, T => update_typed::<T, _, S, N, M>(sensor, e, input, apply, gate))
 }

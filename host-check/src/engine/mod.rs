@@ -13,7 +13,7 @@
 //! | [`world`]  | the steps: a seeded truth, or a log's rows              |
 //! | [`log`]    | the recorded-log reader (docs/log-format.md)            |
 //! | [`stream`] | the reference stage, block by block                     |
-//! | [`lanes`]  | the variants' stage                                     |
+//! | [`variants`] | the variants' stage                                   |
 //! | [`jacobian`] | each model's Jacobian against central differences     |
 //! | [`mod@check`] | the stages of one check, in order                       |
 //! | [`trials`] | Monte Carlo NEES/NIS runs on the same world             |
@@ -31,7 +31,6 @@ pub mod check;
 pub mod external;
 pub mod filter;
 pub mod jacobian;
-pub mod lanes;
 pub mod log;
 pub mod metrics;
 pub mod mission;
@@ -42,6 +41,7 @@ pub mod stream;
 pub(crate) mod synth;
 pub mod system;
 pub mod trials;
+pub mod variants;
 pub mod verdict;
 pub mod world;
 

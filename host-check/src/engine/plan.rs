@@ -9,7 +9,7 @@ use serde::Serialize;
 
 pub use crate::numeric::conversion::ConversionRecord;
 
-/// Smallest re-centring distance, m: the lanes move their origin in whole
+/// Smallest re-centring distance, m: the variants move their origin in whole
 /// metres, which f32 holds exactly up to 2^24 m, so the shift itself adds
 /// no rounding.
 pub const MIN_RECENTRE_M: f64 = 1.0;

@@ -48,7 +48,7 @@ pub struct VariantResult {
     pub innovation_rounding: f64,
     /// Pass or fail, with reasons.
     pub verdict: Verdict,
-    /// Times the lane moved its origin (end-to-end mode with re-centring).
+    /// Times the variant moved its origin (end-to-end mode with re-centring).
     pub recentres: u64,
     /// Gate decisions of this variant that differ from the reference's
     /// (every variant applies exactly what the reference applies, so that
@@ -61,7 +61,7 @@ pub struct VariantResult {
     pub max_nees: Option<f64>,
     /// Why it fails, in one line (`None` when it passes).
     pub why: Option<String>,
-    /// The lane's origin at the end, m (x, y; zero without re-centring).
+    /// The variant's origin at the end, m (x, y; zero without re-centring).
     pub origin: [f64; 2],
 }
 
@@ -134,7 +134,7 @@ pub struct RunResult {
     pub dt: f64,
     /// Mode used.
     pub mode: Mode,
-    /// The re-centring distance the lanes used, m (`None`: they kept the
+    /// The re-centring distance the variants used, m (`None`: they kept the
     /// spec's frame).
     pub recentre_m: Option<f64>,
     /// The reference.

@@ -181,7 +181,7 @@ pub fn run_trial<const N: usize, S: System<N>>(
         }
         start_recentres = 1;
     }
-    let mut lanes: Vec<Running<N>> = variants
+    let mut runs: Vec<Running<N>> = variants
         .iter()
         .map(|&v| {
             let mut trace = Trace {
@@ -221,8 +221,8 @@ pub fn run_trial<const N: usize, S: System<N>>(
         let Some(truth) = step.truth else {
             break;
         };
-        for lane in &mut lanes {
-            let Some(f) = lane.filter.as_mut() else {
+        for run in &mut runs {
+            let Some(f) = run.filter.as_mut() else {
                 continue;
             };
             let failed = (|| -> Result<(), FilterError> {
@@ -234,15 +234,15 @@ pub fn run_trial<const N: usize, S: System<N>>(
                             offset[i] = x[i].round();
                         }
                         f.shift_origin(&offset)?;
-                        lane.origin += offset;
-                        lane.trace.recentres += 1;
+                        run.origin += offset;
+                        run.trace.recentres += 1;
                     }
                 }
                 f.predict_own(&told, &step.input, step.dt)?;
                 for (c, z) in &step.measurements {
                     let ch = channels[*c];
                     let mut zl = z.clone();
-                    ch.to_frame(&mut zl, &lane.origin);
+                    ch.to_frame(&mut zl, &run.origin);
                     let gate = plan.channels[*c].gate;
                     // The filter's own gate decides, as in firmware.
                     let apply = match gate {
@@ -252,23 +252,22 @@ pub fn run_trial<const N: usize, S: System<N>>(
                             .unwrap_or(true),
                         None => true,
                     };
-                    let lu = ch.update(f, UpdateInput::Own { z: &zl }, apply, gate)?;
-                    lane.trace.nis[*c].push(lu.nis);
+                    let vu = ch.update(f, UpdateInput::Own { z: &zl }, apply, gate)?;
+                    run.trace.nis[*c].push(vu.nis);
                 }
                 Ok(())
             })();
             match failed {
                 Ok(()) => {
-                    lane.trace.nees[k - 1] = f
-                        .nees(&truth, &lane.origin, angles)
-                        .unwrap_or(f64::INFINITY);
+                    run.trace.nees[k - 1] =
+                        f.nees(&truth, &run.origin, angles).unwrap_or(f64::INFINITY);
                 }
                 Err(e) => {
-                    lane.trace.failure = Some((k, e));
-                    lane.filter = None;
+                    run.trace.failure = Some((k, e));
+                    run.filter = None;
                 }
             }
         }
     }
-    Ok(lanes.into_iter().map(|l| l.trace).collect())
+    Ok(runs.into_iter().map(|l| l.trace).collect())
 }

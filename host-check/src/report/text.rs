@@ -164,7 +164,7 @@ around the estimate, would decide. An undecided verdict is not a pass: exit 1.)"
                     |s| format!("after {}", duration_words(s))
                 )
             );
-            for l in &cg.lanes {
+            for l in &cg.variants {
                 let _ = writeln!(
                     o,
                     "  {:<18} {} steps; state differs from the f64 run by {} standard deviations{}{}",
@@ -191,7 +191,7 @@ around the estimate, would decide. An undecided verdict is not a pass: exit 1.)"
                         .map_or(String::new(), |r| format!("; REFUSED at {r}"))
                 );
             }
-            if let Some(n) = &cg.lanes_note {
+            if let Some(n) = &cg.variants_note {
                 let _ = writeln!(o, "  {n}");
             }
         }

@@ -41,15 +41,19 @@ pub struct ConstantGain {
     pub final_prior: Vec<Vec<f64>>,
     /// The implied posterior covariance at the last interval followed.
     pub final_posterior: Vec<Vec<f64>>,
-    /// The core's `SteadyGain` runs (f32 and f64), when its sizes are built.
-    pub lanes: Vec<GainLaneResult>,
-    /// Why the core's filter was not run, if it was not.
-    pub lanes_note: Option<String>,
+    /// The core's `SteadyGain` variants (f32 and f64), when its sizes are
+    /// built (JSON key `lanes`, kept for the report's readers).
+    #[serde(rename = "lanes")]
+    pub variants: Vec<GainVariantResult>,
+    /// Why the core's filter was not run, if it was not (JSON key
+    /// `lanes_note`).
+    #[serde(rename = "lanes_note")]
+    pub variants_note: Option<String>,
 }
 
 /// One run of the core's `SteadyGain`.
 #[derive(Debug, Clone, Serialize)]
-pub struct GainLaneResult {
+pub struct GainVariantResult {
     /// "f32 constant gain" or "f64 constant gain".
     pub name: String,
     /// Steps run.
@@ -184,13 +188,13 @@ pub fn transient(
         intervals: j,
         final_prior: rows(&prior_fix),
         final_posterior: rows(&p_fix),
-        lanes: Vec::new(),
-        lanes_note: None,
+        variants: Vec::new(),
+        variants_note: None,
     })
 }
 
 /// A constant-gain filter of the core behind run-time sizes.
-trait GainLane {
+trait GainVariant {
     fn predict(&mut self) -> Result<(), FilterError>;
     fn update(&mut self, z: &[f64]) -> Result<(), FilterError>;
     fn state(&self, out: &mut [f64]);
@@ -198,7 +202,7 @@ trait GainLane {
 
 struct CoreGain<T: Scalar, const N: usize, const M: usize>(SteadyGain<T, N, M>);
 
-impl<T: Scalar, const N: usize, const M: usize> GainLane for CoreGain<T, N, M> {
+impl<T: Scalar, const N: usize, const M: usize> GainVariant for CoreGain<T, N, M> {
     fn predict(&mut self) -> Result<(), FilterError> {
         self.0.predict()
     }
@@ -224,7 +228,7 @@ type GainInputs<'a> = (
 
 fn build<T: Scalar, const N: usize, const M: usize>(
     (x0, f, h, k, s): GainInputs<'_>,
-) -> Result<Box<dyn GainLane>, FilterError> {
+) -> Result<Box<dyn GainVariant>, FilterError> {
     let g = SteadyGain::<T, N, M>::try_new(
         SVector::from_fn(|i, _| T::of(x0[i])),
         SMatrix::from_fn(|i, j| T::of(f[(i, j)])),
@@ -235,7 +239,7 @@ fn build<T: Scalar, const N: usize, const M: usize>(
     Ok(Box::new(CoreGain(g)))
 }
 
-type Started = Result<Box<dyn GainLane>, FilterError>;
+type Started = Result<Box<dyn GainVariant>, FilterError>;
 type Built = Option<Started>;
 
 fn build_m<T: Scalar, const N: usize>(m: usize, inputs: GainInputs<'_>) -> Built {
@@ -248,9 +252,9 @@ fn build_m<T: Scalar, const N: usize>(m: usize, inputs: GainInputs<'_>) -> Built
     })
 }
 
-/// Builds a lane for n states (1 to 9) and m stacked measurement
+/// Builds a variant for n states (1 to 9) and m stacked measurement
 /// components (1 to 4); `None` outside those sizes.
-fn build_lane<T: Scalar>(n: usize, m: usize, inputs: GainInputs<'_>) -> Built {
+fn build_variant<T: Scalar>(n: usize, m: usize, inputs: GainInputs<'_>) -> Built {
     match n {
         1 => build_m::<T, 1>(m, inputs),
         2 => build_m::<T, 2>(m, inputs),
@@ -290,22 +294,22 @@ pub struct GainSchedule<'a> {
 /// # Errors
 /// A note when the sizes have no instantiation (n above 9 or more than 4
 /// measurement components).
-pub fn run_lanes(
+pub fn run_variants(
     sched: &GainSchedule<'_>,
     lifted: &Lifted,
     gain: &DMatrix<f64>,
     steady_prior: &DMatrix<f64>,
     steady_posterior: &DMatrix<f64>,
-) -> Result<Vec<GainLaneResult>, String> {
+) -> Result<Vec<GainVariantResult>, String> {
     let (_, h, _, r, every) = lifted;
     let n = sched.f.nrows();
     let m = h.nrows();
     let s = h * steady_prior * h.transpose() + r;
     let inputs: GainInputs<'_> = (sched.x0, sched.f, h, gain, &s);
-    let mut lanes: Vec<(String, Started)> = Vec::new();
+    let mut runs: Vec<(String, Started)> = Vec::new();
     for (name, built) in [
-        ("f32 constant gain", build_lane::<f32>(n, m, inputs)),
-        ("f64 constant gain", build_lane::<f64>(n, m, inputs)),
+        ("f32 constant gain", build_variant::<f32>(n, m, inputs)),
+        ("f64 constant gain", build_variant::<f64>(n, m, inputs)),
     ] {
         let Some(b) = built else {
             return Err(format!(
@@ -313,12 +317,12 @@ pub fn run_lanes(
                  measurement components (this spec has {n} and {m})"
             ));
         };
-        lanes.push((name.to_string(), b));
+        runs.push((name.to_string(), b));
     }
-    let mut refused: Vec<Option<String>> = vec![None; lanes.len()];
-    let mut max_sigma = vec![0.0_f64; lanes.len()];
+    let mut refused: Vec<Option<String>> = vec![None; runs.len()];
+    let mut max_sigma = vec![0.0_f64; runs.len()];
     let buckets = crate::engine::metrics::BUCKETS;
-    let mut series = vec![vec![f64::NAN; buckets]; lanes.len()];
+    let mut series = vec![vec![f64::NAN; buckets]; runs.len()];
     let dt_step = 1.0 / sched.step_hz;
     let sd: Vec<f64> = (0..n).map(|i| steady_posterior[(i, i)].sqrt()).collect();
     let mut noise = Noise::new(sched.seed ^ 0x5EED_C0A5_7A27_0001);
@@ -338,25 +342,25 @@ pub fn run_lanes(
         } else {
             Vec::new()
         };
-        for (i, (_, lane)) in lanes.iter_mut().enumerate() {
-            let Ok(lane) = lane else { continue };
+        for (i, (_, run)) in runs.iter_mut().enumerate() {
+            let Ok(run) = run else { continue };
             if refused[i].is_some() {
                 continue;
             }
-            let res = lane
+            let res = run
                 .predict()
-                .and_then(|()| if measure { lane.update(&z) } else { Ok(()) });
+                .and_then(|()| if measure { run.update(&z) } else { Ok(()) });
             if let Err(e) = res {
                 refused[i] = Some(format!("step {k}: {e}"));
             }
         }
-        // The f64 run is the last lane.
-        if let Some((_, Ok(base))) = lanes.last() {
+        // The f64 run is the last variant.
+        if let Some((_, Ok(base))) = runs.last() {
             base.state(&mut x_ref);
         }
-        for (i, (_, lane)) in lanes.iter().enumerate() {
-            if let Ok(lane) = lane {
-                lane.state(&mut x);
+        for (i, (_, run)) in runs.iter().enumerate() {
+            if let Ok(run) = run {
+                run.state(&mut x);
                 let mut step = 0.0_f64;
                 for j in 0..n {
                     if sd[j] > 0.0 {
@@ -371,13 +375,13 @@ pub fn run_lanes(
             }
         }
     }
-    Ok(lanes
+    Ok(runs
         .into_iter()
         .enumerate()
-        .map(|(i, (name, lane))| GainLaneResult {
+        .map(|(i, (name, run))| GainVariantResult {
             name,
             steps: sched.steps,
-            refused: match lane {
+            refused: match run {
                 Ok(_) => refused[i].clone(),
                 Err(e) => Some(format!("start: {e}")),
             },

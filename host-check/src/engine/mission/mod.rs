@@ -12,7 +12,7 @@ use crate::engine::plan::{ChannelKind, ModelPlan, Plan};
 use crate::engine::result::{RunResult, SteadyResult};
 use crate::engine::steady::Lifted;
 pub use fit::Trend;
-pub use gain::{ConstantGain, GainLaneResult};
+pub use gain::{ConstantGain, GainVariantResult};
 pub use types::*;
 
 /// The reference counts as steady when its last posterior is this close
@@ -704,16 +704,16 @@ fn constant_gain_passes(
     let Some(cg) = cg else {
         return (false, "not offered for this schedule".into(), None);
     };
-    let Some(lane) = cg.lanes.iter().find(|l| l.name == name) else {
+    let Some(variant) = cg.variants.iter().find(|l| l.name == name) else {
         return (
             false,
-            cg.lanes_note
+            cg.variants_note
                 .clone()
                 .unwrap_or_else(|| "the core's filter was not run".into()),
             None,
         );
     };
-    if let Some(r) = &lane.refused {
+    if let Some(r) = &variant.refused {
         return (false, format!("refused at {r}"), None);
     }
     if cg.closed_loop_radius >= 1.0 {
@@ -737,23 +737,23 @@ fn constant_gain_passes(
         );
     }
     let sigma = plan.thresholds.max_state_difference_sigma;
-    if lane.max_state_difference_sigma > sigma {
+    if variant.max_state_difference_sigma > sigma {
         return (
             false,
             format!(
                 "its state differs from the f64 constant-gain run by {:.2} standard deviations > {sigma}",
-                lane.max_state_difference_sigma
+                variant.max_state_difference_sigma
             ),
             None,
         );
     }
-    if lane.outlook == Some(Outlook::Fails) {
+    if variant.outlook == Some(Outlook::Fails) {
         return (
             false,
             format!(
                 "its state is projected to differ from the f64 constant-gain run by more than \
                  {sigma} standard deviations {}",
-                lane.crossing_s.filter(|t| *t <= mission_s).map_or_else(
+                variant.crossing_s.filter(|t| *t <= mission_s).map_or_else(
                     || "within the mission".to_string(),
                     |t| format!("after {}", duration_words(t))
                 )
@@ -761,15 +761,16 @@ fn constant_gain_passes(
             None,
         );
     }
-    if lane.outlook == Some(Outlook::Undecided) {
+    if variant.outlook == Some(Outlook::Undecided) {
         return (
             false,
             format!(
                 "undecided: run at least {} (its state difference from the f64 constant-gain run)",
-                lane.run_at_least_s
+                variant
+                    .run_at_least_s
                     .map_or_else(|| "longer".to_string(), duration_words)
             ),
-            lane.run_at_least_s,
+            variant.run_at_least_s,
         );
     }
     (true, String::new(), None)
@@ -818,9 +819,9 @@ fn constant_gain(
     let mission_steps = (plan.thresholds.mission_seconds.unwrap_or(0.0) * plan.step_hz)
         .max(run.steps as f64)
         .round();
-    match gain::run_lanes(&sched, lifted, &k, &prior, &posterior) {
-        Ok(mut lanes) => {
-            for l in &mut lanes {
+    match gain::run_variants(&sched, lifted, &k, &prior, &posterior) {
+        Ok(mut runs) => {
+            for l in &mut runs {
                 let steps: Vec<f64> = l
                     .series_time
                     .iter()
@@ -841,9 +842,9 @@ fn constant_gain(
                 l.run_at_least_s = p.run_at_least.map(|k| k / plan.step_hz);
                 l.trend = p.trend;
             }
-            cg.lanes = lanes;
+            cg.variants = runs;
         }
-        Err(e) => cg.lanes_note = Some(e),
+        Err(e) => cg.variants_note = Some(e),
     }
     (Some(cg), None)
 }

@@ -39,7 +39,7 @@ pub struct Context<'a, const N: usize, S: System<N>> {
 }
 
 /// One variant being run.
-pub struct Lane<const N: usize> {
+pub struct VariantRun<const N: usize> {
     /// Which.
     pub variant: Variant,
     /// The filter (`None` once it stopped).
@@ -61,8 +61,8 @@ pub struct Lane<const N: usize> {
     p: DMatrix<f64>,
 }
 
-impl<const N: usize> Lane<N> {
-    /// A lane; a filter the core refused to start is recorded as a failure
+impl<const N: usize> VariantRun<N> {
+    /// A variant's run; a filter the core refused to start is recorded as a failure
     /// at step 0.
     #[must_use]
     pub fn new(
@@ -179,14 +179,14 @@ impl<const N: usize> Lane<N> {
                 }
             };
             match ch.update(f, input, u.applied, plan.gate) {
-                Ok(lu) => {
-                    updated |= lu.applied;
-                    if lu.applied {
+                Ok(vu) => {
+                    updated |= vu.applied;
+                    if vu.applied {
                         self.tracker.updates_applied += 1;
                     } else {
                         self.tracker.updates_gated += 1;
                     }
-                    if let Some(own) = lu.own_decision
+                    if let Some(own) = vu.own_decision
                         && own != u.applied
                     {
                         self.gate_differences += 1;
@@ -194,8 +194,8 @@ impl<const N: usize> Lane<N> {
                     }
                     if u.applied {
                         self.tracker.min_innovation_pivot_ratio =
-                            self.tracker.min_innovation_pivot_ratio.min(lu.pivot_ratio);
-                        if let (Some(g), Some(rg)) = (&lu.gain, &u.gain) {
+                            self.tracker.min_innovation_pivot_ratio.min(vu.pivot_ratio);
+                        if let (Some(g), Some(rg)) = (&vu.gain, &u.gain) {
                             self.tracker.gain(k, g, rg);
                         }
                     }
@@ -207,7 +207,7 @@ impl<const N: usize> Lane<N> {
             }
         }
         // Figures: a refused operation left P as it was; it is measured at
-        // the step of the refusal, and the lane stops there.
+        // the step of the refusal, and the run stops there.
         let Some(f) = self.filter.as_ref() else {
             return;
         };
@@ -258,23 +258,23 @@ pub fn recentre_offset(x: f64, y: f64, distance: f64) -> Option<[f64; 2]> {
     (x.abs() > distance || y.abs() > distance).then(|| [x.round(), y.round()])
 }
 
-/// Compares every lane's states over the block with the baseline's.
+/// Compares every run's states over the block with the baseline's.
 pub fn compare_states<const N: usize>(
-    lanes: &mut [Lane<N>],
+    runs: &mut [VariantRun<N>],
     baseline: usize,
     block: &[Record<N>],
     angles: &[usize],
 ) {
-    let base: Vec<SVector<f64, N>> = lanes[baseline].states.clone();
-    for lane in lanes.iter_mut() {
+    let base: Vec<SVector<f64, N>> = runs[baseline].states.clone();
+    for run in runs.iter_mut() {
         for (i, rec) in block.iter().enumerate() {
-            let (Some(b), Some(x)) = (base.get(i), lane.states.get(i)) else {
+            let (Some(b), Some(x)) = (base.get(i), run.states.get(i)) else {
                 continue;
             };
             if b[0].is_nan() || x[0].is_nan() {
                 continue;
             }
-            lane.tracker.states_compared = true;
+            run.tracker.states_compared = true;
             let mut step_sigma = 0.0_f64;
             for s in 0..N {
                 let mut d = x[s] - b[s];
@@ -282,7 +282,7 @@ pub fn compare_states<const N: usize>(
                     d = cairn_core::wrap_angle(d);
                 }
                 let d = d.abs();
-                let t = &mut lane.tracker;
+                let t = &mut run.tracker;
                 if d > t.max_state_difference[s] || d.is_nan() {
                     t.max_state_difference[s] = if d.is_nan() { f64::INFINITY } else { d };
                 }
@@ -294,7 +294,7 @@ pub fn compare_states<const N: usize>(
                     step_sigma = f64::NAN;
                 }
             }
-            lane.tracker.state_difference(rec.bucket, step_sigma);
+            run.tracker.state_difference(rec.bucket, step_sigma);
         }
     }
 }
