@@ -4,7 +4,7 @@
 
 use bramble_tug::{HeadingFix, ImuSample, RadioFix, STATES, TugMotion, WheelSpeed};
 use cairn_core::nalgebra::{SMatrix, SVector};
-use cairn_core::{ProcessModel, Scalar};
+use cairn_core::{Pattern, ProcessModel, Scalar};
 use cairn_host_check::engine::{Sensor, System};
 use cairn_host_check::scenario::Scenario;
 use cairn_host_check::spec::Mode;
@@ -191,6 +191,68 @@ fn a_jacobian_with_a_sign_error_is_caught_with_its_entry() {
     // The one-line reason names the entry: d x / d heading (central
     // differences of the model's own transition: common practice).
     assert!(why.contains("d x / d heading"), "{why}");
+}
+
+/// The tug's motion declaring a structural pattern its Jacobian breaks: the
+/// identity (every coupling declared zero, d x / d heading among them).
+struct Misdeclared<T>(TugMotion<T>);
+
+impl<T: Scalar> ProcessModel<T, STATES> for Misdeclared<T> {
+    type Input = ImuSample<T>;
+    const JACOBIAN_PATTERN: Pattern<STATES, STATES> = Pattern::IDENTITY;
+    fn transition(&self, x: &SVector<T, STATES>, u: &ImuSample<T>, dt: T) -> SVector<T, STATES> {
+        self.0.transition(x, u, dt)
+    }
+    fn jacobian(
+        &self,
+        x: &SVector<T, STATES>,
+        u: &ImuSample<T>,
+        dt: T,
+    ) -> SMatrix<T, STATES, STATES> {
+        self.0.jacobian(x, u, dt)
+    }
+    fn noise(&self, x: &SVector<T, STATES>, u: &ImuSample<T>, dt: T) -> SMatrix<T, STATES, STATES> {
+        self.0.noise(x, u, dt)
+    }
+    fn normalize(&self, x: &mut SVector<T, STATES>) {
+        self.0.normalize(x);
+    }
+}
+
+struct MisdeclaredTug;
+
+impl System<STATES> for MisdeclaredTug {
+    type Process<T: Scalar> = Misdeclared<T>;
+    fn process<T: Scalar>(&self) -> Misdeclared<T> {
+        Misdeclared(Tug.process::<T>())
+    }
+    fn input_len(&self) -> usize {
+        2
+    }
+    fn input<T: Scalar>(&self, v: &[f64]) -> ImuSample<T> {
+        Tug.input::<T>(v)
+    }
+    fn angle_states(&self) -> &[usize] {
+        &[bramble_tug::HEADING]
+    }
+}
+
+#[test]
+fn a_pattern_the_jacobian_breaks_fails_the_check_naming_the_entry() {
+    let report = scenario(MisdeclaredTug)
+        .horizon_s(30.0)
+        .check()
+        .expect("runs");
+    assert!(!report.passes());
+    assert_eq!(report.exit_code(), 1);
+    let why = report
+        .variant("f32 joseph")
+        .and_then(|v| v.why.clone())
+        .unwrap_or_default();
+    assert!(
+        why.contains("F entry (") && why.contains("structurally zero"),
+        "{why}"
+    );
 }
 
 #[test]

@@ -1,8 +1,8 @@
 //! A measurement channel with its size erased, so channels of different
 //! sizes sit in one list: the typed [`Sensor`] behind a small trait object.
 
-use cairn_core::MeasurementModel;
-use nalgebra::{DMatrix, SVector};
+use cairn_core::{Entry, MeasurementModel};
+use nalgebra::{DMatrix, SMatrix, SVector};
 
 use super::filter::{Filter, UpdateInput, VariantUpdate};
 use super::system::Sensor;
@@ -26,6 +26,11 @@ pub trait Channel<const N: usize>: Sync {
 
     /// h(x), H and R at `x`, in `f64`.
     fn evaluate(&self, x: &SVector<f64, N>) -> Evaluation;
+
+    /// The first entry of `jacobian` (this channel's H, as `evaluate` gave
+    /// it) that breaks the model's declared structural pattern
+    /// (`MeasurementModel::JACOBIAN_PATTERN`), with what the pattern says.
+    fn pattern_break(&self, jacobian: &DMatrix<f64>) -> Option<(usize, usize, Entry)>;
 
     /// The innovation z - h(x) by the model's own residual rule, in `f64`.
     fn residual(&self, z: &[f64], predicted: &[f64]) -> Vec<f64>;
@@ -71,6 +76,14 @@ impl<const N: usize, const M: usize, S: Sensor<N, M>> Channel<N> for SensorChann
             jacobian: DMatrix::from_fn(M, N, |i, j| jac[(i, j)]),
             noise: DMatrix::from_fn(M, M, |i, j| r[(i, j)]),
         }
+    }
+
+    fn pattern_break(&self, jacobian: &DMatrix<f64>) -> Option<(usize, usize, Entry)> {
+        let pattern = <S::Model<f64> as MeasurementModel<f64, N, M>>::JACOBIAN_PATTERN;
+        let h = SMatrix::<f64, M, N>::from_fn(|i, j| jacobian[(i, j)]);
+        pattern
+            .first_violation(&h)
+            .map(|(i, j)| (i, j, pattern.entry(i, j)))
     }
 
     fn residual(&self, z: &[f64], predicted: &[f64]) -> Vec<f64> {

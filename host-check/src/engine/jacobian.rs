@@ -1,7 +1,7 @@
 //! The Jacobian check: each model's own Jacobian against central
 //! differences of its own f and h, in f64, along the reference trajectory.
 
-use cairn_core::{ProcessModel, wrap_angle};
+use cairn_core::{Entry, ProcessModel, wrap_angle};
 use nalgebra::{DMatrix, SVector};
 use serde::Serialize;
 
@@ -43,6 +43,28 @@ pub struct ModelJacobian {
     pub worst: Option<Worst>,
 }
 
+/// An entry where a model's matrix breaks the structural pattern the model
+/// declares (a declared zero that is not zero, a declared one that is not
+/// one): the core's patterned kernels never read it, so the filter would
+/// run a different model than the one written.
+#[derive(Debug, Clone, Serialize)]
+pub struct PatternBreak {
+    /// "process" or the channel's name.
+    pub model: String,
+    /// "F" (the process Jacobian), "G" (its noise sources) or "H".
+    pub matrix: &'static str,
+    /// Row of the entry.
+    pub row: usize,
+    /// Column of the entry.
+    pub column: usize,
+    /// "zero" or "one": what the pattern declares.
+    pub declared: &'static str,
+    /// What the model's matrix holds there.
+    pub value: f64,
+    /// The step it was seen at.
+    pub step: u64,
+}
+
 /// The whole comparison.
 #[derive(Debug, Clone, Serialize)]
 pub struct JacobianReport {
@@ -50,8 +72,20 @@ pub struct JacobianReport {
     pub tolerance: f64,
     /// The process model first, then each channel.
     pub models: Vec<ModelJacobian>,
-    /// `true` when every entry is within the tolerance.
+    /// The first break of each model's declared patterns, if any.
+    pub pattern_breaks: Vec<PatternBreak>,
+    /// `true` when every entry is within the tolerance and every matrix
+    /// fits its declared pattern.
     pub passes: bool,
+}
+
+/// The pattern's word for a declared entry.
+fn declared(entry: Entry) -> &'static str {
+    match entry {
+        Entry::Zero => "zero",
+        Entry::One => "one",
+        Entry::Free => "free",
+    }
 }
 
 impl JacobianReport {
@@ -63,6 +97,17 @@ impl JacobianReport {
         row_names: &dyn Fn(&str, usize) -> String,
         col_names: &dyn Fn(usize) -> String,
     ) -> Option<String> {
+        if let Some(b) = self.pattern_breaks.first() {
+            let what = if b.model == "process" {
+                "process model".to_string()
+            } else {
+                format!("`{}` measurement", b.model)
+            };
+            return Some(format!(
+                "the {what}'s {} entry ({}, {}) is {:.6e} at step {} but its pattern declares it structurally {}: the patterned kernels would not read it",
+                b.matrix, b.row, b.column, b.value, b.step, b.declared
+            ));
+        }
         let (m, w) = self
             .models
             .iter()
@@ -152,6 +197,7 @@ fn step_for(x: f64) -> f64 {
 
 /// Gathers the comparison over a run.
 pub struct JacobianCheck {
+    pattern_breaks: Vec<PatternBreak>,
     process: Acc,
     channels: Vec<Acc>,
     due: Vec<bool>,
@@ -164,6 +210,7 @@ impl JacobianCheck {
     #[must_use]
     pub fn new<const N: usize>(steps: u64, channels: &[(String, usize)], tolerance: f64) -> Self {
         Self {
+            pattern_breaks: Vec::new(),
             process: Acc::new("process".into(), N, N),
             channels: channels
                 .iter()
@@ -211,6 +258,29 @@ impl JacobianCheck {
         }
         let a = DMatrix::from_fn(N, N, |i, j| analytic[(i, j)]);
         self.process.add(k, &a, &numeric);
+        if !self.pattern_breaks.iter().any(|b| b.model == "process") {
+            let f_pattern = <S::Process<f64> as ProcessModel<f64, N>>::JACOBIAN_PATTERN;
+            let g_pattern = <S::Process<f64> as ProcessModel<f64, N>>::SOURCES_PATTERN;
+            let f_break = f_pattern
+                .first_violation(&analytic)
+                .map(|(i, j)| ("F", i, j, f_pattern.entry(i, j), analytic[(i, j)]));
+            let g_break = || {
+                let (g, _) = model.noise_sources(x, &u, dt)?;
+                let (i, j) = g_pattern.first_violation(&g)?;
+                Some(("G", i, j, g_pattern.entry(i, j), g[(i, j)]))
+            };
+            if let Some((matrix, row, column, entry, value)) = f_break.or_else(g_break) {
+                self.pattern_breaks.push(PatternBreak {
+                    model: "process".into(),
+                    matrix,
+                    row,
+                    column,
+                    declared: declared(entry),
+                    value,
+                    step: k,
+                });
+            }
+        }
     }
 
     /// Compares channel `c`'s model at `x` if it is due.
@@ -241,6 +311,20 @@ impl JacobianCheck {
             }
         }
         self.channels[c].add(k, &ev.jacobian, &numeric);
+        let name = &self.channels[c].name;
+        if !self.pattern_breaks.iter().any(|b| &b.model == name)
+            && let Some((row, column, entry)) = channel.pattern_break(&ev.jacobian)
+        {
+            self.pattern_breaks.push(PatternBreak {
+                model: name.clone(),
+                matrix: "H",
+                row,
+                column,
+                declared: declared(entry),
+                value: ev.jacobian[(row, column)],
+                step: k,
+            });
+        }
     }
 
     /// The report.
@@ -249,12 +333,14 @@ impl JacobianCheck {
         let tolerance = self.tolerance;
         let mut models = vec![self.process.finish()];
         models.extend(self.channels.into_iter().map(Acc::finish));
-        let passes = models
-            .iter()
-            .all(|m| m.worst.as_ref().is_none_or(|w| w.mismatch <= tolerance));
+        let passes = self.pattern_breaks.is_empty()
+            && models
+                .iter()
+                .all(|m| m.worst.as_ref().is_none_or(|w| w.mismatch <= tolerance));
         JacobianReport {
             tolerance,
             models,
+            pattern_breaks: self.pattern_breaks,
             passes,
         }
     }
