@@ -322,12 +322,17 @@ fn patterned_equals_dense<T: Scalar>(
         same(&patterned, &dense, k);
         if let Some((p, v, y)) = s.fix {
             let y = SVector::<T, 1>::new(of(y));
-            patterned.update_with(&pos, &p.map(of), None).unwrap();
-            dense.update_with(&Dense(pos), &p.map(of), None).unwrap();
-            patterned.update_with(&vel, &v.map(of), None).unwrap();
-            dense.update_with(&Dense(vel), &v.map(of), None).unwrap();
-            patterned.update_with(&yaw, &y, None).unwrap();
-            dense.update_with(&Dense(yaw), &y, None).unwrap();
+            let outcomes = [
+                patterned.update_with(&pos, &p.map(of), None),
+                dense.update_with(&Dense(pos), &p.map(of), None),
+                patterned.update_with(&vel, &v.map(of), None),
+                dense.update_with(&Dense(vel), &v.map(of), None),
+                patterned.update_with(&yaw, &y, None),
+                dense.update_with(&Dense(yaw), &y, None),
+            ];
+            for o in outcomes {
+                assert!(matches!(o, Ok(Outcome::Applied { .. })), "step {k}");
+            }
             same(&patterned, &dense, k);
         }
     }
