@@ -15,6 +15,17 @@ use crate::kernel::neg_zero;
 use crate::pattern::Pattern;
 use crate::scalar::Scalar;
 
+/// Column `j` of `m` as a slice (contiguous: nalgebra stores columns
+/// whole), so the whole-column updates over it run as plain slice loops
+/// that a host's vector unit takes.
+#[inline(always)]
+fn column_of<T: Scalar, const R: usize, const C: usize>(m: &SMatrix<T, R, C>, j: usize) -> &[T] {
+    let all = m.as_slice();
+    let start = (j * R).min(all.len());
+    let end = (start + R).min(all.len());
+    &all[start..end]
+}
+
 /// `factor`'s product with an entry: the entry itself when it is a
 /// structural one, else `factor * entry`.
 #[inline(always)]
@@ -75,14 +86,14 @@ pub(crate) fn propagate<T: Scalar, const N: usize>(
             #[inline(always)]
             |k, one| {
                 // P[k,:] is P's column k (P is symmetric).
-                let pk = p.column(k);
+                let pk = column_of(p, k);
                 if one {
-                    for (acc, &v) in row.iter_mut().zip(pk.iter()) {
+                    for (acc, &v) in row.iter_mut().zip(pk) {
                         *acc += v;
                     }
                 } else {
                     let fik = f[(i, k)];
-                    for (acc, &v) in row.iter_mut().zip(pk.iter()) {
+                    for (acc, &v) in row.iter_mut().zip(pk) {
                         *acc += v * fik;
                     }
                 }
@@ -99,14 +110,14 @@ pub(crate) fn propagate<T: Scalar, const N: usize>(
             j,
             #[inline(always)]
             |e, one| {
-                let ce = c.column(e);
+                let ce = column_of(&c, e);
                 if one {
-                    for (acc, &v) in column.iter_mut().zip(ce.iter()) {
+                    for (acc, &v) in column.iter_mut().zip(ce) {
                         *acc += v;
                     }
                 } else {
                     let fje = f[(j, e)];
-                    for (acc, &v) in column.iter_mut().zip(ce.iter()) {
+                    for (acc, &v) in column.iter_mut().zip(ce) {
                         *acc += v * fje;
                     }
                 }
@@ -185,14 +196,14 @@ pub(crate) fn innovation<T: Scalar, const N: usize, const M: usize>(
             c,
             #[inline(always)]
             |e, one| {
-                let pe = p.column(e);
+                let pe = column_of(p, e);
                 if one {
-                    for (acc, &v) in column.iter_mut().zip(pe.iter()) {
+                    for (acc, &v) in column.iter_mut().zip(pe) {
                         *acc += v;
                     }
                 } else {
                     let hce = h[(c, e)];
-                    for (acc, &v) in column.iter_mut().zip(pe.iter()) {
+                    for (acc, &v) in column.iter_mut().zip(pe) {
                         *acc += v * hce;
                     }
                 }
@@ -262,14 +273,14 @@ pub(crate) fn joseph<T: Scalar, const N: usize, const M: usize>(
             c,
             #[inline(always)]
             |e, one| {
-                let we = w.column(e);
+                let we = column_of(w, e);
                 if one {
-                    for (acc, &v) in column.iter_mut().zip(we.iter()) {
+                    for (acc, &v) in column.iter_mut().zip(we) {
                         *acc -= v;
                     }
                 } else {
                     let hce = h[(c, e)];
-                    for (acc, &v) in column.iter_mut().zip(we.iter()) {
+                    for (acc, &v) in column.iter_mut().zip(we) {
                         *acc -= v * hce;
                     }
                 }
