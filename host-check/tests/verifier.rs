@@ -780,25 +780,25 @@ fn mutated_specs_never_panic() {
     }
 }
 
-/// Compares `text` with the golden file `name`; with `CAIRN_BLESS=1` in the
+/// Compares `text` with the golden file `name`; with `CAIRN_UPDATE_GOLDEN=1` in the
 /// environment, rewrites the golden file instead (a deliberate change).
 fn golden(name: &str, text: &str) {
     let path = Path::new(env!("CARGO_MANIFEST_DIR"))
         .join("tests/golden")
         .join(name);
-    if std::env::var_os("CAIRN_BLESS").is_some() {
+    if std::env::var_os("CAIRN_UPDATE_GOLDEN").is_some() {
         std::fs::write(&path, text).unwrap();
         return;
     }
     let want = std::fs::read_to_string(&path).unwrap_or_else(|_| {
         panic!(
-            "missing {}; run with CAIRN_BLESS=1 to create it",
+            "missing {}; run with CAIRN_UPDATE_GOLDEN=1 to create it",
             path.display()
         )
     });
     assert_eq!(
         text, want,
-        "{name} changed; rerun with CAIRN_BLESS=1 if that was meant"
+        "{name} changed; rerun with CAIRN_UPDATE_GOLDEN=1 if that was meant"
     );
 }
 
@@ -821,7 +821,7 @@ fn dyer_mcreynolds_report_matches_its_golden_file() {
     // The whole terminal report of a one-step published example: layout,
     // verdicts and the f32 figures (which depend only on IEEE arithmetic and
     // the core's operation order). Regenerate deliberately after a change
-    // to either with CAIRN_BLESS=1.
+    // to either with CAIRN_UPDATE_GOLDEN=1.
     let spec = specs().join("dyer-mcreynolds-1e-4.toml");
     let out = Command::new(env!("CARGO_BIN_EXE_cairn"))
         .current_dir(Path::new(env!("CARGO_MANIFEST_DIR")))
