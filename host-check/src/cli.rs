@@ -420,10 +420,15 @@ fn check(
     }
     if out.quiet {
         output::print(&format!(
-            "{}: flash {} {}; cheapest passing: {}; for the mission: {}\n",
+            "{}: spec's choice {} {} (exit {}); cheapest passing the run: {}; recommended for the mission: {}\n",
             plan.title,
             result.flash,
             if result.flash_passes { "PASS" } else { "FAIL" },
+            if result.flash_passes {
+                EXIT_PASS
+            } else {
+                EXIT_FAIL
+            },
             result.cheapest_passing.as_deref().unwrap_or("none"),
             result
                 .mission

@@ -206,13 +206,42 @@ fn flashing_a_passing_form_exits_zero() {
     let path = scratch("dm-ud.toml");
     std::fs::write(
         &path,
-        format!("{text}\n[flash]\nscalar = \"f32\"\nform = \"u-d\"\n"),
+        format!("{text}\n[flash]\nprecision = \"f32\"\nform = \"u-d\"\n"),
     )
     .unwrap();
     let (code, r) = check_json(&path, "dm-ud", &[]);
     assert_eq!(code, 0);
     assert_eq!(r["run"]["flash"], "f32 u-d");
     assert_eq!(r["run"]["flash_passes"], true);
+}
+
+#[test]
+fn the_old_flash_key_is_accepted_with_a_note() {
+    // `[flash] scalar` is the old name of `precision`: read the same, with a
+    // note on standard error naming the new key; both at once are refused.
+    let text = std::fs::read_to_string(specs().join("dyer-mcreynolds-1e-4.toml")).unwrap();
+    let old = scratch("dm-old-key.toml");
+    std::fs::write(
+        &old,
+        format!("{text}\n[flash]\nscalar = \"f32\"\nform = \"u-d\"\n"),
+    )
+    .unwrap();
+    let out = cairn(&["check", old.to_str().unwrap(), "--quiet"]);
+    assert_eq!(out.status.code(), Some(0));
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(
+        err.contains("`flash.scalar` is deprecated, write `flash.precision`"),
+        "{err}"
+    );
+    let both = scratch("dm-both-keys.toml");
+    std::fs::write(
+        &both,
+        format!("{text}\n[flash]\nprecision = \"f32\"\nscalar = \"f32\"\n"),
+    )
+    .unwrap();
+    let out = cairn(&["check", both.to_str().unwrap(), "--quiet"]);
+    assert_eq!(out.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&out.stderr).contains("flash.scalar"));
 }
 
 #[test]
@@ -917,7 +946,7 @@ fn recentring_brings_f32_positions_far_from_the_origin_back_onto_the_f64_run() {
     assert_eq!(out.status.code(), Some(0));
     let text = String::from_utf8_lossy(&out.stdout);
     assert!(text.contains("when |x| or |y| passes 10 m"), "{text}");
-    assert!(text.contains("times re-centred"), "{text}");
+    assert!(text.contains("origin shifts"), "{text}");
     let on: Value = serde_json::from_str(&std::fs::read_to_string(&json).unwrap()).unwrap();
     assert_eq!(num(&on["run"]["recentre_m"]), 10.0);
     let reference = &on["run"]["reference"]["final_state"];

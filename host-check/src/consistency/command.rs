@@ -45,7 +45,7 @@ pub struct TrialsArgs {
     pub confidence: f64,
     /// Run only this variant, e.g. f32-joseph, f64-conventional, f32-u-d
     /// (repeatable; all six by default).
-    #[arg(long = "variant", value_name = "SCALAR-FORM")]
+    #[arg(long = "variant", value_name = "PRECISION-FORM")]
     pub variants: Vec<String>,
     /// Write the whole report (with decimated NEES/NIS series) as JSON.
     #[arg(long, value_name = "PATH")]
@@ -100,7 +100,7 @@ pub fn execute(a: &TrialsArgs) -> Result<u8, Failure> {
     for v in &a.variants {
         let parsed = parse_variant(v).ok_or_else(|| {
             bad(format!(
-                "--variant `{v}`: write SCALAR-FORM with SCALAR f32 or f64 and FORM joseph, conventional or u-d"
+                "--variant `{v}`: write PRECISION-FORM with PRECISION f32 or f64 and FORM joseph, conventional or u-d"
             ))
         })?;
         if !variants.contains(&parsed) {

@@ -232,7 +232,7 @@ pub struct Thresholds {
     pub max_state_difference_sigma: f64,
     /// The mission the thresholds must hold for, s (`None`: the horizon).
     pub mission_seconds: Option<f64>,
-    /// Largest accepted relative excess of the constant-gain filter's
+    /// Largest accepted relative excess of the steady-gain filter's
     /// covariance over the optimal one during its transient (`None`: the
     /// largest relative covariance error applies).
     pub max_transient_excess: Option<f64>,

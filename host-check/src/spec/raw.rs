@@ -225,7 +225,7 @@ pub struct RawVerdict {
     pub max_steady_distance: Option<Spanned<f64>>,
     /// Largest state difference from the f64 run, in standard deviations.
     pub max_state_difference: Option<Spanned<f64>>,
-    /// Largest accepted relative excess of a constant-gain filter's
+    /// Largest accepted relative excess of a steady-gain filter's
     /// covariance over the optimal one during its transient.
     pub max_transient_excess: Option<Spanned<f64>>,
 }
@@ -235,6 +235,8 @@ pub struct RawVerdict {
 #[serde(deny_unknown_fields)]
 pub struct RawFlash {
     /// "f32" or "f64".
+    pub precision: Option<Spanned<String>>,
+    /// The old name of `precision`, accepted for one release.
     pub scalar: Option<Spanned<String>>,
     /// "joseph" or "conventional".
     pub form: Option<Spanned<String>>,

@@ -453,15 +453,30 @@ pub(super) fn plan(loc: &Locator<'_>, raw: RawSpec, base: Option<&Path>) -> R<Pl
     };
     if let Some(fl) = raw.flash.as_ref() {
         let fl = fl.get_ref();
-        if let Some(s) = &fl.scalar {
+        let given = match (&fl.precision, &fl.scalar) {
+            (Some(_), Some(old)) => {
+                return Err(loc.error(
+                    old.span(),
+                    "flash.scalar",
+                    "give `precision` only (`scalar` is its old name)".to_string(),
+                ));
+            }
+            (Some(p), None) => Some((p, "flash.precision")),
+            (None, Some(old)) => {
+                deprecated(loc, "flash.scalar", "flash.precision");
+                Some((old, "flash.scalar"))
+            }
+            (None, None) => None,
+        };
+        if let Some((s, field)) = given {
             flash.precision = match s.get_ref().as_str() {
                 "f32" => Precision::F32,
                 "f64" => Precision::F64,
                 other => {
                     return Err(loc.error(
                         s.span(),
-                        "flash.scalar",
-                        format!("unknown scalar `{other}`: use \"f32\" or \"f64\""),
+                        field,
+                        format!("unknown precision `{other}`: use \"f32\" or \"f64\""),
                     ));
                 }
             };
@@ -1003,6 +1018,15 @@ fn need<'a, T>(
     kind: &str,
 ) -> R<&'a T> {
     v.ok_or_else(|| loc.error(span, field, format!("required by kind = \"{kind}\"")))
+}
+
+/// Notes on standard error that a spec uses a key's old name (accepted for
+/// one release).
+fn deprecated(loc: &Locator<'_>, old: &str, new: &str) {
+    crate::output::note(&format!(
+        "note: {}: `{old}` is deprecated, write `{new}` (the old name is accepted in this release only)",
+        loc.file()
+    ));
 }
 
 fn positive(loc: &Locator<'_>, v: &Spanned<f64>, field: &str) -> R<f64> {
