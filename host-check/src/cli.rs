@@ -154,10 +154,10 @@ pub struct CheckArgs {
     /// For nonlinear models: covariance-only or end-to-end (overrides the spec).
     #[arg(long, value_enum)]
     pub mode: Option<ModeArg>,
-    /// Pose model, end-to-end mode: each variant moves its origin to its
-    /// x, y (whole metres, origin kept in f64) whenever |x| or |y| passes M
-    /// metres (overrides the spec's `recentre_m`).
-    #[arg(long, value_name = "M")]
+    /// Pose model, end-to-end mode, origin shift: each variant moves its
+    /// origin to its x, y (whole metres, origin kept in f64) whenever |x|
+    /// or |y| passes M metres (overrides the spec's `origin_shift_m`).
+    #[arg(long = "origin-shift", alias = "recentre", value_name = "M")]
     pub recentre: Option<f64>,
     /// Report options.
     #[command(flatten)]
@@ -176,9 +176,10 @@ pub struct DemoArgs {
     /// Covariance-only or end-to-end (overrides the spec).
     #[arg(long, value_enum)]
     pub mode: Option<ModeArg>,
-    /// End-to-end mode: each variant moves its origin to its x, y (whole
-    /// metres, origin kept in f64) whenever |x| or |y| passes M metres.
-    #[arg(long, value_name = "M")]
+    /// End-to-end mode, origin shift: each variant moves its origin to its
+    /// x, y (whole metres, origin kept in f64) whenever |x| or |y| passes M
+    /// metres.
+    #[arg(long = "origin-shift", alias = "recentre", value_name = "M")]
     pub recentre: Option<f64>,
     /// Report options.
     #[command(flatten)]

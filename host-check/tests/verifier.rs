@@ -329,7 +329,7 @@ fn json_report_carries_every_figure() {
             "max_asymmetry",
             "min_eigenvalue",
             "max_gain_error",
-            "max_state_difference_sigma",
+            "max_state_difference_sd",
             "steady_distance",
         ] {
             assert!(f[key].is_number(), "{} lacks {key}: {f}", v["name"]);
@@ -729,7 +729,7 @@ fn recorded_odometry_runs_end_to_end() {
     let v = variant(&r, "f64 joseph");
     assert!(num(&v["figures"]["max_relative_error"]) < 1e-10);
     let f32j = variant(&r, "f32 joseph");
-    let d = num(&f32j["figures"]["max_state_difference_sigma"]);
+    let d = num(&f32j["figures"]["max_state_difference_sd"]);
     assert!(d > 0.0 && d < 0.1, "f32 state difference {d} sigma");
 }
 
@@ -898,7 +898,7 @@ fn f32_positions_far_from_the_origin_fail_the_state_check() {
     let (code, far) = check_json(&data().join("far-rover.toml"), "far", &[]);
     assert_eq!(code, 1);
     let f = &variant(&far, "f32 joseph")["figures"];
-    assert!(num(&f["max_state_difference_sigma"]) > 3.0, "{f}");
+    assert!(num(&f["max_state_difference_sd"]) > 3.0, "{f}");
     assert!(f["failure"].is_null(), "no operation is refused: {f}");
     let reasons = variant(&far, "f32 joseph")["verdict"]["reasons"].to_string();
     assert!(reasons.contains("standard deviations"), "{reasons}");
@@ -913,7 +913,7 @@ fn f32_positions_far_from_the_origin_fail_the_state_check() {
     let (code, near) = check_json(&near, "near", &[]);
     assert_eq!(code, 0);
     let n = &variant(&near, "f32 joseph")["figures"];
-    assert!(num(&n["max_state_difference_sigma"]) < 0.01, "{n}");
+    assert!(num(&n["max_state_difference_sd"]) < 0.01, "{n}");
 }
 
 #[test]
@@ -930,14 +930,14 @@ fn recentring_brings_f32_positions_far_from_the_origin_back_onto_the_f64_run() {
     let f = &variant(&off, "f32 joseph")["figures"];
     let off_xy = num(&f["max_state_difference"][0]).max(num(&f["max_state_difference"][1]));
     assert!(off_xy > 0.1, "without re-centring: {f}");
-    assert!(num(&f["max_state_difference_sigma"]) > 3.0, "{f}");
-    assert!(off["run"]["recentre_m"].is_null());
+    assert!(num(&f["max_state_difference_sd"]) > 3.0, "{f}");
+    assert!(off["run"]["origin_shift_m"].is_null());
 
     let json = scratch("far-on.json");
     let out = cairn(&[
         "check",
         far.to_str().unwrap(),
-        "--recentre",
+        "--origin-shift",
         "10",
         "--no-progress",
         "--json",
@@ -948,7 +948,7 @@ fn recentring_brings_f32_positions_far_from_the_origin_back_onto_the_f64_run() {
     assert!(text.contains("when |x| or |y| passes 10 m"), "{text}");
     assert!(text.contains("origin shifts"), "{text}");
     let on: Value = serde_json::from_str(&std::fs::read_to_string(&json).unwrap()).unwrap();
-    assert_eq!(num(&on["run"]["recentre_m"]), 10.0);
+    assert_eq!(num(&on["run"]["origin_shift_m"]), 10.0);
     let reference = &on["run"]["reference"]["final_state"];
     for name in ["f32 conventional", "f32 u-d", "f32 joseph"] {
         let v = variant(&on, name);
@@ -961,12 +961,12 @@ fn recentring_brings_f32_positions_far_from_the_origin_back_onto_the_f64_run() {
         // (heading 0.9 rad is spaced 6e-8 apart, each step adds 5e-5 rad).
         let xy = num(&f["max_state_difference"][0]).max(num(&f["max_state_difference"][1]));
         assert!(xy < 5e-3 && xy < off_xy / 100.0, "{name}: {f}");
-        assert!(num(&f["max_state_difference_sigma"]) < 0.05, "{name}: {f}");
+        assert!(num(&f["max_state_difference_sd"]) < 0.05, "{name}: {f}");
         assert_eq!(v["verdict"]["passes"], true, "{name}");
         // The start re-centres and so does every 10 m of the ~48 m run;
         // the origin is whole metres and within 10 m and a step of the
         // reference's final position (the lane's local state is no larger).
-        assert!(num(&v["recentres"]) >= 2.0, "{name}: {v}");
+        assert!(num(&v["origin_shifts"]) >= 2.0, "{name}: {v}");
         for i in 0..2 {
             let o = num(&v["origin"][i]);
             assert_eq!(o, o.round(), "{name}: origin {o}");
@@ -983,10 +983,10 @@ fn recentring_brings_f32_positions_far_from_the_origin_back_onto_the_f64_run() {
         text.replace("x = [20000.0, 20000.0, 0.3]", "x = [0.0, 0.0, 0.3]"),
     )
     .unwrap();
-    let (code, near) = check_json(&near, "near-on", &["--recentre", "10"]);
+    let (code, near) = check_json(&near, "near-on", &["--origin-shift", "10"]);
     assert_eq!(code, 0);
-    let far_sigma = num(&variant(&on, "f32 joseph")["figures"]["max_state_difference_sigma"]);
-    let near_sigma = num(&variant(&near, "f32 joseph")["figures"]["max_state_difference_sigma"]);
+    let far_sigma = num(&variant(&on, "f32 joseph")["figures"]["max_state_difference_sd"]);
+    let near_sigma = num(&variant(&near, "f32 joseph")["figures"]["max_state_difference_sd"]);
     assert!(
         (far_sigma / near_sigma - 1.0).abs() < 0.01,
         "far {far_sigma} near {near_sigma}"
@@ -996,10 +996,10 @@ fn recentring_brings_f32_positions_far_from_the_origin_back_onto_the_f64_run() {
     let (_, cov) = check_json(
         &far,
         "far-cov",
-        &["--recentre", "10", "--mode", "covariance"],
+        &["--origin-shift", "10", "--mode", "covariance"],
     );
-    assert!(cov["run"]["recentre_m"].is_null());
-    assert_eq!(num(&variant(&cov, "f32 joseph")["recentres"]), 0.0);
+    assert!(cov["run"]["origin_shift_m"].is_null());
+    assert_eq!(num(&variant(&cov, "f32 joseph")["origin_shifts"]), 0.0);
 }
 
 #[test]
@@ -1014,45 +1014,74 @@ fn bad_recentring_distances_exit_two_naming_the_field() {
     ] {
         let spec = text.replace(
             "mode = \"end-to-end\"",
-            &format!("mode = \"end-to-end\"\nrecentre_m = {value}"),
+            &format!("mode = \"end-to-end\"\norigin_shift_m = {value}"),
         );
         let path = scratch(&format!("recentre-{tag}.toml"));
         std::fs::write(&path, &spec).unwrap();
         let out = cairn(&["check", path.to_str().unwrap()]);
         let err = String::from_utf8_lossy(&out.stderr);
         assert_eq!(out.status.code(), Some(2), "{tag}: {err}");
-        let line = 1 + spec[..spec.find("recentre_m").unwrap()]
+        let line = 1 + spec[..spec.find("origin_shift_m").unwrap()]
             .matches('\n')
             .count();
         assert!(
             err.contains(&format!("recentre-{tag}.toml:{line}:")),
             "{tag}: {err}"
         );
-        assert!(err.contains("`model.recentre_m`"), "{tag}: {err}");
-        let flag = format!("--recentre={value}");
+        assert!(err.contains("`model.origin_shift_m`"), "{tag}: {err}");
+        let flag = format!("--origin-shift={value}");
         let out = cairn(&[
             "check",
             data().join("far-rover.toml").to_str().unwrap(),
             &flag,
         ]);
         let err = String::from_utf8_lossy(&out.stderr);
-        assert_eq!(out.status.code(), Some(2), "--recentre {value}: {err}");
-        assert!(err.contains("--recentre"), "{err}");
+        assert_eq!(out.status.code(), Some(2), "--origin-shift {value}: {err}");
+        assert!(err.contains("--origin-shift"), "{err}");
     }
     // A linear model has no positions to re-centre.
     rejects(
         "recentre-linear",
         "[model]\n",
-        "[model]\nrecentre_m = 10.0\n",
-        "recentre_m",
-        "model.recentre_m",
+        "[model]\norigin_shift_m = 10.0\n",
+        "origin_shift_m",
+        "model.origin_shift_m",
     );
     let out = cairn(&[
         "check",
         specs().join("wna-tracker.toml").to_str().unwrap(),
-        "--recentre",
+        "--origin-shift",
         "10",
     ]);
+    assert_eq!(out.status.code(), Some(2));
+    // The old key `recentre_m` is read the same, with a note naming the new
+    // one; both keys at once are refused.
+    let old = scratch("recentre-old-key.toml");
+    std::fs::write(
+        &old,
+        text.replace(
+            "mode = \"end-to-end\"",
+            "mode = \"end-to-end\"\nrecentre_m = 10.0",
+        ),
+    )
+    .unwrap();
+    let out = cairn(&["check", old.to_str().unwrap(), "--quiet"]);
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(0), "{err}");
+    assert!(
+        err.contains("`model.recentre_m` is deprecated, write `model.origin_shift_m`"),
+        "{err}"
+    );
+    let both = scratch("recentre-both-keys.toml");
+    std::fs::write(
+        &both,
+        text.replace(
+            "mode = \"end-to-end\"",
+            "mode = \"end-to-end\"\nrecentre_m = 10.0\norigin_shift_m = 10.0",
+        ),
+    )
+    .unwrap();
+    let out = cairn(&["check", both.to_str().unwrap(), "--quiet"]);
     assert_eq!(out.status.code(), Some(2));
 }
 

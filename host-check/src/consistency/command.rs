@@ -35,10 +35,11 @@ pub struct TrialsArgs {
     /// small does.
     #[arg(long, value_name = "X", default_value_t = 1.0)]
     pub filter_q_scale: f64,
-    /// Pose model: each variant moves its origin to its x, y (whole metres,
-    /// origin kept in f64) whenever |x| or |y| passes M metres, and is
-    /// judged on origin + local state (overrides the spec's `recentre_m`).
-    #[arg(long, value_name = "M")]
+    /// Pose model, origin shift: each variant moves its origin to its x, y
+    /// (whole metres, origin kept in f64) whenever |x| or |y| passes M
+    /// metres, and is judged on origin + local state (overrides the spec's
+    /// `origin_shift_m`).
+    #[arg(long = "origin-shift", alias = "recentre", value_name = "M")]
     pub recentre: Option<f64>,
     /// Confidence of the two-sided chi-square intervals.
     #[arg(long, value_name = "P", default_value_t = 0.95)]

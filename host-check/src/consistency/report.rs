@@ -223,6 +223,7 @@ pub struct ChannelSummary {
 #[derive(Debug, Clone, Serialize)]
 pub struct VariantReport {
     /// "f32 joseph" and so on.
+    #[serde(rename = "name")]
     pub label: String,
     /// Scalar type and form.
     pub variant: Variant,
@@ -239,7 +240,8 @@ pub struct VariantReport {
     /// Why, in words.
     pub reason: String,
     /// Times the filter moved its origin, per run on average (0 without
-    /// re-centring; a start beyond the distance counts once).
+    /// an origin shift; a start beyond the distance counts once).
+    #[serde(rename = "origin_shifts_per_run")]
     pub recentres_per_run: f64,
 }
 
@@ -362,6 +364,7 @@ pub struct Report {
     /// Spec title.
     pub title: String,
     /// Spec file.
+    #[serde(rename = "spec")]
     pub file: String,
     /// Monte Carlo runs.
     pub runs: usize,
@@ -377,8 +380,9 @@ pub struct Report {
     pub seed: u64,
     /// Seconds one run covers (steps x the step length).
     pub run_seconds: f64,
-    /// The re-centring distance the pose filters used, m (`None`: they
+    /// The origin-shift distance the pose filters used, m (`None`: they
     /// kept the spec's frame).
+    #[serde(rename = "origin_shift_m")]
     pub recentre_m: Option<f64>,
     /// One entry per variant.
     pub variants: Vec<VariantReport>,
@@ -413,8 +417,8 @@ impl Report {
         if let Some(d) = self.recentre_m {
             let _ = writeln!(
                 out,
-                "Lanes re-centre: each variant moves its origin to its x, y (whole metres, kept in f64)\n\
-                 through the core's shift_origin_mut when |x| or |y| passes {d} m (a start beyond it counts\n\
+                "Origin shift: each variant moves its origin to its x, y (whole metres, kept in f64)\n\
+                 through the core's origin shift when |x| or |y| passes {d} m (a start beyond it counts\n\
                  once); fixes reach it minus the origin and NEES is taken on origin + local state, in f64\n"
             );
         }
@@ -472,7 +476,7 @@ impl Report {
             if self.recentre_m.is_some() {
                 let _ = writeln!(
                     out,
-                    "     re-centred {:.1} times per run of {} s on average",
+                    "     {:.1} origin shifts per run of {} s on average",
                     v.recentres_per_run, self.run_seconds
                 );
             }

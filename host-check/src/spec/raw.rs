@@ -99,6 +99,8 @@ pub struct RawModel {
     pub profile_csv: Option<Spanned<String>>,
     /// Pose, end-to-end mode: each variant moves its origin to its x, y
     /// whenever |x| or |y| passes this many metres (off by default).
+    pub origin_shift_m: Option<Spanned<f64>>,
+    /// The old name of `origin_shift_m`, accepted for one release.
     pub recentre_m: Option<Spanned<f64>>,
     /// Own models: what the model is, for reports.
     pub description: Option<Spanned<String>>,

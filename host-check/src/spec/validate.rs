@@ -304,10 +304,7 @@ pub(super) fn plan(loc: &Locator<'_>, raw: RawSpec, base: Option<&Path>) -> R<Pl
             };
             let profile = profile(loc, model, raw.model.span(), base)?;
             let mode = nonlinear_mode(loc, model)?;
-            recentre_m = match model.recentre_m.as_ref() {
-                Some(d) => Some(recentre(loc, d, "model.recentre_m")?),
-                None => None,
-            };
+            recentre_m = origin_shift(loc, model)?;
             (
                 ModelPlan::Pose {
                     speed_var,
@@ -354,10 +351,7 @@ pub(super) fn plan(loc: &Locator<'_>, raw: RawSpec, base: Option<&Path>) -> R<Pl
             ] {
                 forbid(loc, s, f, kind)?;
             }
-            recentre_m = match model.recentre_m.as_ref() {
-                Some(d) => Some(recentre(loc, d, "model.recentre_m")?),
-                None => None,
-            };
+            recentre_m = origin_shift(loc, model)?;
             (
                 ModelPlan::User {
                     description: model
@@ -997,6 +991,12 @@ fn forbid_pose_fields(loc: &Locator<'_>, model: &RawModel, kind: &str) -> R<()> 
     )?;
     forbid(
         loc,
+        model.origin_shift_m.as_ref().map(Spanned::span),
+        "model.origin_shift_m",
+        kind,
+    )?;
+    forbid(
+        loc,
         model.recentre_m.as_ref().map(Spanned::span),
         "model.recentre_m",
         kind,
@@ -1042,7 +1042,25 @@ fn positive(loc: &Locator<'_>, v: &Spanned<f64>, field: &str) -> R<f64> {
     }
 }
 
-/// A re-centring distance: finite and at least [`super::MIN_RECENTRE_M`]
+/// The origin-shift distance under its name or its old one (`recentre_m`,
+/// with a note); both at once are refused.
+fn origin_shift(loc: &Locator<'_>, model: &RawModel) -> R<Option<f64>> {
+    match (&model.origin_shift_m, &model.recentre_m) {
+        (Some(_), Some(old)) => Err(loc.error(
+            old.span(),
+            "model.recentre_m",
+            "give `origin_shift_m` only (`recentre_m` is its old name)".to_string(),
+        )),
+        (Some(d), None) => Ok(Some(recentre(loc, d, "model.origin_shift_m")?)),
+        (None, Some(old)) => {
+            deprecated(loc, "model.recentre_m", "model.origin_shift_m");
+            Ok(Some(recentre(loc, old, "model.recentre_m")?))
+        }
+        (None, None) => Ok(None),
+    }
+}
+
+/// An origin-shift distance: finite and at least [`super::MIN_RECENTRE_M`]
 /// (the origin moves in whole metres).
 fn recentre(loc: &Locator<'_>, v: &Spanned<f64>, field: &str) -> R<f64> {
     let x = *v.get_ref();

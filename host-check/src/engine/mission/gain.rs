@@ -42,8 +42,10 @@ pub struct ConstantGain {
     /// The implied posterior covariance at the last interval followed.
     pub final_posterior: Vec<Vec<f64>>,
     /// The core's `SteadyGain` runs (f32 and f64), when its sizes are built.
+    #[serde(rename = "variants")]
     pub lanes: Vec<GainLaneResult>,
     /// Why the core's filter was not run, if it was not.
+    #[serde(rename = "variants_note")]
     pub lanes_note: Option<String>,
 }
 
@@ -58,6 +60,7 @@ pub struct GainLaneResult {
     pub refused: Option<String>,
     /// Largest state difference from the f64 steady-gain run, in steady
     /// posterior standard deviations (largest over states).
+    #[serde(rename = "max_state_difference_sd")]
     pub max_state_difference_sigma: f64,
     /// The same, largest in each of the run's plot buckets.
     #[serde(skip)]

@@ -83,6 +83,7 @@ pub struct VariantMission {
     /// What the state projection alone says.
     pub outlook_state: Option<Outlook>,
     /// That difference at the end of the mission (as `projected_error`).
+    #[serde(rename = "projected_state_difference_sd")]
     pub projected_state_sigma: Option<f64>,
     /// When its relative error or its state difference would cross its
     /// threshold, s from the start, whichever first (robust line; `None`:
