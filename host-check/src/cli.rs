@@ -246,7 +246,7 @@ pub fn execute(cli: Cli) -> Result<u8, Failure> {
             let mut plan = spec::load(&a.spec).map_err(bad)?;
             refuse_clashes(Some(&a.spec), &plan, &a.output)?;
             plan.set_recentre(a.recentre).map_err(|m| bad(Message(m)))?;
-            check(plan, a.seconds, a.mode, &a.output)
+            check("check", plan, a.seconds, a.mode, &a.output)
         }
         Some(Command::Noise(a)) => noise(&a),
         Some(Command::Cost(a)) => cost(&a),
@@ -328,7 +328,7 @@ fn demo(a: &DemoArgs) -> Result<u8, Failure> {
     let mut plan = crate::demo::plan().map_err(bad)?;
     refuse_clashes(None, &plan, &a.output)?;
     plan.set_recentre(a.recentre).map_err(|m| bad(Message(m)))?;
-    check(plan, a.seconds, a.mode, &a.output)
+    check("demo", plan, a.seconds, a.mode, &a.output)
 }
 
 /// Refuses report files that name the spec, a file it reads, or each other.
@@ -358,6 +358,7 @@ fn refuse_clashes(spec: Option<&Path>, plan: &Plan, out: &Output) -> Result<(), 
 }
 
 fn check(
+    command: &str,
     mut plan: Plan,
     seconds: Option<f64>,
     mode: Option<ModeArg>,
@@ -438,7 +439,7 @@ fn check(
                 .unwrap_or("none")
         ))?;
     } else {
-        output::print(&report::render(&plan, &result))?;
+        output::print(&report::render_as(command, &plan, &result))?;
     }
     if let Some(path) = &out.json {
         let json = Report::new(&plan, &result)
@@ -516,6 +517,36 @@ fn parse_mission(text: &str) -> Result<f64, Failure> {
     }
 }
 
+/// The figure kinds `cairn noise` takes (the spec's noise-figure keys).
+const NOISE_KINDS: [&str; 8] = [
+    "density",
+    "psd",
+    "random_walk",
+    "bias_instability",
+    "rate_random_walk",
+    "quantization",
+    "std",
+    "variance",
+];
+
+/// A conversion error of `cairn noise` told by the option it came from
+/// (the figure was put together from the options: no file, line or field
+/// of it is anything the user wrote).
+fn noise_option_error(e: &spec::SpecError) -> String {
+    let key = e.field.strip_prefix("figure.").unwrap_or(&e.field);
+    let option = match key {
+        "" | "figure" => return e.message.clone(),
+        "unit" => "--unit".to_string(),
+        "sided" => "--sided".to_string(),
+        "per" => "--per".to_string(),
+        "at_hz" => "--at-hz".to_string(),
+        "quantity" => "--quantity".to_string(),
+        "correlation_s" => "--correlation-s".to_string(),
+        kind => format!("the figure `{kind}=`"),
+    };
+    format!("{option}: {}", e.message)
+}
+
 fn noise(a: &NoiseArgs) -> Result<u8, Failure> {
     let Some((kind, value)) = a.figure.split_once('=') else {
         return Err(bad(Message(format!(
@@ -523,13 +554,39 @@ fn noise(a: &NoiseArgs) -> Result<u8, Failure> {
             a.figure
         ))));
     };
+    let (kind, value) = (kind.trim(), value.trim());
+    if !NOISE_KINDS.contains(&kind) {
+        return Err(bad(Message(format!(
+            "`{}`: unknown kind `{kind}`; use one of {}",
+            a.figure,
+            NOISE_KINDS.join(", ")
+        ))));
+    }
+    let Ok(number) = value.parse::<f64>() else {
+        return Err(bad(Message(format!(
+            "`{}`: the value `{value}` is not a number",
+            a.figure
+        ))));
+    };
+    for (option, v, what) in [
+        ("--at-hz", a.at_hz, "a sample rate in Hz"),
+        (
+            "--correlation-s",
+            a.correlation_s,
+            "a correlation time in s",
+        ),
+        ("--rate", a.rate, "a filter rate in Hz"),
+    ] {
+        if let Some(x) = v
+            && !(x.is_finite() && x > 0.0)
+        {
+            return Err(bad(Message(format!(
+                "{option} must be {what}, a positive number; got {x}"
+            ))));
+        }
+    }
     let quote = |s: &str| format!("\"{}\"", s.replace('\\', "\\\\").replace('"', "\\\""));
-    let mut doc = format!(
-        "{} = {}\nunit = {}\n",
-        kind.trim(),
-        value.trim(),
-        quote(&a.unit)
-    );
+    let mut doc = format!("{kind} = {number:?}\nunit = {}\n", quote(&a.unit));
     if let Some(s) = &a.sided {
         doc.push_str(&format!("sided = {}\n", quote(s)));
     }
@@ -545,20 +602,9 @@ fn noise(a: &NoiseArgs) -> Result<u8, Failure> {
     if let Some(c) = a.correlation_s {
         doc.push_str(&format!("correlation_s = {c:?}\n"));
     }
-    if let Some(r) = a.rate
-        && !(r.is_finite() && r > 0.0)
-    {
-        return Err(bad(Message(format!("--rate must be positive, got {r}"))));
-    }
-    let rec = spec::convert_standalone(&doc, a.rate).map_err(bad)?;
-    let mut text = format!("{}\n", rec.given);
-    for s in &rec.steps {
-        text.push_str(&format!(
-            "  {:<44} {:<28} = {:e} {}\n",
-            s.what, s.formula, s.value, s.unit
-        ));
-    }
-    text.push_str(&format!("=> {} = {:e}\n", rec.result_is, rec.result));
+    let rec =
+        spec::convert_standalone(&doc, a.rate).map_err(|e| bad(Message(noise_option_error(&e))))?;
+    let text = format!("{}\n{}", rec.given, rec.chain_text(2));
     output::print(&text)?;
     Ok(EXIT_PASS)
 }

@@ -413,11 +413,13 @@ fn noise_subcommand_converts_an_angle_random_walk() {
     let value: f64 = last.rsplit('=').next().unwrap().trim().parse().unwrap();
     // The published figure has 4 digits; the conversion itself is exact
     // arithmetic: N = 0.1 pi/180/60 rad/s/sqrt(Hz), variance N^2 fs, so the
-    // printed full-precision value must match it to a few roundings.
+    // printed value (4 significant digits) must be it rounded: within half
+    // a unit of its fourth digit.
     assert!((value.sqrt() / 2.909e-4 - 1.0).abs() < 5e-4, "{last}");
     let exact = (0.1 * std::f64::consts::PI / 180.0 / 60.0).powi(2) * 100.0;
+    assert_eq!(format!("{exact:.3e}"), format!("{value:.3e}"), "{last}");
     assert!(
-        (value / exact - 1.0).abs() <= 8.0 * f64::EPSILON,
+        (value / exact - 1.0).abs() <= 5e-4,
         "{value:e} vs {exact:e}"
     );
 }
@@ -444,13 +446,21 @@ fn noise_subcommand_converts_an_accelerometer_density() {
     let value: f64 = last.rsplit('=').next().unwrap().trim().parse().unwrap();
     // 6.93e-3 is the published 3-digit figure; the conversion is exact
     // arithmetic with standard gravity g = 9.80665 m/s^2 (CGPM 1901):
-    // variance (100e-6 g)^2 fs / 2, matched to a few roundings.
+    // variance (100e-6 g)^2 fs / 2, printed rounded to 4 significant digits.
     assert!((value.sqrt() / 6.93e-3 - 1.0).abs() < 1e-3, "{last}");
     let exact = (100e-6 * 9.806_65_f64).powi(2) * 50.0;
+    assert_eq!(format!("{exact:.3e}"), format!("{value:.3e}"), "{last}");
+    // Every step's '=' in one column, and real units (no placeholder).
+    let cols: Vec<usize> = text
+        .lines()
+        .filter(|l| l.starts_with("  ") && !l.starts_with("  =>"))
+        .map(|l| l.find("  = ").expect("a value column"))
+        .collect();
     assert!(
-        (value / exact - 1.0).abs() <= 8.0 * f64::EPSILON,
-        "{value:e} vs {exact:e}"
+        cols.len() >= 4 && cols.iter().all(|c| *c == cols[0]),
+        "{text}"
     );
+    assert!(text.contains("(m/s^2)^2/Hz"), "{text}");
     // The same figure for a quantity in m/s does not fit: exit 2, field named.
     let out = cairn(&[
         "noise",
@@ -461,7 +471,69 @@ fn noise_subcommand_converts_an_accelerometer_density() {
         "m/s",
     ]);
     assert_eq!(out.status.code(), Some(2));
-    assert!(String::from_utf8_lossy(&out.stderr).contains("`figure.unit`"));
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(err.starts_with("error: --unit: "), "{err}");
+    assert!(!err.contains("<command line>"), "{err}");
+}
+
+#[test]
+fn noise_subcommand_names_real_units_and_the_option_at_fault() {
+    // Without --quantity the quantity's unit follows from the figure's
+    // (deg/s/sqrt(Hz) is a density of rad/s in coherent units; our own
+    // wording rule), never a placeholder.
+    let out = cairn(&["noise", "density=0.004", "--unit", "deg/s/sqrt(Hz)"]);
+    assert_eq!(out.status.code(), Some(0));
+    let text = String::from_utf8_lossy(&out.stdout);
+    assert!(text.contains("(rad/s)^2*s"), "{text}");
+    assert!(
+        !text.contains(" SI") && !text.contains(" u/") && !text.contains(" u^"),
+        "{text}"
+    );
+    // A density needs a per-root-hertz unit: `m` alone is refused.
+    let out = cairn(&["noise", "density=0.3", "--unit", "m"]);
+    assert_eq!(out.status.code(), Some(2));
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(
+        err.contains("--unit: `m` does not fit a `density`"),
+        "{err}"
+    );
+    // Bad numbers in options are our own messages, naming the option.
+    for (args, want) in [
+        (
+            vec!["noise", "std=0.3", "--unit", "m", "--at-hz", "nan"],
+            "--at-hz must be",
+        ),
+        (
+            vec!["noise", "std=0.3", "--unit", "m", "--at-hz", "0"],
+            "--at-hz must be",
+        ),
+        (vec!["noise", "std=0.3", "--unit", "m"], "--at-hz: "),
+        (vec!["noise", "std=x", "--unit", "m"], "is not a number"),
+        (
+            vec!["noise", "stdev=1", "--unit", "m"],
+            "unknown kind `stdev`",
+        ),
+        (
+            vec![
+                "noise",
+                "density=1",
+                "--unit",
+                "m/sqrt(Hz)",
+                "--sided",
+                "both",
+            ],
+            "--sided: ",
+        ),
+    ] {
+        let out = cairn(&args);
+        let err = String::from_utf8_lossy(&out.stderr);
+        assert_eq!(out.status.code(), Some(2), "{args:?}: {err}");
+        assert!(err.contains(want), "{args:?}: {err}");
+        assert!(
+            !err.contains("<command line>") && !err.contains("TOML"),
+            "{args:?}: {err}"
+        );
+    }
 }
 
 /// A bad spec made from the tracker spec by one replacement: exit 2 and a

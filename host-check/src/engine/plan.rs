@@ -14,6 +14,10 @@ pub use crate::numeric::conversion::ConversionRecord;
 /// no rounding.
 pub const MIN_RECENTRE_M: f64 = 1.0;
 
+/// The spec-file name of the built-in demo's plan (its advice names the
+/// `demo` command, not a file).
+pub const DEMO_FILE: &str = "<built-in demo: specs/demo.toml>";
+
 /// One state of the model.
 #[derive(Debug, Clone, Serialize)]
 pub struct StateInfo {

@@ -10,7 +10,7 @@ use crate::run::RunResult;
 use crate::spec::{ConversionRecord, Flash, ModelPlan, Plan, StateInfo, Thresholds};
 
 pub use svg::plot;
-pub use text::render;
+pub use text::{render, render_as};
 
 /// The sentence every verdict carries.
 pub const NOT_A_SAFETY_CASE: &str = "A numerical pass is not a safety case: it says the arithmetic \

@@ -232,8 +232,13 @@ as that length over T around the estimate, would decide. An undecided verdict is
 
 /// The report as text (plain ASCII, fits 100 columns for six variants).
 pub fn render(plan: &Plan, run: &RunResult) -> String {
+    render_as("check", plan, run)
+}
+
+/// The report as text under the banner of `command` ("check", "demo").
+pub fn render_as(command: &str, plan: &Plan, run: &RunResult) -> String {
     let mut o = String::new();
-    let _ = writeln!(o, "cairn check: {}", plan.title);
+    let _ = writeln!(o, "cairn {command}: {}", plan.title);
     let states: Vec<String> = plan
         .states
         .iter()
@@ -310,17 +315,7 @@ when |x| or |y| passes {d} m;\n           states are compared as origin + local 
         let _ = writeln!(o, "\nNoise figures to filter numbers");
         for c in &plan.conversions {
             let _ = writeln!(o, "  {}: {}", c.field, c.given);
-            for s in &c.steps {
-                let _ = writeln!(
-                    o,
-                    "      {:<44} {:<28} = {} {}",
-                    s.what,
-                    s.formula,
-                    sci(s.value),
-                    s.unit
-                );
-            }
-            let _ = writeln!(o, "      => {} = {}", c.result_is, sci(c.result));
+            o.push_str(&c.chain_text(6));
         }
     }
 

@@ -603,6 +603,8 @@ pub fn analyze(inputs: &MissionInputs<'_>, run: &RunResult) -> MissionResult {
     let cycles_per_step = None;
     let cycles_note = if matches!(plan.model, ModelPlan::User { .. }) {
         "price your own predict and updates on the target with a probe of your crate (README: price it on the target)".to_string()
+    } else if plan.file == crate::engine::plan::DEMO_FILE {
+        "run `cairn cost` (the demo's rates) or `cairn demo --cycles` for cycles".to_string()
     } else {
         format!(
             "run `cairn cost --spec {}` (or `cairn check --cycles`) for cycles",
