@@ -634,6 +634,52 @@ fn the_trials_subcommand_re_centres_on_request() {
 
 /// `cairn trials SPEC --runs N --json ...` on the one-state random walk
 /// (20 steps, one channel); returns the report.
+#[test]
+fn trials_list_variants_in_the_checks_order_and_say_which_test_decided() {
+    // The demo's first 2000 steps, 50 runs: the time average of NEES sits
+    // just below its interval (2.90 against [2.98, 3.02]; that interval
+    // treats the time-correlated NEES samples as independent) while every
+    // point is inside its own: the verdict is the per-point test's, and the
+    // row says so. Variants asked for out of order come in the check's order.
+    let out = cairn(&[
+        "trials",
+        "--no-progress",
+        "--variant",
+        "f64-joseph",
+        "--variant",
+        "f32-conventional",
+        "--json",
+        std::env::temp_dir()
+            .join(format!("cairn-trials-order-{}.json", std::process::id()))
+            .to_str()
+            .unwrap(),
+    ]);
+    let text = String::from_utf8_lossy(&out.stdout);
+    assert_eq!(out.status.code(), Some(0), "{text}");
+    let first = text
+        .find("\nf32 conventional\n")
+        .expect("f32 conventional listed");
+    let second = text.find("\nf64 joseph\n").expect("f64 joseph listed");
+    assert!(first < second, "{text}");
+    let nees = text
+        .lines()
+        .find(|l| l.trim_start().starts_with("NEES"))
+        .expect("a NEES row");
+    assert!(
+        nees.ends_with("consistent (per-point test; time avg outside its interval)"),
+        "{nees}"
+    );
+    assert!(text.contains("(per-point test: "), "{text}");
+    let json = std::env::temp_dir().join(format!("cairn-trials-order-{}.json", std::process::id()));
+    let report: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(&json).unwrap()).unwrap();
+    let _ = std::fs::remove_file(&json);
+    // The run is named as in the check's JSON: `name` + `spec`.
+    assert_eq!(report["variants"][0]["name"], "f32 conventional");
+    assert!(report["spec"].as_str().is_some_and(|s| s.contains("demo")));
+    assert!(report.get("label").is_none() && report.get("file").is_none());
+}
+
 fn trials_json(runs: &str, tag: &str) -> serde_json::Value {
     let spec = concat!(env!("CARGO_MANIFEST_DIR"), "/tests/data/random-walk.toml");
     let json = std::env::temp_dir().join(format!("cairn-trials-{tag}-{}.json", std::process::id()));

@@ -112,6 +112,9 @@ pub fn execute(a: &TrialsArgs) -> Result<u8, Failure> {
     if !chosen {
         variants = all_variants();
     }
+    // In the check's order (cheapest first), whatever the order of the
+    // options.
+    variants.sort_by_key(|v| v.cost_rank);
     let steps = match a.seconds {
         Some(s) if !(s.is_finite() && s > 0.0) => {
             return Err(bad(format!("--seconds must be positive, got {s}")));

@@ -409,7 +409,7 @@ impl Report {
              consistent when {:.0}% of its points fall inside, or when a consistent filter would leave\n\
              as many outside, and as many outside the {}% interval, with a {:.0}% chance or more.\n\
              The time average's interval treats samples as independent: exact for NIS, only\n\
-             indicative for NEES (correlated in time)\n",
+             indicative for NEES (correlated in time); it is shown, the per-point test decides\n",
             100.0 * MIN_INSIDE,
             100.0 * (1.0 - FAR_RATE),
             100.0 * SIGNIFICANCE
@@ -441,12 +441,23 @@ impl Report {
             "above",
             "below",
         );
+        let mut average_outside = false;
         for v in &self.variants {
             let _ = writeln!(out, "{}", v.label);
             let mut row = |name: &str, s: &Summary| {
+                // A time average outside its interval beside a verdict
+                // says which test decided it (the per-point one).
+                let mark = if s.verdict != Verdict::Failed
+                    && s.time_average_interval.place(s.time_average) != Place::Inside
+                {
+                    average_outside = true;
+                    " (per-point test; time avg outside its interval)"
+                } else {
+                    ""
+                };
                 let _ = writeln!(
                     out,
-                    "  {:<width$} {:>3} {:>9.4} {:>19} {:>19} {:>6.1}% {:>5.1}% {:>5.1}%  {}",
+                    "  {:<width$} {:>3} {:>9.4} {:>19} {:>19} {:>6.1}% {:>5.1}% {:>5.1}%  {}{mark}",
                     name,
                     s.dof,
                     s.time_average,
@@ -458,7 +469,7 @@ impl Report {
                     100.0 * s.inside,
                     100.0 * s.above,
                     100.0 * s.below,
-                    s.verdict.word()
+                    s.verdict.word(),
                 );
             };
             if let Some(s) = &v.nees {
@@ -480,6 +491,14 @@ impl Report {
                     v.recentres_per_run, self.run_seconds
                 );
             }
+        }
+        if average_outside {
+            let _ = writeln!(
+                out,
+                "\n(per-point test: a statistic's verdict comes from its points against the per-point\n\
+                 interval; its time average can leave its own interval, which treats every sample as\n\
+                 independent, without deciding it: for NEES, correlated in time, that interval is too narrow)"
+            );
         }
         out
     }
