@@ -23,6 +23,46 @@ const EXIT_CODES: &str = "Exit codes:
 A closed standard output (a pipe whose reader has gone) ends the output
 quietly; the exit code is the one above.";
 
+/// The whole spec format (docs/spec-format.md), built into the binary:
+/// `cairn spec-format` prints it.
+pub const SPEC_FORMAT: &str = include_str!("../../docs/spec-format.md");
+
+/// `check --help`: the spec format in one screen, then the exit codes.
+const CHECK_HELP: &str = concat!(
+    "The spec file (TOML; unknown fields are errors; `cairn spec-format` prints the whole format,
+`cairn demo --print-spec` a complete example):
+  title, seed    a title for the report; the seed of the synthetic noise
+  [[state]]      name and unit of each state, in order (1 to 24 states)
+  [model]        kind = \"continuous\" (a, g, noise), \"discrete\" (f, q or q_diag) or
+                 \"planar-pose\" (speed_noise, yaw_rate_noise, profile or profile_csv,
+                 mode, origin_shift_m); step_hz
+  [[channel]]    name, rate_hz, h (or fix for the pose model), r, r_diag or noise;
+                 dropouts, gate
+  [start]        x, and p, p_diag or std
+  [horizon]      seconds, hours or steps: the length of the run
+  [mission]      days, hours or seconds the filter must last (default: the run)
+  [verdict]      thresholds: max_relative_error, max_asymmetry, max_gain_error,
+                 max_state_difference, max_steady_distance, max_transient_excess
+  [flash]        the spec's choice: precision (\"f32\", \"f64\") and form
+                 (\"joseph\", \"conventional\", \"u-d\")
+  [reference]    csv (an external covariance trajectory) and tolerance
+A noise figure: { KIND = VALUE, unit = \"...\" } with KIND density, psd, random_walk,
+bias_instability, rate_random_walk, quantization, std or variance; optional sided,
+per, at_hz, quantity, correlation_s.
+
+",
+    "Exit codes:
+  0  the variant to flash (default f32 joseph) passes, for the whole mission
+  1  it fails, is projected to cross a limit within the mission, the run
+     cannot decide the mission (\"undecided: run at least H\"), or the spec's
+     external reference disagrees with ours (a numerical pass is not a
+     safety case; see the report)
+  2  bad input: a malformed or inconsistent spec, an unreadable file, a bad
+     option, an output that cannot be written or that names an input
+A closed standard output (a pipe whose reader has gone) ends the output
+quietly; the exit code is the one above."
+);
+
 /// Checks a Kalman filter's single-precision numerics before it is flashed:
 /// runs cairn-core's own code in f32 and f64, in every covariance form,
 /// against an extended-precision reference on your model's schedule, and
@@ -42,9 +82,16 @@ pub struct Cli {
 /// The subcommands.
 #[derive(Debug, Subcommand)]
 pub enum Command {
-    /// Check the filter a spec file describes (see docs/spec-format.md).
-    #[command(after_help = EXIT_CODES)]
+    /// Check the filter a spec file describes (`cairn spec-format` prints
+    /// the format).
+    #[command(after_help = CHECK_HELP)]
     Check(CheckArgs),
+    /// Print the spec file format, the whole reference (built into the
+    /// binary).
+    ///
+    /// The same text as docs/spec-format.md in the source repository.
+    #[command(after_help = "Exit codes:\n  0  printed")]
+    SpecFormat,
     /// Check the built-in demo: an invented survey rover, one hour of wheel
     /// odometry at 200 Hz with beacon position fixes and sun-compass
     /// heading fixes.
@@ -54,10 +101,15 @@ pub enum Command {
     /// show each step (no check is run).
     #[command(after_help = "Exit codes:\n  0  converted\n  2  bad figure or unit")]
     Noise(NoiseArgs),
-    /// Estimate the cycles of one predict and one update on a Cortex-M4F (and
-    /// a Cortex-M7): builds on-target's cost probe (or, with --probe, the
-    /// user's own probe crate), traces it under QEMU and weights the executed
-    /// instructions with the published cycle tables.
+    /// Estimate the cycles of one predict and one update on a Cortex-M4F
+    /// (traced under QEMU; an M7 column, rough).
+    ///
+    /// Builds on-target's cost probe (or, with --probe, the user's own probe
+    /// crate), traces it under QEMU and weights the executed instructions
+    /// with the M4's published cycle table: the M4 figures are the traced
+    /// ones. The "M7 cyc" column is rough, not traced on an M7: the same M4
+    /// instruction trace priced with a dual-issue throughput bound from
+    /// LLVM's M7 latencies, optimistic (dependency stalls not modelled).
     #[command(
         after_help = "Exit codes:\n  0  estimate printed\n  2  bad option, missing tool or failed build/run"
     )]
@@ -133,7 +185,8 @@ pub struct Output {
     #[arg(long)]
     pub no_progress: bool,
     /// The mission the filter must last, e.g. 30d, 12h, 90m or 3600s
-    /// (overrides the spec's mission table; default: the horizon).
+    /// (overrides the spec's mission table; default: the run's length,
+    /// the spec's [horizon]).
     #[arg(long, value_name = "LENGTH")]
     pub mission: Option<String>,
     /// Also estimate the chosen variant's cycles per step: builds
@@ -148,7 +201,7 @@ pub struct Output {
 pub struct CheckArgs {
     /// The spec file (TOML).
     pub spec: PathBuf,
-    /// Run only this many seconds of the horizon (a quick look).
+    /// Run only this many seconds of the spec's [horizon] (a quick look).
     #[arg(long, value_name = "S")]
     pub seconds: Option<f64>,
     /// For nonlinear models: covariance-only or end-to-end (overrides the spec).
@@ -249,6 +302,10 @@ pub fn execute(cli: Cli) -> Result<u8, Failure> {
             check("check", plan, a.seconds, a.mode, &a.output)
         }
         Some(Command::Noise(a)) => noise(&a),
+        Some(Command::SpecFormat) => {
+            output::print(SPEC_FORMAT)?;
+            Ok(EXIT_PASS)
+        }
         Some(Command::Cost(a)) => cost(&a),
         Some(Command::Trials(a)) => crate::consistency::command::execute(&a),
         Some(Command::Constants(a)) => crate::constants::command::execute(&a),

@@ -904,6 +904,49 @@ fn golden(name: &str, text: &str) {
 }
 
 #[test]
+fn the_spec_format_comes_from_the_binary() {
+    // An installed binary has no repository: `check --help` summarises the
+    // format itself and `spec-format` prints the whole page, the same text
+    // as docs/spec-format.md.
+    let help = cairn(&["check", "--help"]);
+    let help = String::from_utf8_lossy(&help.stdout);
+    for key in [
+        "[[state]]",
+        "[model]",
+        "[[channel]]",
+        "[horizon]",
+        "[flash]",
+        "precision",
+    ] {
+        assert!(help.contains(key), "{key}: {help}");
+    }
+    assert!(help.contains("`cairn spec-format`"), "{help}");
+    assert!(!help.contains("see docs/spec-format.md"), "{help}");
+    let out = cairn(&["spec-format"]);
+    assert_eq!(out.status.code(), Some(0));
+    let docs = std::fs::read_to_string(
+        Path::new(env!("CARGO_MANIFEST_DIR")).join("../docs/spec-format.md"),
+    )
+    .unwrap();
+    assert_eq!(String::from_utf8_lossy(&out.stdout), docs);
+}
+
+#[test]
+fn cost_help_and_the_readme_agree_on_the_m7() {
+    // The M4 figures are traced; the M7 column is the same trace priced with
+    // a rough table. Both the help and the README say so in the same words.
+    let out = cairn(&["cost", "--help"]);
+    let help = String::from_utf8_lossy(&out.stdout);
+    let readme =
+        std::fs::read_to_string(Path::new(env!("CARGO_MANIFEST_DIR")).join("../README.md"))
+            .unwrap();
+    for text in [help.as_ref(), readme.as_str()] {
+        assert!(text.contains("rough, not traced on an M7"), "{text}");
+        assert!(text.contains("the same M4 instruction trace"), "{text}");
+    }
+}
+
+#[test]
 fn help_texts_match_their_golden_files() {
     for (name, args) in [
         ("help.txt", vec!["--help"]),
