@@ -904,6 +904,35 @@ fn golden(name: &str, text: &str) {
 }
 
 #[test]
+fn the_plot_shows_coinciding_variants() {
+    // At d = 1e-4 f32 conventional and f32 Joseph are refused at the same
+    // step with the same error (docs/references.md, Dyer-McReynolds): their
+    // curves coincide, so the legend says so; every variant has its own
+    // marker (shape by form, fill by precision) and the palette is our own.
+    let svg = scratch("dm-plot.svg");
+    let out = cairn(&[
+        "check",
+        specs().join("dyer-mcreynolds-1e-4.toml").to_str().unwrap(),
+        "--quiet",
+        "--plot",
+        svg.to_str().unwrap(),
+    ]);
+    assert_eq!(out.status.code(), Some(1));
+    let text = std::fs::read_to_string(&svg).unwrap();
+    assert!(
+        text.contains(">f32 joseph (same as f32 conventional) (FAIL)<"),
+        "{text}"
+    );
+    assert!(!text.contains("f32 u-d (same as"), "{text}");
+    for (shape, count) in [("<circle", 2), ("<rect x=", 2), ("<path d=", 2)] {
+        assert!(text.matches(shape).count() >= count, "{shape}: {text}");
+    }
+    for colour in cairn_host_check::report::PALETTE.iter().take(6) {
+        assert!(text.contains(colour), "{colour}");
+    }
+}
+
+#[test]
 fn the_spec_format_comes_from_the_binary() {
     // An installed binary has no repository: `check --help` summarises the
     // format itself and `spec-format` prints the whole page, the same text
