@@ -620,7 +620,7 @@ than any variant that passes now)",
                 " (the spec's choice)".to_string()
             } else {
                 format!(
-                    " (the cheapest that passes; the spec flashes {}: set [flash] to change it)",
+                    " (not the spec's choice, {}: change [flash] to flash it)",
                     run.flash
                 )
             };

@@ -582,7 +582,7 @@ fn horizon(loc: &Locator<'_>, raw: &RawSpec, step_hz: f64) -> R<u64> {
             return Err(loc.error(
                 s.span(),
                 "horizon.steps",
-                format!("{v} steps: use 1 to {MAX_STEPS:e}"),
+                format!("{v} steps: use 1 to {MAX_STEPS}"),
             ));
         }
         v as f64
@@ -597,7 +597,7 @@ fn horizon(loc: &Locator<'_>, raw: &RawSpec, step_hz: f64) -> R<u64> {
         return Err(loc.error(
             raw.horizon.span(),
             "horizon",
-            format!("the horizon is {steps} steps: use 1 to {MAX_STEPS:e}"),
+            format!("the horizon is {steps} steps: use 1 to {MAX_STEPS}"),
         ));
     }
     Ok(steps as u64)

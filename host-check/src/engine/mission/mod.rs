@@ -309,7 +309,7 @@ fn covariance_case(inputs: &MissionInputs<'_>, run: &RunResult) -> (Case, String
                     Case::NotSteady,
                     format!(
                         "not yet steady: the reference is {d:.1e} from the Riccati solution (bound \
-                         {STEADY_TOLERANCE:.0e}) at the end of the horizon; {tail}"
+                         {STEADY_TOLERANCE:.0e}) at the end of the run; {tail}"
                     ),
                 ),
                 None => (
