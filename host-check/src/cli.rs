@@ -42,7 +42,7 @@ const CHECK_HELP: &str = concat!(
   [horizon]      seconds, hours or steps: the length of the run
   [mission]      days, hours or seconds the filter must last (default: the run)
   [verdict]      thresholds: max_relative_error, max_asymmetry, max_gain_error,
-                 max_state_difference, max_steady_distance, max_transient_excess
+                 max_state_difference_sd, max_steady_distance, max_transient_excess
   [flash]        the spec's choice: precision (\"f32\", \"f64\") and form
                  (\"joseph\", \"conventional\", \"u-d\")
   [reference]    csv (an external covariance trajectory) and tolerance

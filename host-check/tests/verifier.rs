@@ -242,6 +242,26 @@ fn the_old_flash_key_is_accepted_with_a_note() {
     let out = cairn(&["check", both.to_str().unwrap(), "--quiet"]);
     assert_eq!(out.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&out.stderr).contains("flash.scalar"));
+    // The same for `[verdict] max_state_difference`, now `_sd`: f32 U-D's
+    // state differs from the f64 run by 2.45e-4 sd here (the golden report),
+    // so a limit of 1e-5 read from the old key fails it (exit 1).
+    let old = scratch("dm-old-sd-key.toml");
+    std::fs::write(
+        &old,
+        format!(
+            "{text}\n[verdict]\nmax_state_difference = 1e-5\n[flash]\nprecision = \"f32\"\nform = \"u-d\"\n"
+        ),
+    )
+    .unwrap();
+    let out = cairn(&["check", old.to_str().unwrap(), "--quiet"]);
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(1), "{err}");
+    assert!(
+        err.contains(
+            "`verdict.max_state_difference` is deprecated, write `verdict.max_state_difference_sd`"
+        ),
+        "{err}"
+    );
 }
 
 #[test]

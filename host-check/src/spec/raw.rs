@@ -226,6 +226,8 @@ pub struct RawVerdict {
     /// Largest relative distance of the late-run covariance from the steady state.
     pub max_steady_distance: Option<Spanned<f64>>,
     /// Largest state difference from the f64 run, in standard deviations.
+    pub max_state_difference_sd: Option<Spanned<f64>>,
+    /// The old name of `max_state_difference_sd`, accepted for one release.
     pub max_state_difference: Option<Spanned<f64>>,
     /// Largest accepted relative excess of a steady-gain filter's
     /// covariance over the optimal one during its transient.

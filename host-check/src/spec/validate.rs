@@ -424,9 +424,29 @@ pub(super) fn plan(loc: &Locator<'_>, raw: RawSpec, base: Option<&Path>) -> R<Pl
         if let Some(t) = &v.max_gain_error {
             thresholds.max_gain_error = positive(loc, t, "verdict.max_gain_error")?;
         }
-        if let Some(t) = &v.max_state_difference {
-            thresholds.max_state_difference_sigma =
-                positive(loc, t, "verdict.max_state_difference")?;
+        match (&v.max_state_difference_sd, &v.max_state_difference) {
+            (Some(_), Some(old)) => {
+                return Err(loc.error(
+                    old.span(),
+                    "verdict.max_state_difference",
+                    "give `max_state_difference_sd` only (`max_state_difference` is its old name)"
+                        .to_string(),
+                ));
+            }
+            (Some(t), None) => {
+                thresholds.max_state_difference_sigma =
+                    positive(loc, t, "verdict.max_state_difference_sd")?;
+            }
+            (None, Some(old)) => {
+                deprecated(
+                    loc,
+                    "verdict.max_state_difference",
+                    "verdict.max_state_difference_sd",
+                );
+                thresholds.max_state_difference_sigma =
+                    positive(loc, old, "verdict.max_state_difference")?;
+            }
+            (None, None) => {}
         }
         if let Some(t) = &v.max_steady_distance {
             thresholds.max_steady_distance = Some(positive(loc, t, "verdict.max_steady_distance")?);
