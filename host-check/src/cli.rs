@@ -186,7 +186,7 @@ pub struct Output {
     pub no_progress: bool,
     /// The mission the filter must last, e.g. 30d, 12h, 90m or 3600s
     /// (overrides the spec's mission table; default: the run's length,
-    /// the spec's [horizon]).
+    /// the spec's `[horizon]`).
     #[arg(long, value_name = "LENGTH")]
     pub mission: Option<String>,
     /// Also estimate the chosen variant's cycles per step: builds
@@ -201,7 +201,7 @@ pub struct Output {
 pub struct CheckArgs {
     /// The spec file (TOML).
     pub spec: PathBuf,
-    /// Run only this many seconds of the spec's [horizon] (a quick look).
+    /// Run only this many seconds of the spec's `[horizon]` (a quick look).
     #[arg(long, value_name = "S")]
     pub seconds: Option<f64>,
     /// For nonlinear models: covariance-only or end-to-end (overrides the spec).
