@@ -338,7 +338,7 @@ fn json_report_carries_every_figure() {
         "wna",
         &["--seconds", "60"],
     );
-    assert_eq!(r["format"], 1);
+    assert_eq!(r["format"], 2);
     assert!(r["note"].as_str().unwrap().contains("not a safety case"));
     let variants = r["run"]["variants"].as_array().unwrap();
     assert!(variants.len() >= 4);

@@ -130,7 +130,7 @@ impl<'a> Report<'a> {
             })
             .collect();
         Self {
-            format: 1,
+            format: 2,
             title: &plan.title,
             spec: &plan.file,
             states: &plan.states,
