@@ -1,4 +1,4 @@
-//! The U-D factored filter and the constant-gain filter against published
+//! The U-D factored filter and the steady-gain filter against published
 //! behaviour and closed forms.
 
 use cairn_core::{Conventional, CovarianceForm, FilterError, Joseph, Kalman, SteadyGain, UdKalman};
@@ -153,7 +153,7 @@ fn ud_refusals_change_nothing() {
 #[test]
 fn steady_gain_filter_uses_the_closed_form_gain() {
     // Random walk in white noise, q = 0.01, r = 1: steady prior P = 0.1051249,
-    // K = 0.0951249 (closed form, docs/references.md, "computed"). The constant-gain
+    // K = 0.0951249 (closed form, docs/references.md, "computed"). The steady-gain
     // filter's posterior estimate after one update is x + K (z - x).
     let (q, r) = (0.01_f64, 1.0_f64);
     let p = (q + (q * q + 4.0 * q * r).sqrt()) / 2.0;

@@ -23,6 +23,46 @@ const EXIT_CODES: &str = "Exit codes:
 A closed standard output (a pipe whose reader has gone) ends the output
 quietly; the exit code is the one above.";
 
+/// The whole spec format (docs/spec-format.md), built into the binary:
+/// `cairn spec-format` prints it.
+pub const SPEC_FORMAT: &str = include_str!("../../docs/spec-format.md");
+
+/// `check --help`: the spec format in one screen, then the exit codes.
+const CHECK_HELP: &str = concat!(
+    "The spec file (TOML; unknown fields are errors; `cairn spec-format` prints the whole format,
+`cairn demo --print-spec` a complete example):
+  title, seed    a title for the report; the seed of the synthetic noise
+  [[state]]      name and unit of each state, in order (1 to 24 states)
+  [model]        kind = \"continuous\" (a, g, noise), \"discrete\" (f, q or q_diag) or
+                 \"planar-pose\" (speed_noise, yaw_rate_noise, profile or profile_csv,
+                 mode, origin_shift_m); step_hz
+  [[channel]]    name, rate_hz, h (or fix for the pose model), r, r_diag or noise;
+                 dropouts, gate
+  [start]        x, and p, p_diag or std
+  [horizon]      seconds, hours or steps: the length of the run
+  [mission]      days, hours or seconds the filter must last (default: the run)
+  [verdict]      thresholds: max_relative_error, max_asymmetry, max_gain_error,
+                 max_state_difference_sd, max_steady_distance, max_transient_excess
+  [flash]        the spec's choice: precision (\"f32\", \"f64\") and form
+                 (\"joseph\", \"conventional\", \"u-d\")
+  [reference]    csv (an external covariance trajectory) and tolerance
+A noise figure: { KIND = VALUE, unit = \"...\" } with KIND density, psd, random_walk,
+bias_instability, rate_random_walk, quantization, std or variance; optional sided,
+per, at_hz, quantity, correlation_s.
+
+",
+    "Exit codes:
+  0  the variant to flash (default f32 joseph) passes, for the whole mission
+  1  it fails, is projected to cross a limit within the mission, the run
+     cannot decide the mission (\"undecided: run at least H\"), or the spec's
+     external reference disagrees with ours (a numerical pass is not a
+     safety case; see the report)
+  2  bad input: a malformed or inconsistent spec, an unreadable file, a bad
+     option, an output that cannot be written or that names an input
+A closed standard output (a pipe whose reader has gone) ends the output
+quietly; the exit code is the one above."
+);
+
 /// Checks a Kalman filter's single-precision numerics before it is flashed:
 /// runs cairn-core's own code in f32 and f64, in every covariance form,
 /// against an extended-precision reference on your model's schedule, and
@@ -42,9 +82,16 @@ pub struct Cli {
 /// The subcommands.
 #[derive(Debug, Subcommand)]
 pub enum Command {
-    /// Check the filter a spec file describes (see docs/spec-format.md).
-    #[command(after_help = EXIT_CODES)]
+    /// Check the filter a spec file describes (`cairn spec-format` prints
+    /// the format).
+    #[command(after_help = CHECK_HELP)]
     Check(CheckArgs),
+    /// Print the spec file format, the whole reference (built into the
+    /// binary).
+    ///
+    /// The same text as docs/spec-format.md in the source repository.
+    #[command(after_help = "Exit codes:\n  0  printed")]
+    SpecFormat,
     /// Check the built-in demo: an invented survey rover, one hour of wheel
     /// odometry at 200 Hz with beacon position fixes and sun-compass
     /// heading fixes.
@@ -54,10 +101,15 @@ pub enum Command {
     /// show each step (no check is run).
     #[command(after_help = "Exit codes:\n  0  converted\n  2  bad figure or unit")]
     Noise(NoiseArgs),
-    /// Estimate the cycles of one predict and one update on a Cortex-M4F (and
-    /// a Cortex-M7): builds on-target's cost probe (or, with --probe, the
-    /// user's own probe crate), traces it under QEMU and weights the executed
-    /// instructions with the published cycle tables.
+    /// Estimate the cycles of one predict and one update on a Cortex-M4F
+    /// (traced under QEMU; an M7 column, rough).
+    ///
+    /// Builds on-target's cost probe (or, with --probe, the user's own probe
+    /// crate), traces it under QEMU and weights the executed instructions
+    /// with the M4's published cycle table: the M4 figures are the traced
+    /// ones. The "M7 cyc" column is rough, not traced on an M7: the same M4
+    /// instruction trace priced with a dual-issue throughput bound from
+    /// LLVM's M7 latencies, optimistic (dependency stalls not modelled).
     #[command(
         after_help = "Exit codes:\n  0  estimate printed\n  2  bad option, missing tool or failed build/run"
     )]
@@ -133,7 +185,8 @@ pub struct Output {
     #[arg(long)]
     pub no_progress: bool,
     /// The mission the filter must last, e.g. 30d, 12h, 90m or 3600s
-    /// (overrides the spec's mission table; default: the horizon).
+    /// (overrides the spec's mission table; default: the run's length,
+    /// the spec's `[horizon]`).
     #[arg(long, value_name = "LENGTH")]
     pub mission: Option<String>,
     /// Also estimate the chosen variant's cycles per step: builds
@@ -148,16 +201,16 @@ pub struct Output {
 pub struct CheckArgs {
     /// The spec file (TOML).
     pub spec: PathBuf,
-    /// Run only this many seconds of the horizon (a quick look).
+    /// Run only this many seconds of the spec's `[horizon]` (a quick look).
     #[arg(long, value_name = "S")]
     pub seconds: Option<f64>,
     /// For nonlinear models: covariance-only or end-to-end (overrides the spec).
     #[arg(long, value_enum)]
     pub mode: Option<ModeArg>,
-    /// Pose model, end-to-end mode: each variant moves its origin to its
-    /// x, y (whole metres, origin kept in f64) whenever |x| or |y| passes M
-    /// metres (overrides the spec's `recentre_m`).
-    #[arg(long, value_name = "M")]
+    /// Pose model, end-to-end mode, origin shift: each variant moves its
+    /// origin to its x, y (whole metres, origin kept in f64) whenever |x|
+    /// or |y| passes M metres (overrides the spec's `origin_shift_m`).
+    #[arg(long = "origin-shift", alias = "recentre", value_name = "M")]
     pub recentre: Option<f64>,
     /// Report options.
     #[command(flatten)]
@@ -176,9 +229,10 @@ pub struct DemoArgs {
     /// Covariance-only or end-to-end (overrides the spec).
     #[arg(long, value_enum)]
     pub mode: Option<ModeArg>,
-    /// End-to-end mode: each variant moves its origin to its x, y (whole
-    /// metres, origin kept in f64) whenever |x| or |y| passes M metres.
-    #[arg(long, value_name = "M")]
+    /// End-to-end mode, origin shift: each variant moves its origin to its
+    /// x, y (whole metres, origin kept in f64) whenever |x| or |y| passes M
+    /// metres.
+    #[arg(long = "origin-shift", alias = "recentre", value_name = "M")]
     pub recentre: Option<f64>,
     /// Report options.
     #[command(flatten)]
@@ -245,9 +299,13 @@ pub fn execute(cli: Cli) -> Result<u8, Failure> {
             let mut plan = spec::load(&a.spec).map_err(bad)?;
             refuse_clashes(Some(&a.spec), &plan, &a.output)?;
             plan.set_recentre(a.recentre).map_err(|m| bad(Message(m)))?;
-            check(plan, a.seconds, a.mode, &a.output)
+            check("check", plan, a.seconds, a.mode, &a.output)
         }
         Some(Command::Noise(a)) => noise(&a),
+        Some(Command::SpecFormat) => {
+            output::print(SPEC_FORMAT)?;
+            Ok(EXIT_PASS)
+        }
         Some(Command::Cost(a)) => cost(&a),
         Some(Command::Trials(a)) => crate::consistency::command::execute(&a),
         Some(Command::Constants(a)) => crate::constants::command::execute(&a),
@@ -327,7 +385,7 @@ fn demo(a: &DemoArgs) -> Result<u8, Failure> {
     let mut plan = crate::demo::plan().map_err(bad)?;
     refuse_clashes(None, &plan, &a.output)?;
     plan.set_recentre(a.recentre).map_err(|m| bad(Message(m)))?;
-    check(plan, a.seconds, a.mode, &a.output)
+    check("demo", plan, a.seconds, a.mode, &a.output)
 }
 
 /// Refuses report files that name the spec, a file it reads, or each other.
@@ -357,6 +415,7 @@ fn refuse_clashes(spec: Option<&Path>, plan: &Plan, out: &Output) -> Result<(), 
 }
 
 fn check(
+    command: &str,
     mut plan: Plan,
     seconds: Option<f64>,
     mode: Option<ModeArg>,
@@ -420,10 +479,15 @@ fn check(
     }
     if out.quiet {
         output::print(&format!(
-            "{}: flash {} {}; cheapest passing: {}; for the mission: {}\n",
+            "{}: spec's choice {} {} (exit {}); cheapest passing the run: {}; recommended for the mission: {}\n",
             plan.title,
             result.flash,
             if result.flash_passes { "PASS" } else { "FAIL" },
+            if result.flash_passes {
+                EXIT_PASS
+            } else {
+                EXIT_FAIL
+            },
             result.cheapest_passing.as_deref().unwrap_or("none"),
             result
                 .mission
@@ -432,7 +496,7 @@ fn check(
                 .unwrap_or("none")
         ))?;
     } else {
-        output::print(&report::render(&plan, &result))?;
+        output::print(&report::render_as(command, &plan, &result))?;
     }
     if let Some(path) = &out.json {
         let json = Report::new(&plan, &result)
@@ -510,6 +574,36 @@ fn parse_mission(text: &str) -> Result<f64, Failure> {
     }
 }
 
+/// The figure kinds `cairn noise` takes (the spec's noise-figure keys).
+const NOISE_KINDS: [&str; 8] = [
+    "density",
+    "psd",
+    "random_walk",
+    "bias_instability",
+    "rate_random_walk",
+    "quantization",
+    "std",
+    "variance",
+];
+
+/// A conversion error of `cairn noise` told by the option it came from
+/// (the figure was put together from the options: no file, line or field
+/// of it is anything the user wrote).
+fn noise_option_error(e: &spec::SpecError) -> String {
+    let key = e.field.strip_prefix("figure.").unwrap_or(&e.field);
+    let option = match key {
+        "" | "figure" => return e.message.clone(),
+        "unit" => "--unit".to_string(),
+        "sided" => "--sided".to_string(),
+        "per" => "--per".to_string(),
+        "at_hz" => "--at-hz".to_string(),
+        "quantity" => "--quantity".to_string(),
+        "correlation_s" => "--correlation-s".to_string(),
+        kind => format!("the figure `{kind}=`"),
+    };
+    format!("{option}: {}", e.message)
+}
+
 fn noise(a: &NoiseArgs) -> Result<u8, Failure> {
     let Some((kind, value)) = a.figure.split_once('=') else {
         return Err(bad(Message(format!(
@@ -517,13 +611,39 @@ fn noise(a: &NoiseArgs) -> Result<u8, Failure> {
             a.figure
         ))));
     };
+    let (kind, value) = (kind.trim(), value.trim());
+    if !NOISE_KINDS.contains(&kind) {
+        return Err(bad(Message(format!(
+            "`{}`: unknown kind `{kind}`; use one of {}",
+            a.figure,
+            NOISE_KINDS.join(", ")
+        ))));
+    }
+    let Ok(number) = value.parse::<f64>() else {
+        return Err(bad(Message(format!(
+            "`{}`: the value `{value}` is not a number",
+            a.figure
+        ))));
+    };
+    for (option, v, what) in [
+        ("--at-hz", a.at_hz, "a sample rate in Hz"),
+        (
+            "--correlation-s",
+            a.correlation_s,
+            "a correlation time in s",
+        ),
+        ("--rate", a.rate, "a filter rate in Hz"),
+    ] {
+        if let Some(x) = v
+            && !(x.is_finite() && x > 0.0)
+        {
+            return Err(bad(Message(format!(
+                "{option} must be {what}, a positive number; got {x}"
+            ))));
+        }
+    }
     let quote = |s: &str| format!("\"{}\"", s.replace('\\', "\\\\").replace('"', "\\\""));
-    let mut doc = format!(
-        "{} = {}\nunit = {}\n",
-        kind.trim(),
-        value.trim(),
-        quote(&a.unit)
-    );
+    let mut doc = format!("{kind} = {number:?}\nunit = {}\n", quote(&a.unit));
     if let Some(s) = &a.sided {
         doc.push_str(&format!("sided = {}\n", quote(s)));
     }
@@ -539,20 +659,9 @@ fn noise(a: &NoiseArgs) -> Result<u8, Failure> {
     if let Some(c) = a.correlation_s {
         doc.push_str(&format!("correlation_s = {c:?}\n"));
     }
-    if let Some(r) = a.rate
-        && !(r.is_finite() && r > 0.0)
-    {
-        return Err(bad(Message(format!("--rate must be positive, got {r}"))));
-    }
-    let rec = spec::convert_standalone(&doc, a.rate).map_err(bad)?;
-    let mut text = format!("{}\n", rec.given);
-    for s in &rec.steps {
-        text.push_str(&format!(
-            "  {:<44} {:<28} = {:e} {}\n",
-            s.what, s.formula, s.value, s.unit
-        ));
-    }
-    text.push_str(&format!("=> {} = {:e}\n", rec.result_is, rec.result));
+    let rec =
+        spec::convert_standalone(&doc, a.rate).map_err(|e| bad(Message(noise_option_error(&e))))?;
+    let text = format!("{}\n{}", rec.given, rec.chain_text(2));
     output::print(&text)?;
     Ok(EXIT_PASS)
 }

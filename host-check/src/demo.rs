@@ -6,10 +6,13 @@ use crate::spec::{self, Plan, SpecError};
 /// The demo's spec text (host-check/specs/demo.toml).
 pub const SPEC: &str = include_str!("../specs/demo.toml");
 
+/// The name the demo's plan carries as its spec file.
+pub const FILE: &str = crate::engine::plan::DEMO_FILE;
+
 /// The demo's validated plan.
 ///
 /// # Errors
 /// Never in a released build (the spec is tested); a [`SpecError`] otherwise.
 pub fn plan() -> Result<Plan, SpecError> {
-    spec::parse("<built-in demo: specs/demo.toml>", SPEC, None)
+    spec::parse(FILE, SPEC, None)
 }

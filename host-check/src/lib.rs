@@ -14,7 +14,7 @@
 //! | [`consistency`] | Monte Carlo NEES/NIS against chi-square intervals   |
 //! | [`constants`] | the spec's matrices as `const` arrays for firmware    |
 //! | [`demo`]    | the built-in demo spec                                       |
-//! | [`mission`] | growth over the mission, constant-gain transient, what to flash |
+//! | [`mission`] | growth over the mission, steady-gain transient, what to flash |
 //! | [`numeric`] | double-double, Van Loan, Riccati, noise figures              |
 //! | [`output`]  | standard output and whole-or-nothing file writes             |
 

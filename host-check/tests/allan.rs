@@ -567,7 +567,9 @@ fn cairn_noise_leads_a_bias_random_walk_to_k2_t() {
     let last = out.lines().last().unwrap();
     let value: f64 = last.rsplit(' ').next().unwrap().parse().unwrap();
     let k = 5e-5 * std::f64::consts::PI / 180.0;
-    assert!((value / (k * k * 0.01) - 1.0).abs() < 1e-12, "{last}");
+    // Printed to 4 significant digits (the chain's one number format).
+    let want = k * k * 0.01;
+    assert_eq!(format!("{value:.3e}"), format!("{want:.3e}"), "{last}");
     assert!(last.contains("random-walk bias state"), "{last}");
     // Bias instability: Gauss-Markov Qd = sigma^2 (1 - exp(-2T/tau))
     // (closed form) with sigma = 0.664 B / 0.617.
@@ -586,7 +588,7 @@ fn cairn_noise_leads_a_bias_random_walk_to_k2_t() {
     let value: f64 = last.rsplit(' ').next().unwrap().parse().unwrap();
     let s = noise::bias_instability_sigma(3e-4 * std::f64::consts::PI / 180.0);
     let want = s * s * (1.0 - (-2.0 * 0.01 / 200.0f64).exp());
-    assert!((value / want - 1.0).abs() < 1e-9, "{last}");
+    assert_eq!(format!("{value:.3e}"), format!("{want:.3e}"), "{last}");
     let (code, _, err) = cairn(&[
         "noise",
         "bias_instability=3e-4",

@@ -546,7 +546,7 @@ fn re_centring_makes_the_far_rover_consistent_in_f32() {
     // The f64 filter gains nothing from the shift: whole metres are exact.
     let before = f64_far.nees.as_ref().unwrap().time_average;
     assert!((a - before).abs() <= 1e-9 * a, "{before} vs {a}");
-    assert!(local.text().contains("re-centred 1.0 times per run"));
+    assert!(local.text().contains("1.0 origin shifts per run"));
 }
 
 #[test]
@@ -606,21 +606,24 @@ fn the_trials_subcommand_re_centres_on_request() {
     // 20 km out, f32 is optimistic (exit 1); with --recentre 10 it is
     // consistent (exit 0) and the report says the lanes re-centre.
     assert_eq!(cairn(&common).status.code(), Some(1));
-    let out = cairn(&[&common[..], &["--recentre", "10", "--json", json_arg]].concat());
+    let out = cairn(&[&common[..], &["--origin-shift", "10", "--json", json_arg]].concat());
     let text = String::from_utf8_lossy(&out.stdout).into_owned();
     assert_eq!(out.status.code(), Some(0), "{text}");
-    assert!(text.contains("Lanes re-centre") && text.contains("passes 10 m"));
+    assert!(text.contains("Origin shift: each variant") && text.contains("passes 10 m"));
     let report: serde_json::Value =
         serde_json::from_str(&std::fs::read_to_string(&json).unwrap()).unwrap();
     let _ = std::fs::remove_file(&json);
-    assert_eq!(report["recentre_m"], 10.0);
-    assert_eq!(report["variants"][0]["recentres_per_run"], 1.0);
+    assert_eq!(report["origin_shift_m"], 10.0);
+    assert_eq!(report["variants"][0]["origin_shifts_per_run"], 1.0);
     // The same validation as `cairn check --recentre`.
     let linear = concat!(env!("CARGO_MANIFEST_DIR"), "/specs/wna-tracker.toml");
     for (args, word) in [
-        (vec!["trials", far, "--recentre", "0.5"], "at least 1 m"),
-        (vec!["trials", far, "--recentre", "inf"], "finite"),
-        (vec!["trials", linear, "--recentre", "10"], "planar-pose"),
+        (vec!["trials", far, "--origin-shift", "0.5"], "at least 1 m"),
+        (vec!["trials", far, "--origin-shift", "inf"], "finite"),
+        (
+            vec!["trials", linear, "--origin-shift", "10"],
+            "planar-pose",
+        ),
     ] {
         let out = cairn(&args);
         assert_eq!(out.status.code(), Some(2), "{args:?}");
@@ -631,6 +634,52 @@ fn the_trials_subcommand_re_centres_on_request() {
 
 /// `cairn trials SPEC --runs N --json ...` on the one-state random walk
 /// (20 steps, one channel); returns the report.
+#[test]
+fn trials_list_variants_in_the_checks_order_and_say_which_test_decided() {
+    // The demo's first 2000 steps, 50 runs: the time average of NEES sits
+    // just below its interval (2.90 against [2.98, 3.02]; that interval
+    // treats the time-correlated NEES samples as independent) while every
+    // point is inside its own: the verdict is the per-point test's, and the
+    // row says so. Variants asked for out of order come in the check's order.
+    let out = cairn(&[
+        "trials",
+        "--no-progress",
+        "--variant",
+        "f64-joseph",
+        "--variant",
+        "f32-conventional",
+        "--json",
+        std::env::temp_dir()
+            .join(format!("cairn-trials-order-{}.json", std::process::id()))
+            .to_str()
+            .unwrap(),
+    ]);
+    let text = String::from_utf8_lossy(&out.stdout);
+    assert_eq!(out.status.code(), Some(0), "{text}");
+    let first = text
+        .find("\nf32 conventional\n")
+        .expect("f32 conventional listed");
+    let second = text.find("\nf64 joseph\n").expect("f64 joseph listed");
+    assert!(first < second, "{text}");
+    let nees = text
+        .lines()
+        .find(|l| l.trim_start().starts_with("NEES"))
+        .expect("a NEES row");
+    assert!(
+        nees.ends_with("consistent (per-point test; time avg outside its interval)"),
+        "{nees}"
+    );
+    assert!(text.contains("(per-point test: "), "{text}");
+    let json = std::env::temp_dir().join(format!("cairn-trials-order-{}.json", std::process::id()));
+    let report: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(&json).unwrap()).unwrap();
+    let _ = std::fs::remove_file(&json);
+    // The run is named as in the check's JSON: `name` + `spec`.
+    assert_eq!(report["variants"][0]["name"], "f32 conventional");
+    assert!(report["spec"].as_str().is_some_and(|s| s.contains("demo")));
+    assert!(report.get("label").is_none() && report.get("file").is_none());
+}
+
 fn trials_json(runs: &str, tag: &str) -> serde_json::Value {
     let spec = concat!(env!("CARGO_MANIFEST_DIR"), "/tests/data/random-walk.toml");
     let json = std::env::temp_dir().join(format!("cairn-trials-{tag}-{}.json", std::process::id()));

@@ -203,7 +203,7 @@ pub extern "C" fn full_step(z: f32) -> f32 {
     }
 }
 
-/// One predict and update of the constant-gain filter; NaN when refused.
+/// One predict and update of the steady-gain filter; NaN when refused.
 #[unsafe(no_mangle)]
 pub extern "C" fn steady_step(z: f32) -> f32 {
     let Ok(mut filter) = SteadyGain::<f32, { model::STATES }, { model::STEADY_M }>::try_new(
@@ -290,7 +290,7 @@ fn the_constants_subcommand_writes_the_file() {
             spec.to_str().unwrap(),
             "-o",
             path.to_str().unwrap(),
-            "--scalar",
+            "--precision",
             "f64",
         ])
         .output()
@@ -391,7 +391,7 @@ fn a_slower_sensor_gets_the_lifted_steady_state() {
     );
     assert!((value(&every, "STEADY_PRIOR") - 0.105_124_9).abs() < 1e-6);
     assert!((value(&every, "STEADY_GAIN") - 0.095_124_9).abs() < 1e-6);
-    // A rate that is not a whole fraction of the step: no constant gain, and why.
+    // A rate that is not a whole fraction of the step: no steady gain, and why.
     let odd = constants::generate(&gauge(0.01, 1.0, 30.0), Precision::F32).unwrap();
     assert!(odd.steady_note.unwrap().contains("whole fraction"));
     assert!(!odd.source.contains("STEADY_GAIN"));

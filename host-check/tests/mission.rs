@@ -1,4 +1,4 @@
-//! The mission-length verdict, the constant-gain transient and the final
+//! The mission-length verdict, the steady-gain transient and the final
 //! "what to flash" verdict, on published examples and the demo.
 
 use std::path::{Path, PathBuf};
@@ -88,7 +88,7 @@ fn the_wna_tracker_reaches_steady_state_and_its_error_is_level() {
     }
     // The flashed f32 Joseph passes for the mission: exit code 0.
     assert!(r.flash_passes);
-    // Constant gain is offered (one rate, no dropouts) and its transient is
+    // Steady gain is offered (one rate, no dropouts) and its transient is
     // reported; from P0 = diag(0.01, 0.25) it is far above the optimum at
     // first, so with the default limit it is passed over.
     let cg = m.constant_gain.as_ref().expect("offered for this schedule");
@@ -96,7 +96,7 @@ fn the_wna_tracker_reaches_steady_state_and_its_error_is_level() {
     assert!(cg.max_excess > plan.thresholds.max_relative_error);
     assert!(cg.settle_time_s.is_some());
     assert!(
-        m.verdict.passed_over[0].starts_with("f32 constant gain"),
+        m.verdict.passed_over[0].starts_with("f32 steady gain"),
         "{:?}",
         m.verdict.passed_over
     );
@@ -166,19 +166,19 @@ fn the_fixed_gain_variance_converges_to_the_closed_form() {
 #[test]
 fn constant_gain_is_chosen_when_its_transient_is_accepted() {
     // Started at the steady posterior variance P = 1.618034 - 1 (q = r = 1,
-    // docs/references.md): no transient, so the constant gain is cheapest.
+    // docs/references.md): no transient, so the steady gain is cheapest.
     let plan = random_walk(1.0, 1.0, 0.618_033_988_749_894_9, 200, "");
     let res = run_plan(&plan);
     let m = mission(&res);
     let cg = m.constant_gain.as_ref().expect("offered");
     assert!(cg.max_excess < 1e-12, "{}", cg.max_excess);
-    assert_eq!(m.verdict.choice.as_deref(), Some("f32 constant gain"));
+    assert_eq!(m.verdict.choice.as_deref(), Some("f32 steady gain"));
     // Far from steady state it is chosen only when the spec accepts the
     // transient.
     let strict = run_plan(&random_walk(1.0, 1.0, 100.0, 200, ""));
     assert_ne!(
         mission(&strict).verdict.choice.as_deref(),
-        Some("f32 constant gain")
+        Some("f32 steady gain")
     );
     let lenient = run_plan(&random_walk(
         1.0,
@@ -189,7 +189,7 @@ fn constant_gain_is_chosen_when_its_transient_is_accepted() {
     ));
     assert_eq!(
         mission(&lenient).verdict.choice.as_deref(),
-        Some("f32 constant gain")
+        Some("f32 steady gain")
     );
 }
 
@@ -226,7 +226,7 @@ fn dyer_mcreynolds_at_1e_4_names_u_d_or_f64() {
     for name in ["f32 conventional", "f32 joseph"] {
         let v = m.variants.iter().find(|v| v.name == name).expect("run");
         assert!(!v.passes_mission, "{name} should fail");
-        assert_eq!(v.crossing, "fails within the horizon");
+        assert_eq!(v.crossing, "fails within the run");
     }
     // One step cannot be tested for a trend: U-D is undecided for 30 days
     // (and says how long to run), not passed; nothing cheaper is chosen.
@@ -286,8 +286,9 @@ fn the_demo_with_a_30_day_mission_gives_a_verdict_for_every_variant() {
         assert!(
             crossing == "never"
                 || crossing.starts_with("after ")
+                || crossing == "no crossing in sight (beyond 100 x the mission)"
                 || crossing.starts_with("undecided: run at least ")
-                || crossing == "fails within the horizon",
+                || crossing == "fails within the run",
             "{crossing}"
         );
         // A time when it crosses, null for never and undecided.
@@ -316,7 +317,7 @@ fn the_demo_with_a_30_day_mission_gives_a_verdict_for_every_variant() {
     assert!(m["verdict"]["order"].is_array());
     assert!(m["verdict"]["choice"].is_string() || m["verdict"]["choice"].is_null());
     assert!(
-        m["constant_gain_note"]
+        m["steady_gain_note"]
             .as_str()
             .expect("a reason")
             .contains("nonlinear")
@@ -338,7 +339,10 @@ fn the_mission_is_read_from_the_command_line_and_the_spec() {
     assert_eq!(out.status.code(), Some(0));
     let text = String::from_utf8_lossy(&out.stdout);
     assert!(text.contains("Mission: 10.0 min"), "{text}");
-    assert!(text.contains("What to flash for the mission: f32 conventional"));
+    assert!(
+        text.contains("Recommendation for the 10.0 min mission: f32 conventional"),
+        "{text}"
+    );
     // Over 30 days, 20 s cannot decide the f32 state difference from the
     // f64 run (the shuttle wanders from the origin, where f32 resolves its
     // position ever more coarsely): undecided, which is not a pass (exit
@@ -350,11 +354,15 @@ fn the_mission_is_read_from_the_command_line_and_the_spec() {
     assert_eq!(out.status.code(), Some(1));
     let text = String::from_utf8_lossy(&out.stdout);
     assert!(text.contains("Mission: 30.0 days"), "{text}");
-    assert!(text.contains("Flash f32 joseph: UNDECIDED"), "{text}");
+    assert!(
+        text.contains("Spec's choice ([flash]): f32 joseph UNDECIDED"),
+        "{text}"
+    );
+    assert!(text.contains("-> exit 1"), "{text}");
     assert!(text.contains("undecided: run at least"), "{text}");
     assert!(text.contains("(state)"), "{text}");
     assert!(
-        text.contains("What to flash for the mission: undecided; run at least"),
+        text.contains("Recommendation for the 30.0 days mission: undecided; run at least"),
         "{text}"
     );
     assert!(

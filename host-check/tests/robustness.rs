@@ -124,10 +124,10 @@ fn a_unit_nested_thousands_deep_is_refused_not_a_stack_overflow() {
 fn f32_constants_refuse_a_value_that_would_be_written_as_zero() {
     // 1e-300 is below the smallest f32 subnormal (1.4e-45): as f32 it is 0.
     let spec = linear_spec("tiny-q", "q = [[1.0]]", "q = [[1e-300]]");
-    let out = cairn(&["constants", spec.to_str().unwrap(), "--scalar", "f32"]);
+    let out = cairn(&["constants", spec.to_str().unwrap(), "--precision", "f32"]);
     bad_input(&out, &["Q entry (0, 0)", "1e-300", "written as 0.0"]);
     // f64 holds it exactly: written, exit 0.
-    let out = cairn(&["constants", spec.to_str().unwrap(), "--scalar", "f64"]);
+    let out = cairn(&["constants", spec.to_str().unwrap(), "--precision", "f64"]);
     assert_eq!(out.status.code(), Some(0), "{}", stderr(&out));
     assert!(String::from_utf8_lossy(&out.stdout).contains("1e-300"));
 }
@@ -400,7 +400,10 @@ fn an_external_reference_that_disagrees_fails_the_verdict() {
     assert_eq!(out.status.code(), Some(1), "{}", stderr(&out));
     let text = String::from_utf8_lossy(&out.stdout);
     assert!(text.contains("DISAGREES"), "{text}");
-    assert!(text.contains("Flash f32 joseph: FAIL"), "{text}");
+    assert!(
+        text.contains("Spec's choice ([flash]): f32 joseph FAIL"),
+        "{text}"
+    );
     assert_eq!(r["run"]["flash_passes"], false);
     let reasons = r["run"]["variants"][0]["verdict"]["reasons"].to_string();
     assert!(

@@ -11,9 +11,7 @@ const LEFT: f64 = 80.0;
 const RIGHT: f64 = 200.0;
 const TOP: f64 = 40.0;
 const BOTTOM: f64 = 60.0;
-const COLOURS: [&str; 6] = [
-    "#1f5fa8", "#b8461b", "#2e7d32", "#6a3d9a", "#8c6d1f", "#00838f",
-];
+const COLOURS: [&str; 8] = crate::report::PALETTE;
 
 fn escape(text: &str) -> String {
     crate::output::one_line(text)

@@ -35,17 +35,18 @@ pub struct TrialsArgs {
     /// small does.
     #[arg(long, value_name = "X", default_value_t = 1.0)]
     pub filter_q_scale: f64,
-    /// Pose model: each variant moves its origin to its x, y (whole metres,
-    /// origin kept in f64) whenever |x| or |y| passes M metres, and is
-    /// judged on origin + local state (overrides the spec's `recentre_m`).
-    #[arg(long, value_name = "M")]
+    /// Pose model, origin shift: each variant moves its origin to its x, y
+    /// (whole metres, origin kept in f64) whenever |x| or |y| passes M
+    /// metres, and is judged on origin + local state (overrides the spec's
+    /// `origin_shift_m`).
+    #[arg(long = "origin-shift", alias = "recentre", value_name = "M")]
     pub recentre: Option<f64>,
     /// Confidence of the two-sided chi-square intervals.
     #[arg(long, value_name = "P", default_value_t = 0.95)]
     pub confidence: f64,
     /// Run only this variant, e.g. f32-joseph, f64-conventional, f32-u-d
     /// (repeatable; all six by default).
-    #[arg(long = "variant", value_name = "SCALAR-FORM")]
+    #[arg(long = "variant", value_name = "PRECISION-FORM")]
     pub variants: Vec<String>,
     /// Write the whole report (with decimated NEES/NIS series) as JSON.
     #[arg(long, value_name = "PATH")]
@@ -100,7 +101,7 @@ pub fn execute(a: &TrialsArgs) -> Result<u8, Failure> {
     for v in &a.variants {
         let parsed = parse_variant(v).ok_or_else(|| {
             bad(format!(
-                "--variant `{v}`: write SCALAR-FORM with SCALAR f32 or f64 and FORM joseph, conventional or u-d"
+                "--variant `{v}`: write PRECISION-FORM with PRECISION f32 or f64 and FORM joseph, conventional or u-d"
             ))
         })?;
         if !variants.contains(&parsed) {
@@ -111,6 +112,9 @@ pub fn execute(a: &TrialsArgs) -> Result<u8, Failure> {
     if !chosen {
         variants = all_variants();
     }
+    // In the check's order (cheapest first), whatever the order of the
+    // options.
+    variants.sort_by_key(|v| v.cost_rank);
     let steps = match a.seconds {
         Some(s) if !(s.is_finite() && s > 0.0) => {
             return Err(bad(format!("--seconds must be positive, got {s}")));

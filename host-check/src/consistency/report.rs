@@ -223,6 +223,7 @@ pub struct ChannelSummary {
 #[derive(Debug, Clone, Serialize)]
 pub struct VariantReport {
     /// "f32 joseph" and so on.
+    #[serde(rename = "name")]
     pub label: String,
     /// Scalar type and form.
     pub variant: Variant,
@@ -239,7 +240,8 @@ pub struct VariantReport {
     /// Why, in words.
     pub reason: String,
     /// Times the filter moved its origin, per run on average (0 without
-    /// re-centring; a start beyond the distance counts once).
+    /// an origin shift; a start beyond the distance counts once).
+    #[serde(rename = "origin_shifts_per_run")]
     pub recentres_per_run: f64,
 }
 
@@ -362,6 +364,7 @@ pub struct Report {
     /// Spec title.
     pub title: String,
     /// Spec file.
+    #[serde(rename = "spec")]
     pub file: String,
     /// Monte Carlo runs.
     pub runs: usize,
@@ -377,8 +380,9 @@ pub struct Report {
     pub seed: u64,
     /// Seconds one run covers (steps x the step length).
     pub run_seconds: f64,
-    /// The re-centring distance the pose filters used, m (`None`: they
+    /// The origin-shift distance the pose filters used, m (`None`: they
     /// kept the spec's frame).
+    #[serde(rename = "origin_shift_m")]
     pub recentre_m: Option<f64>,
     /// One entry per variant.
     pub variants: Vec<VariantReport>,
@@ -405,7 +409,7 @@ impl Report {
              consistent when {:.0}% of its points fall inside, or when a consistent filter would leave\n\
              as many outside, and as many outside the {}% interval, with a {:.0}% chance or more.\n\
              The time average's interval treats samples as independent: exact for NIS, only\n\
-             indicative for NEES (correlated in time)\n",
+             indicative for NEES (correlated in time); it is shown, the per-point test decides\n",
             100.0 * MIN_INSIDE,
             100.0 * (1.0 - FAR_RATE),
             100.0 * SIGNIFICANCE
@@ -413,8 +417,8 @@ impl Report {
         if let Some(d) = self.recentre_m {
             let _ = writeln!(
                 out,
-                "Lanes re-centre: each variant moves its origin to its x, y (whole metres, kept in f64)\n\
-                 through the core's shift_origin_mut when |x| or |y| passes {d} m (a start beyond it counts\n\
+                "Origin shift: each variant moves its origin to its x, y (whole metres, kept in f64)\n\
+                 through the core's origin shift when |x| or |y| passes {d} m (a start beyond it counts\n\
                  once); fixes reach it minus the origin and NEES is taken on origin + local state, in f64\n"
             );
         }
@@ -437,12 +441,23 @@ impl Report {
             "above",
             "below",
         );
+        let mut average_outside = false;
         for v in &self.variants {
             let _ = writeln!(out, "{}", v.label);
             let mut row = |name: &str, s: &Summary| {
+                // A time average outside its interval beside a verdict
+                // says which test decided it (the per-point one).
+                let mark = if s.verdict != Verdict::Failed
+                    && s.time_average_interval.place(s.time_average) != Place::Inside
+                {
+                    average_outside = true;
+                    " (per-point test; time avg outside its interval)"
+                } else {
+                    ""
+                };
                 let _ = writeln!(
                     out,
-                    "  {:<width$} {:>3} {:>9.4} {:>19} {:>19} {:>6.1}% {:>5.1}% {:>5.1}%  {}",
+                    "  {:<width$} {:>3} {:>9.4} {:>19} {:>19} {:>6.1}% {:>5.1}% {:>5.1}%  {}{mark}",
                     name,
                     s.dof,
                     s.time_average,
@@ -454,7 +469,7 @@ impl Report {
                     100.0 * s.inside,
                     100.0 * s.above,
                     100.0 * s.below,
-                    s.verdict.word()
+                    s.verdict.word(),
                 );
             };
             if let Some(s) = &v.nees {
@@ -472,10 +487,18 @@ impl Report {
             if self.recentre_m.is_some() {
                 let _ = writeln!(
                     out,
-                    "     re-centred {:.1} times per run of {} s on average",
+                    "     {:.1} origin shifts per run of {} s on average",
                     v.recentres_per_run, self.run_seconds
                 );
             }
+        }
+        if average_outside {
+            let _ = writeln!(
+                out,
+                "\n(per-point test: a statistic's verdict comes from its points against the per-point\n\
+                 interval; its time average can leave its own interval, which treats every sample as\n\
+                 independent, without deciding it: for NEES, correlated in time, that interval is too narrow)"
+            );
         }
         out
     }

@@ -11,9 +11,9 @@ use crate::spec::{self, Precision};
 /// Exit codes of `cairn constants`.
 pub const EXIT_CODES: &str = "Exit codes:
   0  written
-  2  bad input: a malformed spec, a value the scalar cannot hold, an unwritable file";
+  2  bad input: a malformed spec, a value the precision cannot hold, an unwritable file";
 
-/// The scalar type of the constants.
+/// The precision of the constants.
 #[derive(Debug, Clone, Copy, ValueEnum)]
 pub enum ScalarArg {
     /// Single precision (the usual choice on a Cortex-M4F).
@@ -30,8 +30,13 @@ pub struct ConstantsArgs {
     /// Write the Rust source here (standard output when omitted).
     #[arg(long, short, value_name = "PATH")]
     pub output: Option<PathBuf>,
-    /// Scalar type of the arrays.
-    #[arg(long, value_enum, default_value = "f32")]
+    /// Precision of the arrays.
+    #[arg(
+        long = "precision",
+        alias = "scalar",
+        value_enum,
+        default_value = "f32"
+    )]
     pub scalar: ScalarArg,
 }
 

@@ -69,7 +69,7 @@ impl fmt::Display for ConstantsError {
             } => write!(
                 f,
                 "{name} entry ({row}, {col}) is {value:e}, below the smallest normal {precision}: \
-                 it would be written as {}; rescale the model's units or use --scalar f64",
+                 it would be written as {}; rescale the model's units or use --precision f64",
                 if *precision == "f32" && (*value as f32) == 0.0 {
                     "0.0".to_string()
                 } else {
@@ -214,7 +214,7 @@ struct Lti {
 /// steady state is that of the lifted model (F^k, sum F^i Q F^i').
 fn steady_inputs(plan: &Plan) -> Result<Lti, String> {
     let ModelPlan::Linear { f, q, .. } = &plan.model else {
-        return Err("the planar pose model is nonlinear: no constant gain".into());
+        return Err("the planar pose model is nonlinear: no steady gain".into());
     };
     let Some(first) = plan.channels.first() else {
         return Err("no measurement channel: no gain".into());
@@ -292,7 +292,7 @@ pub fn generate(plan: &Plan, precision: Precision) -> Result<Generated, Constant
     w.line("// Regenerate rather than edit: the spec file is the source of truth.");
     w.line("//");
     w.line(&format!(
-        "// Scalar type: {t}. Every literal is the shortest decimal that reads back to the exact {t}."
+        "// Precision: {t}. Every literal is the shortest decimal that reads back to the exact {t}."
     ));
     w.line("// Layout: a matrix is `[[T; ROWS]; COLS]`, one inner array per COLUMN (column-major,");
     w.line("// nalgebra's storage order): build it with");

@@ -466,8 +466,9 @@ impl CostReport {
         let _ = writeln!(
             s,
             "\nM4 cycles: Arm Cortex-M4 TRM (DDI 0439) timings as in TI SWCU192 Table 3-27.\n\
-             M7 cycles: a dual-issue throughput bound with LLVM's ARMScheduleM7.td latencies\n\
-             (dependency stalls not modelled, so optimistic). Bound: 1 cycle per add or\n\
+             M7 cycles: rough, not traced on an M7: the same M4 instruction trace priced with a\n\
+             dual-issue throughput bound and LLVM's ARMScheduleM7.td latencies (dependency\n\
+             stalls not modelled, so optimistic). Bound: 1 cycle per add or\n\
              multiply (f32 in hardware, f64 in software alike), 14 per divide or square root.\n\
              f64 sw: f64 operations done by run-time library calls (the M4 has no f64 unit)."
         );

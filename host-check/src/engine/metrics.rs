@@ -46,6 +46,7 @@ pub struct Tracker {
     /// Largest state difference from the f64 Joseph run, per state.
     pub max_state_difference: Vec<f64>,
     /// The same in reference standard deviations (largest over states).
+    #[serde(rename = "max_state_difference_sd")]
     pub max_state_difference_sigma: f64,
     /// `false` when states were not compared (covariance-only mode of a
     /// nonlinear model, where states are not judged).

@@ -14,6 +14,10 @@ pub use crate::numeric::conversion::ConversionRecord;
 /// no rounding.
 pub const MIN_RECENTRE_M: f64 = 1.0;
 
+/// The spec-file name of the built-in demo's plan (its advice names the
+/// `demo` command, not a file).
+pub const DEMO_FILE: &str = "<built-in demo: specs/demo.toml>";
+
 /// One state of the model.
 #[derive(Debug, Clone, Serialize)]
 pub struct StateInfo {
@@ -229,10 +233,11 @@ pub struct Thresholds {
     pub max_steady_distance: Option<f64>,
     /// Largest state difference from the f64 Joseph run, in the reference's
     /// standard deviations (judged when states are compared).
+    #[serde(rename = "max_state_difference_sd")]
     pub max_state_difference_sigma: f64,
     /// The mission the thresholds must hold for, s (`None`: the horizon).
     pub mission_seconds: Option<f64>,
-    /// Largest accepted relative excess of the constant-gain filter's
+    /// Largest accepted relative excess of the steady-gain filter's
     /// covariance over the optimal one during its transient (`None`: the
     /// largest relative covariance error applies).
     pub max_transient_excess: Option<f64>,
@@ -335,11 +340,11 @@ impl Plan {
         };
         if !(d.is_finite() && d >= MIN_RECENTRE_M) {
             return Err(format!(
-                "--recentre must be a finite distance of at least {MIN_RECENTRE_M} m (the origin moves in whole metres), got {d}"
+                "--origin-shift must be a finite distance of at least {MIN_RECENTRE_M} m (the origin moves in whole metres), got {d}"
             ));
         }
         if self.is_linear() {
-            return Err("--recentre applies to the planar-pose model only (a linear model's states need not be positions)".into());
+            return Err("--origin-shift applies to the planar-pose model only (a linear model's states need not be positions)".into());
         }
         self.recentre_m = Some(d);
         Ok(())

@@ -48,7 +48,9 @@ pub struct VariantResult {
     pub innovation_rounding: f64,
     /// Pass or fail, with reasons.
     pub verdict: Verdict,
-    /// Times the variant moved its origin (end-to-end mode with re-centring).
+    /// Times the variant moved its origin (end-to-end mode with an origin
+    /// shift).
+    #[serde(rename = "origin_shifts")]
     pub recentres: u64,
     /// Gate decisions of this variant that differ from the reference's
     /// (every variant applies exactly what the reference applies, so that
@@ -134,8 +136,9 @@ pub struct RunResult {
     pub dt: f64,
     /// Mode used.
     pub mode: Mode,
-    /// The re-centring distance the variants used, m (`None`: they kept the
-    /// spec's frame).
+    /// The origin-shift distance the variants used, m (`None`: they kept
+    /// the spec's frame).
+    #[serde(rename = "origin_shift_m")]
     pub recentre_m: Option<f64>,
     /// The reference.
     pub reference: ReferenceResult,

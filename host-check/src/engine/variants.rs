@@ -125,7 +125,7 @@ impl<const N: usize> VariantRun<N> {
                 self.origin += offset;
                 self.recentres += 1;
             }
-            Err(e) => self.stop(k, t, "re-centre", &e.to_string()),
+            Err(e) => self.stop(k, t, "origin shift", &e.to_string()),
         }
     }
 

@@ -114,6 +114,33 @@ pub struct Conversion {
     pub steps: Vec<ConversionStep>,
 }
 
+/// The one number format of a conversion chain: four significant digits in
+/// e-notation (`1.200e-2`), for every value and every factor in a formula.
+#[must_use]
+pub fn number(v: f64) -> String {
+    if v == 0.0 {
+        "0".to_string()
+    } else {
+        format!("{v:.3e}")
+    }
+}
+
+/// A unit squared, in the spec's grammar: `m^2`, `(rad/s)^2`.
+#[must_use]
+pub fn squared(unit: &str) -> String {
+    format!("{}^2", grouped(unit))
+}
+
+/// A unit text as one factor: as it is when it is one name (`m`), in
+/// parentheses otherwise (`(m/s)`).
+fn grouped(unit: &str) -> String {
+    if unit.chars().all(char::is_alphanumeric) {
+        unit.to_string()
+    } else {
+        format!("({unit})")
+    }
+}
+
 fn step(what: &str, formula: &str, value: f64, unit: String) -> ConversionStep {
     ConversionStep {
         what: what.to_string(),
@@ -149,11 +176,7 @@ pub fn to_intensity(fig: &NoiseFigure) -> Result<Conversion, NumericError> {
 /// # Errors
 /// As [`to_intensity`].
 pub fn to_intensity_in(fig: &NoiseFigure, unit: &str) -> Result<Conversion, NumericError> {
-    let q = if unit.chars().all(char::is_alphanumeric) {
-        unit.to_string()
-    } else {
-        format!("({unit})")
-    };
+    let q = grouped(unit);
     let w_unit = format!("{q}^2*s");
     let mut steps = Vec::new();
     let w = match *fig {
@@ -423,7 +446,7 @@ pub fn convert(
                 value: converted,
                 per_sqrt_hour: false,
             },
-            format!("({quantity})*sqrt(s)"),
+            format!("{}*sqrt(s)", grouped(quantity)),
             None,
         ),
         Kind::PsdHz => {
@@ -434,7 +457,7 @@ pub fn convert(
                     sided: s,
                     per: PerFrequency::Hz,
                 },
-                format!("({quantity})^2/Hz"),
+                format!("{}/Hz", squared(quantity)),
                 sided.is_none().then_some("two-sided"),
             )
         }
@@ -446,7 +469,7 @@ pub fn convert(
                     sided: s,
                     per: PerFrequency::RadPerSecond,
                 },
-                format!("({quantity})^2/(rad/s)"),
+                format!("{}/(rad/s)", squared(quantity)),
                 sided.is_none().then_some("one-sided"),
             )
         }
@@ -455,7 +478,7 @@ pub fn convert(
     if factor != 1.0 {
         steps.push(step(
             "in the quantity's units",
-            &format!("x {factor:.6e}"),
+            &format!("x {}", number(factor)),
             converted,
             target,
         ));

@@ -114,6 +114,44 @@ impl Unit {
         self.dims == other.dims
     }
 
+    /// The dimension as a unit text in coherent base units, in the spec's
+    /// own grammar, e.g. `m/s^2`, `rad/sqrt(s)`, `m*rad/s`, `1/s`, `1` (it
+    /// parses back to the same dimension, with scale 1).
+    #[must_use]
+    pub fn coherent_text(&self) -> String {
+        let power = |name: &str, twice: i32| match twice {
+            1 => format!("sqrt({name})"),
+            2 => name.to_string(),
+            t if t % 2 == 0 => format!("{name}^{}", t / 2),
+            t => format!("{name}^({t}/2)"),
+        };
+        let mut up = Vec::new();
+        let mut down = Vec::new();
+        for (name, d) in BASE_NAMES.iter().zip(self.dims) {
+            match d {
+                0 => {}
+                d if d > 0 => up.push(power(name, d)),
+                d => down.push(power(name, -d)),
+            }
+        }
+        let up = if up.is_empty() {
+            "1".to_string()
+        } else {
+            up.join("*")
+        };
+        match down.len() {
+            0 => up,
+            1 => format!("{up}/{}", down[0]),
+            _ => format!("{up}/({})", down.join("*")),
+        }
+    }
+
+    /// True when every exponent is a whole number (no `sqrt(Hz)` left).
+    #[must_use]
+    pub fn is_whole(&self) -> bool {
+        self.dims.iter().all(|d| d % 2 == 0)
+    }
+
     /// The dimension in words, e.g. `m s^-2`, `rad s^-1/2`, `1`.
     #[must_use]
     pub fn dimension_text(&self) -> String {
@@ -589,6 +627,32 @@ mod tests {
         assert_eq!(parse_unit("m/s/s").unwrap(), parse_unit("m/s^2").unwrap());
         assert_eq!(parse_unit("1/s").unwrap(), parse_unit("Hz").unwrap());
         assert_eq!(parse_unit(" m / s ").unwrap(), parse_unit("m/s").unwrap());
+    }
+
+    #[test]
+    fn coherent_texts_read_back_to_their_dimension() {
+        // Our own grammar, both ways: the text of a parsed unit parses to the
+        // same dimension with scale 1 (coherent base units).
+        for (text, want) in [
+            ("deg/s/sqrt(Hz)", "rad/sqrt(s)"),
+            ("(m/s^2)^2/Hz", "m^2/s^3"),
+            ("mg", "m/s^2"),
+            ("deg/sqrt(h)", "rad/sqrt(s)"),
+            ("Hz", "1/s"),
+            ("1", "1"),
+            ("m*rad/s", "m*rad/s"),
+            ("m/s/K", "m/(s*K)"),
+            ("sqrt(s)^3", "s^(3/2)"),
+        ] {
+            let u = parse_unit(text).unwrap();
+            let c = u.coherent_text();
+            assert_eq!(c, want, "{text}");
+            let back = parse_unit(&c).unwrap();
+            assert!(back.same_dimension(&u), "{text} -> {c}");
+            assert!((back.scale - 1.0).abs() < 1e-15, "{text} -> {c}");
+        }
+        assert!(parse_unit("m/s").unwrap().is_whole());
+        assert!(!parse_unit("m/sqrt(Hz)").unwrap().is_whole());
     }
 
     #[test]

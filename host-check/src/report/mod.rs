@@ -10,7 +10,15 @@ use crate::run::RunResult;
 use crate::spec::{ConversionRecord, Flash, ModelPlan, Plan, StateInfo, Thresholds};
 
 pub use svg::plot;
-pub use text::render;
+pub use text::{render, render_as};
+
+/// The plots' colours, our own: hue and lightness both vary from one to the
+/// next (dark blue, light orange, mid teal, dark wine, light olive, mid
+/// violet, mid brick, dark grey), so neighbours differ for a reader who does
+/// not tell red from green; markers and dash patterns tell them apart too.
+pub const PALETTE: [&str; 8] = [
+    "#1d3f8a", "#e3902a", "#2f9a8b", "#7d1d47", "#a3b640", "#5a4aa0", "#c0674a", "#444444",
+];
 
 /// The sentence every verdict carries.
 pub const NOT_A_SAFETY_CASE: &str = "A numerical pass is not a safety case: it says the arithmetic \
@@ -122,7 +130,7 @@ impl<'a> Report<'a> {
             })
             .collect();
         Self {
-            format: 1,
+            format: 2,
             title: &plan.title,
             spec: &plan.file,
             states: &plan.states,
@@ -143,5 +151,38 @@ impl<'a> Report<'a> {
     /// Serialisation errors (none expected: non-finite numbers become null).
     pub fn to_json(&self) -> Result<String, serde_json::Error> {
         serde_json::to_string_pretty(self)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::PALETTE;
+
+    /// Relative luminance of an sRGB colour (WCAG 2.x definition, common
+    /// practice).
+    fn luminance(hex: &str) -> f64 {
+        let channel = |i: usize| {
+            let c = f64::from(u8::from_str_radix(&hex[i..i + 2], 16).unwrap()) / 255.0;
+            if c <= 0.040_45 {
+                c / 12.92
+            } else {
+                ((c + 0.055) / 1.055).powf(2.4)
+            }
+        };
+        0.2126 * channel(1) + 0.7152 * channel(3) + 0.0722 * channel(5)
+    }
+
+    #[test]
+    fn neighbouring_colours_differ_in_lightness() {
+        // Our own rule for readers who do not tell hues apart: each colour's
+        // luminance differs from the next one's by at least 0.1, and no two
+        // colours are equal.
+        for pair in PALETTE.windows(2) {
+            let d = (luminance(pair[0]) - luminance(pair[1])).abs();
+            assert!(d >= 0.1, "{} {}: {d}", pair[0], pair[1]);
+        }
+        for (i, a) in PALETTE.iter().enumerate() {
+            assert!(PALETTE[i + 1..].iter().all(|b| b != a), "{a}");
+        }
     }
 }

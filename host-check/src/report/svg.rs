@@ -6,15 +6,58 @@ use std::fmt::Write;
 
 use crate::run::RunResult;
 
-const WIDTH: f64 = 960.0;
+const WIDTH: f64 = 1060.0;
 const HEIGHT: f64 = 480.0;
 const LEFT: f64 = 80.0;
-const RIGHT: f64 = 230.0;
+const RIGHT: f64 = 330.0;
 const TOP: f64 = 40.0;
 const BOTTOM: f64 = 60.0;
-const COLOURS: [&str; 8] = [
-    "#c0392b", "#8e44ad", "#d68910", "#1f618d", "#117a65", "#2e4053", "#7d6608", "#a04000",
-];
+const COLOURS: [&str; 8] = super::PALETTE;
+/// Markers drawn along each curve, about this many.
+const MARKERS: usize = 9;
+/// Two curves closer than this everywhere, in pixels, coincide on the plot.
+const SAME_PX: f64 = 0.5;
+
+/// A marker at (x, y): the shape says the form (circle conventional,
+/// square U-D, triangle Joseph, diamond anything else), the fill the
+/// precision (f32 filled, f64 open).
+fn marker(form: &str, f64_open: bool, colour: &str, x: f64, y: f64) -> String {
+    let fill = if f64_open { "#fbfaf7" } else { colour };
+    let style = format!(r#"fill="{fill}" stroke="{colour}" stroke-width="1.3""#);
+    match form {
+        "conventional" => format!(r#"<circle cx="{x:.1}" cy="{y:.1}" r="3.2" {style}/>"#),
+        "u-d" => format!(
+            r#"<rect x="{:.1}" y="{:.1}" width="6" height="6" {style}/>"#,
+            x - 3.0,
+            y - 3.0
+        ),
+        "joseph" => format!(
+            r#"<path d="M{x:.1},{:.1} L{:.1},{:.1} L{:.1},{:.1} Z" {style}/>"#,
+            y - 3.8,
+            x + 3.6,
+            y + 2.8,
+            x - 3.6,
+            y + 2.8
+        ),
+        _ => format!(
+            r#"<path d="M{x:.1},{:.1} L{:.1},{y:.1} L{x:.1},{:.1} L{:.1},{y:.1} Z" {style}/>"#,
+            y - 3.8,
+            x + 3.8,
+            y + 3.8,
+            x - 3.8
+        ),
+    }
+}
+
+/// Whether two curves' pixel points agree within [`SAME_PX`] everywhere.
+fn same_curve(a: &[Option<(f64, f64)>], b: &[Option<(f64, f64)>]) -> bool {
+    a.len() == b.len()
+        && a.iter().zip(b).all(|(p, q)| match (p, q) {
+            (Some(p), Some(q)) => (p.0 - q.0).abs() <= SAME_PX && (p.1 - q.1).abs() <= SAME_PX,
+            (None, None) => true,
+            _ => false,
+        })
+}
 
 fn esc(s: &str) -> String {
     s.replace('&', "&amp;")
@@ -179,7 +222,7 @@ pub fn plot(title: &str, run: &RunResult, threshold: f64) -> String {
         LEFT + pw / 2.0,
         HEIGHT - 16.0,
         if log_time {
-            "log scale; dashed beyond the horizon: projected error"
+            "log scale; dashed beyond the end of the run: projected error"
         } else if t_end >= 600.0 {
             "min"
         } else {
@@ -192,7 +235,7 @@ pub fn plot(title: &str, run: &RunResult, threshold: f64) -> String {
         let xh = x_of(t_horizon);
         let _ = writeln!(
             s,
-            r##"<line x1="{xh:.1}" y1="{TOP}" x2="{xh:.1}" y2="{:.1}" stroke="#999"/><text x="{:.1}" y="{:.1}" font-size="10">horizon</text><text x="{:.1}" y="{:.1}" font-size="10" text-anchor="end">mission end ({})</text>"##,
+            r##"<line x1="{xh:.1}" y1="{TOP}" x2="{xh:.1}" y2="{:.1}" stroke="#999"/><text x="{:.1}" y="{:.1}" font-size="10">end of run</text><text x="{:.1}" y="{:.1}" font-size="10" text-anchor="end">mission end ({})</text>"##,
             TOP + ph,
             xh + 3.0,
             TOP + 12.0,
@@ -210,16 +253,30 @@ pub fn plot(title: &str, run: &RunResult, threshold: f64) -> String {
         LEFT + pw + 6.0,
         yt + 4.0
     );
-    // Lines.
+    // Lines, each with its markers; a curve that coincides with an earlier
+    // one (to plotting resolution) has its markers at other points, and the
+    // legend names the one it hides behind.
+    let curves: Vec<Vec<Option<(f64, f64)>>> = run
+        .variants
+        .iter()
+        .map(|v| {
+            v.figures
+                .series
+                .iter()
+                .zip(&run.series_time)
+                .map(|(e, t)| (e.is_finite() && *e > 0.0).then(|| (x_of(*t), y_of(*e))))
+                .collect()
+        })
+        .collect();
+    let variants = run.variants.len().max(1);
     for (i, v) in run.variants.iter().enumerate() {
         let colour = COLOURS[i % COLOURS.len()];
+        let f64_open = v.precision == crate::spec::Precision::F64;
         let mut pts = String::new();
-        for (e, t) in v.figures.series.iter().zip(&run.series_time) {
-            if e.is_finite() && *e > 0.0 {
-                let _ = write!(pts, "{:.1},{:.1} ", x_of(*t), y_of(*e));
-            }
+        for (x, y) in curves[i].iter().flatten() {
+            let _ = write!(pts, "{x:.1},{y:.1} ");
         }
-        let dash = if v.precision == crate::spec::Precision::F64 {
+        let dash = if f64_open {
             r#" stroke-dasharray="2 3""#
         } else {
             ""
@@ -230,6 +287,15 @@ pub fn plot(title: &str, run: &RunResult, threshold: f64) -> String {
                 r#"<polyline fill="none" stroke="{colour}" stroke-width="1.6"{dash} points="{}"/>"#,
                 pts.trim_end()
             );
+        }
+        let stride = (curves[i].len() / MARKERS).max(1);
+        let phase = i * stride / variants;
+        for (k, p) in curves[i].iter().enumerate() {
+            if let Some((x, y)) = p
+                && k % stride == phase
+            {
+                let _ = writeln!(s, "{}", marker(&v.form, f64_open, colour, *x, *y));
+            }
         }
         if let Some(vm) = mission.and_then(|m| m.variants.get(i))
             && t_end > t_horizon
@@ -257,7 +323,7 @@ pub fn plot(title: &str, run: &RunResult, threshold: f64) -> String {
             }
         }
         let ly = TOP + 16.0 + 20.0 * i as f64;
-        let lx = WIDTH - RIGHT + 48.0;
+        let lx = WIDTH - RIGHT + 20.0;
         let mark = match mission.and_then(|m| m.variants.get(i)) {
             Some(vm) if vm.passes_mission => "pass",
             Some(vm)
@@ -269,10 +335,16 @@ pub fn plot(title: &str, run: &RunResult, threshold: f64) -> String {
             None if v.verdict.passes => "pass",
             None => "FAIL",
         };
+        let same = (0..i)
+            .find(|&j| !curves[i].is_empty() && same_curve(&curves[i], &curves[j]))
+            .map_or(String::new(), |j| {
+                format!(" (same as {})", esc(&run.variants[j].name))
+            });
         let _ = writeln!(
             s,
-            r#"<line x1="{lx}" y1="{ly}" x2="{:.1}" y2="{ly}" stroke="{colour}" stroke-width="2"{dash}/><text x="{:.1}" y="{:.1}">{} ({mark})</text>"#,
+            r#"<line x1="{lx}" y1="{ly}" x2="{:.1}" y2="{ly}" stroke="{colour}" stroke-width="2"{dash}/>{}<text x="{:.1}" y="{:.1}">{}{same} ({mark})</text>"#,
             lx + 18.0,
+            marker(&v.form, f64_open, colour, lx + 9.0, ly),
             lx + 22.0,
             ly + 4.0,
             esc(&v.name)

@@ -29,28 +29,35 @@ fn duration(s: f64) -> String {
     }
 }
 
-/// The mission section: growth fits, crossing times, the constant gain.
+/// `n` and the noun, singular or plural: "1 component", "2 components".
+fn count(n: impl Into<u64>, one: &str, many: &str) -> String {
+    let n = n.into();
+    format!("{n} {}", if n == 1 { one } else { many })
+}
+
+/// The mission section: growth fits, crossing times, the steady gain.
 fn mission(o: &mut String, m: &crate::engine::mission::MissionResult, limit: f64) {
-    use crate::engine::mission::duration_words;
+    use crate::engine::mission::{crossing_time_words, duration_words};
     let _ = writeln!(
         o,
-        "\nMission: {}{} ({:.3e} steps); error limit {}",
+        "\nMission: {}{} ({}); error limit {}",
         duration_words(m.seconds),
         if m.is_horizon {
-            " (the horizon; state one with [mission] or --mission)"
+            " (the run's length; state one with [mission] or --mission)"
         } else {
             ""
         },
-        m.steps,
+        count(m.steps.round() as u64, "step", "steps"),
         sci(limit)
     );
     let horizon_s = m.horizon_seconds;
     if m.seconds > 100.0 * horizon_s {
         let _ = writeln!(
             o,
-            "  The mission is {:.0} times the horizon: a projection assumes the growth seen goes on, \
-and misses growth that starts later; confirm it with a longer horizon.",
-            m.seconds / horizon_s
+            "  The mission is {:.0} times the {} run: a projection assumes the growth seen goes on, \
+and misses growth that starts later; confirm it with a longer run ([horizon]).",
+            m.seconds / horizon_s,
+            duration_words(horizon_s)
         );
     }
     // The crossing column is as wide as its longest entry.
@@ -69,8 +76,15 @@ and misses growth that starts later; confirm it with a longer horizon.",
     };
     let _ = writeln!(
         o,
-        "  {:<18} {:<19} {:>10} {:>21} {:>10} {:>10} {:>10}  {:<cw$}  mission",
-        "variant", "trend", "slope/h", "95% interval", "at end", "upper", "state sd", "crossing"
+        "  {:<18} {:<19} {:>10} {:>21} {:>10} {:>10} {:>16}  {:<cw$}  mission",
+        "variant",
+        "trend",
+        "slope/h",
+        "95% interval",
+        "at end",
+        "upper",
+        "state diff (sd)",
+        "crossing"
     );
     for v in &m.variants {
         let (t, b, ci) = match &v.trend {
@@ -92,7 +106,7 @@ and misses growth that starts later; confirm it with a longer horizon.",
         };
         let _ = writeln!(
             o,
-            "  {:<18} {:<19} {:>10} {:>21} {:>10} {:>10} {:>10}  {:<cw$}  {}",
+            "  {:<18} {:<19} {:>10} {:>21} {:>10} {:>10} {:>16}  {:<cw$}  {}",
             v.name,
             t,
             b,
@@ -107,12 +121,12 @@ and misses growth that starts later; confirm it with a longer horizon.",
     let _ = writeln!(
         o,
         "  (trend: Mann-Kendall test, two-sided 5%, on {} block maxima of the per-bucket largest \
-error after the first 10% of the horizon, variance tie-corrected and inflated for serial correlation \
+error after the first 10% of the run, variance tie-corrected and inflated for serial correlation \
 (Hamed-Rao); slope: Theil-Sen with Sen's 95% interval, relative error per hour; 'at end' follows \
 the robust line only for a significant rise, else the largest value seen; 'upper' adds the \
 interval's upper half-width above max(slope, 0); a crossing gives the robust line's time and the \
-interval's; 'state sd': the state difference from the f64 run in standard deviations, tested the \
-same way; docs/mission.md)",
+interval's; 'state diff (sd)': the state difference from the f64 run in standard deviations, \
+tested the same way; docs/mission.md)",
         m.variants
             .iter()
             .find_map(|v| v.trend.map(|t| t.blocks))
@@ -137,15 +151,15 @@ same way; docs/mission.md)",
         let _ = writeln!(
             o,
             "  (undecided: no significant rise, but the interval's upper slope would cross the limit \
-within the mission. 'Run at least' is the horizon at which the interval, narrowed as horizon/T \
-around the estimate, would decide. An undecided verdict is not a pass: exit 1.)"
+within the mission. 'Run at least' is the run length ([horizon]) at which the interval, narrowed \
+as that length over T around the estimate, would decide. An undecided verdict is not a pass: exit 1.)"
         );
     }
     match (&m.constant_gain, &m.constant_gain_note) {
         (Some(cg), _) => {
             let _ = writeln!(
                 o,
-                "\nConstant gain (cairn-core SteadyGain with the Riccati gain; closed-loop radius {:.4})",
+                "\nSteady gain (cairn-core SteadyGain with the Riccati gain; closed-loop radius {:.4})",
                 cg.closed_loop_radius
             );
             let _ = writeln!(
@@ -167,9 +181,9 @@ around the estimate, would decide. An undecided verdict is not a pass: exit 1.)"
             for l in &cg.variants {
                 let _ = writeln!(
                     o,
-                    "  {:<18} {} steps; state differs from the f64 run by {} standard deviations{}{}",
+                    "  {:<18} {}; state differs from the f64 run by {} standard deviations{}{}",
                     l.name,
-                    l.steps,
+                    count(l.steps, "step", "steps"),
                     sci(l.max_state_difference_sigma),
                     match (l.outlook, l.crossing_s) {
                         (Some(crate::engine::mission::Outlook::Undecided), _) => format!(
@@ -177,12 +191,20 @@ around the estimate, would decide. An undecided verdict is not a pass: exit 1.)"
                             l.run_at_least_s
                                 .map_or_else(|| "longer".to_string(), duration_words)
                         ),
+                        (_, Some(t)) if t > crate::engine::mission::FAR_MISSIONS * m.seconds => {
+                            format!(
+                                "; no crossing in sight (beyond {:.0} x the mission)",
+                                crate::engine::mission::FAR_MISSIONS
+                            )
+                        }
                         (_, Some(t)) => format!(
                             "; projected past the limit after {} ({} to {})",
-                            duration_words(t),
-                            duration_words(l.crossing_low_s.unwrap_or(t)),
-                            l.crossing_high_s
-                                .map_or_else(|| "never".into(), duration_words)
+                            crossing_time_words(t, m.seconds),
+                            crossing_time_words(l.crossing_low_s.unwrap_or(t), m.seconds),
+                            l.crossing_high_s.map_or_else(
+                                || "never".into(),
+                                |h| crossing_time_words(h, m.seconds)
+                            )
                         ),
                         _ => String::new(),
                     },
@@ -210,8 +232,13 @@ around the estimate, would decide. An undecided verdict is not a pass: exit 1.)"
 
 /// The report as text (plain ASCII, fits 100 columns for six variants).
 pub fn render(plan: &Plan, run: &RunResult) -> String {
+    render_as("check", plan, run)
+}
+
+/// The report as text under the banner of `command` ("check", "demo").
+pub fn render_as(command: &str, plan: &Plan, run: &RunResult) -> String {
     let mut o = String::new();
-    let _ = writeln!(o, "cairn check: {}", plan.title);
+    let _ = writeln!(o, "cairn {command}: {}", plan.title);
     let states: Vec<String> = plan
         .states
         .iter()
@@ -227,16 +254,19 @@ pub fn render(plan: &Plan, run: &RunResult) -> String {
     };
     let _ = writeln!(o, "  spec     {}", plan.file);
     let _ = writeln!(o, "  model    {kind}; states {}", states.join(", "));
+    // A linear model has one way to run (every variant runs the same F and
+    // H): the two modes are a nonlinear model's.
     let mode = match run.mode {
-        Mode::Covariance if plan.is_linear() => "linear",
-        Mode::Covariance => "covariance-only (shared Jacobians along the reference trajectory)",
-        Mode::EndToEnd => "end-to-end (each variant runs its own nonlinear filter)",
+        Mode::Covariance if plan.is_linear() => String::new(),
+        Mode::Covariance => {
+            "; mode covariance-only (shared Jacobians along the reference trajectory)".into()
+        }
+        Mode::EndToEnd => "; mode end-to-end (each variant runs its own nonlinear filter)".into(),
     };
     let _ = writeln!(
         o,
-        "  schedule {} step{} at {} Hz ({}); mode {mode}",
-        run.steps,
-        if run.steps == 1 { "" } else { "s" },
+        "  schedule {} at {} Hz ({}){mode}",
+        count(run.steps, "step", "steps"),
         plan.step_hz,
         duration(run.steps as f64 * run.dt)
     );
@@ -244,28 +274,25 @@ pub fn render(plan: &Plan, run: &RunResult) -> String {
         (Some(d), _) => {
             let _ = writeln!(
                 o,
-                "  frame    each variant moves its origin to its x, y (whole metres, kept in f64) \
+                "  frame    origin shift: each variant moves its origin to its x, y (whole metres, kept in f64) \
 when |x| or |y| passes {d} m;\n           states are compared as origin + local state"
             );
         }
         (None, Some(_)) => {
             let _ = writeln!(
                 o,
-                "  frame    no re-centring in covariance-only mode (the variants share the reference's Jacobians)"
+                "  frame    no origin shift in covariance-only mode (the variants share the reference's Jacobians)"
             );
         }
         (None, None) => {}
     }
     for c in &plan.channels {
+        let m = c.m as u64;
         let what = match &c.kind {
-            ChannelKind::Linear(_) => format!("{} components", c.m),
+            ChannelKind::Linear(_) => count(m, "component", "components"),
             ChannelKind::Position => "position fix".into(),
             ChannelKind::Heading => "heading fix".into(),
-            ChannelKind::User => format!(
-                "own model, {} component{}",
-                c.m,
-                if c.m == 1 { "" } else { "s" }
-            ),
+            ChannelKind::User => format!("own model, {}", count(m, "component", "components")),
         };
         let _ = writeln!(
             o,
@@ -275,7 +302,10 @@ when |x| or |y| passes {d} m;\n           states are compared as origin + local 
             if c.dropouts.is_empty() {
                 String::new()
             } else {
-                format!(", {} dropout window(s)", c.dropouts.len())
+                format!(
+                    ", {}",
+                    count(c.dropouts.len() as u64, "dropout window", "dropout windows")
+                )
             },
             c.gate.map_or(String::new(), |g| format!(", gate {g}"))
         );
@@ -285,17 +315,7 @@ when |x| or |y| passes {d} m;\n           states are compared as origin + local 
         let _ = writeln!(o, "\nNoise figures to filter numbers");
         for c in &plan.conversions {
             let _ = writeln!(o, "  {}: {}", c.field, c.given);
-            for s in &c.steps {
-                let _ = writeln!(
-                    o,
-                    "      {:<44} {:<28} = {} {}",
-                    s.what,
-                    s.formula,
-                    sci(s.value),
-                    s.unit
-                );
-            }
-            let _ = writeln!(o, "      => {} = {}", c.result_is, sci(c.result));
+            o.push_str(&c.chain_text(6));
         }
     }
 
@@ -354,8 +374,12 @@ when |x| or |y| passes {d} m;\n           states are compared as origin + local 
             .collect();
         let _ = writeln!(
             o,
-            "  Riccati steady state (every {} step(s)): posterior diagonal {}; gain [{}]; residual {}",
-            s.steps_per_update,
+            "  Riccati steady state (every {}): posterior diagonal {}; gain [{}]; residual {}",
+            if s.steps_per_update == 1 {
+                "step".to_string()
+            } else {
+                format!("{} steps", s.steps_per_update)
+            },
             diag.join("  "),
             gain.join("; "),
             sci(s.residual)
@@ -429,7 +453,7 @@ when |x| or |y| passes {d} m;\n           states are compared as origin + local 
             }
         }),
         (
-            format!("state diff. [sigma] (<= {})", th.max_state_difference_sigma),
+            format!("state diff (sd) (<= {})", th.max_state_difference_sigma),
             |v| {
                 if v.figures.states_compared {
                     sci(v.figures.max_state_difference_sigma)
@@ -438,7 +462,7 @@ when |x| or |y| passes {d} m;\n           states are compared as origin + local 
                 }
             },
         ),
-        ("times re-centred".into(), |v| v.recentres.to_string()),
+        ("origin shifts".into(), |v| v.recentres.to_string()),
         ("steady-state distance".into(), |v| {
             v.figures.steady_distance.map_or("-".into(), sci)
         }),
@@ -457,7 +481,7 @@ when |x| or |y| passes {d} m;\n           states are compared as origin + local 
         }),
     ];
     for (label, cell) in &rows {
-        if label == "times re-centred" && run.recentre_m.is_none() {
+        if label == "origin shifts" && run.recentre_m.is_none() {
             continue;
         }
         if label.trim() == "at t [s]" {
@@ -504,85 +528,118 @@ first order, but no covariance form recovers information lost when S = HPH' + R 
     if let Some(m) = &run.mission {
         mission(&mut o, m, plan.thresholds.max_relative_error);
     }
+    ending(&mut o, run);
+    let _ = writeln!(o, "\n{NOT_A_SAFETY_CASE}");
+    o
+}
+
+/// The ending: the spec's choice with its verdict and exit code, then the
+/// cheapest variant passing the run, then the recommendation for the
+/// mission; the first sets the exit code, the other two only advise.
+fn ending(o: &mut String, run: &RunResult) {
+    use crate::engine::mission::{Outlook, duration_words};
+    let run_words = format!("the {} run", duration_words(run.steps as f64 * run.dt));
     let flash_undecided = run.mission.as_ref().and_then(|m| {
         m.variants
             .iter()
-            .find(|v| {
-                v.name == run.flash && v.outlook == crate::engine::mission::Outlook::Undecided
-            })
+            .find(|v| v.name == run.flash && v.outlook == Outlook::Undecided)
             .map(|v| v.crossing.clone())
     });
+    let mission = run.mission.as_ref().filter(|m| !m.is_horizon);
+    let mission_words = mission.map(|m| format!("the {} mission", duration_words(m.seconds)));
+    let (word, over) = if run.flash_passes {
+        (
+            "PASS",
+            match &mission_words {
+                Some(mw) => format!("passes {run_words} and {mw}"),
+                None => format!("passes {run_words}"),
+            },
+        )
+    } else if let Some(u) = &flash_undecided {
+        (
+            "UNDECIDED",
+            format!(
+                "passes {run_words}; {} is {u}",
+                mission_words.as_deref().unwrap_or("the mission")
+            ),
+        )
+    } else if run.flash_passes_horizon {
+        (
+            "FAIL",
+            format!(
+                "passes {run_words}, not {}",
+                mission_words.as_deref().unwrap_or("the mission")
+            ),
+        )
+    } else {
+        ("FAIL", format!("fails {run_words}"))
+    };
+    let code = if run.flash_passes {
+        crate::exit::EXIT_PASS
+    } else {
+        crate::exit::EXIT_FAIL
+    };
+    let _ = writeln!(o, "\nVerdict");
     let _ = writeln!(
         o,
-        "\nFlash {}: {}{}",
-        run.flash,
-        if run.flash_passes {
-            "PASS"
-        } else if flash_undecided.is_some() {
-            "UNDECIDED"
-        } else {
-            "FAIL"
-        },
-        match (&run.mission, run.flash_passes_horizon) {
-            (Some(_), true) if flash_undecided.is_some() => format!(
-                " (passes the horizon; the mission is {}: exit 1)",
-                flash_undecided.unwrap_or_default()
-            ),
-            (Some(m), true) if !m.is_horizon && !run.flash_passes =>
-                " (passes the horizon, not the mission)".to_string(),
-            (Some(m), _) if !m.is_horizon => " (for the mission)".to_string(),
-            _ => String::new(),
-        }
+        "  Spec's choice ([flash]): {} {word}: {over} -> exit {code}",
+        run.flash
     );
     let _ = writeln!(
         o,
-        "Cheapest variant that passes the horizon: {}",
+        "  Cheapest variant passing {run_words}: {}",
         run.cheapest_passing.as_deref().unwrap_or("none")
     );
-    if let Some(m) = &run.mission {
-        let v = &m.verdict;
-        if !v.undecided.is_empty() {
+    let Some(m) = &run.mission else {
+        return;
+    };
+    let v = &m.verdict;
+    let for_what = mission_words.unwrap_or_else(|| run_words.clone());
+    if !v.undecided.is_empty() {
+        let _ = writeln!(
+            o,
+            "  Recommendation for {for_what}: undecided; run at least {} to decide {} (cheaper \
+than any variant that passes now)",
+            v.run_at_least_s
+                .map_or_else(|| "longer".to_string(), duration_words),
+            v.undecided
+                .iter()
+                .map(|u| u.split(':').next().unwrap_or(""))
+                .collect::<Vec<_>>()
+                .join(", ")
+        );
+    }
+    let what = if v.undecided.is_empty() {
+        format!("Recommendation for {for_what}")
+    } else {
+        "Of the decided variants, the cheapest passing".to_string()
+    };
+    match &v.choice {
+        Some(c) => {
+            let whose = if *c == run.flash {
+                " (the spec's choice)".to_string()
+            } else {
+                format!(
+                    " (not the spec's choice, {}: change [flash] to flash it)",
+                    run.flash
+                )
+            };
             let _ = writeln!(
                 o,
-                "What to flash for the mission: undecided; run at least {} to decide {} (cheaper \
-than any variant that passes now)",
-                v.run_at_least_s.map_or_else(
-                    || "longer".to_string(),
-                    crate::engine::mission::duration_words
-                ),
-                v.undecided
-                    .iter()
-                    .map(|u| u.split(':').next().unwrap_or(""))
-                    .collect::<Vec<_>>()
-                    .join(", ")
+                "  {what}: {c}{whose}; {}",
+                match v.cycles_per_step {
+                    Some(cy) => format!("about {cy:.0} cycles per step ({})", v.cycles_note),
+                    None => v.cycles_note.clone(),
+                }
             );
         }
-        let what = if v.undecided.is_empty() {
-            "What to flash for the mission"
-        } else {
-            "Of the decided variants, the cheapest passing"
-        };
-        match &v.choice {
-            Some(c) => {
-                let _ = writeln!(
-                    o,
-                    "{what}: {c}; {}",
-                    match v.cycles_per_step {
-                        Some(cy) => format!("about {cy:.0} cycles per step ({})", v.cycles_note),
-                        None => v.cycles_note.clone(),
-                    }
-                );
-            }
-            None => {
-                let _ = writeln!(
-                    o,
-                    "{what}: nothing passes (change the model, the thresholds or the mission)"
-                );
-            }
+        None => {
+            let _ = writeln!(
+                o,
+                "  {what}: nothing passes (change the model, the thresholds or the mission)"
+            );
         }
     }
-    let _ = writeln!(o, "\n{NOT_A_SAFETY_CASE}");
-    o
 }
 
 /// The Jacobian comparison, gate decisions and how far the states went.
@@ -619,15 +676,15 @@ fn engine_figures(o: &mut String, plan: &Plan, run: &RunResult) {
     if run.reference.gated > 0 || run.variants.iter().any(|v| v.gate_differences > 0) {
         let _ = writeln!(
             o,
-            "\nGate decisions: the reference gated {} measurement(s); every variant applies what the reference applies",
-            run.reference.gated
+            "\nGate decisions: the reference gated {}; every variant applies what the reference applies",
+            count(run.reference.gated, "measurement", "measurements")
         );
         for v in run.variants.iter().filter(|v| v.gate_differences > 0) {
             let _ = writeln!(
                 o,
-                "  {:<16} its own gate decided otherwise {} time(s), first at step {}",
+                "  {:<16} its own gate decided otherwise {}, first at step {}",
                 v.name,
-                v.gate_differences,
+                count(v.gate_differences, "time", "times"),
                 v.first_gate_difference.unwrap_or(0)
             );
         }

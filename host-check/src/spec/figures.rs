@@ -180,9 +180,13 @@ pub fn convert(
         .map(|q| (q.get_ref().trim().to_string(), Some(q.span())))
         .or_else(|| quantity.map(|q| (q.to_string(), None)));
     let mut steps = Vec::new();
-    let squared = quantity
-        .as_ref()
-        .map_or_else(|| "SI^2".to_string(), |(q, _)| format!("({q})^2"));
+    // The noisy quantity's unit: the one given, or (none given) the one the
+    // figure's unit implies for its kind, in coherent base units.
+    let q_text = match &quantity {
+        Some((q, _)) => q.clone(),
+        None => implied_quantity(loc, raw, field, kind, &unit, unit_text, per)?,
+    };
+    let squared = noise::squared(&q_text);
     let conv = if let Some((q, qspan)) = quantity {
         // The quantity's unit is known: the figure's unit must fit the kind
         // the spec names, and numeric::noise scales and converts it.
@@ -218,15 +222,34 @@ pub fn convert(
         noise::convert(value, &unit_for, &q, sided, rate_hz)
             .map_err(|e| loc.error(raw.unit.span(), &ufield, e.to_string()))?
     } else {
-        // No quantity known: the field name says the kind, the unit only
-        // scales it to coherent units (SI, radians, seconds).
+        // No quantity known: the field name says the kind, the unit scales
+        // it to coherent units (m, s, rad, ...) and names the quantity's.
         let scaled = v * unit.scale;
-        steps.push(Step {
-            what: format!("{kind} in coherent units"),
-            formula: format!("{v} {unit_text} x {:.6e}", unit.scale),
-            value: scaled,
-            unit: "SI".into(),
-        });
+        if unit.scale != 1.0 {
+            let g = if q_text.chars().all(char::is_alphanumeric) {
+                q_text.clone()
+            } else {
+                format!("({q_text})")
+            };
+            let per_text = if per == Some(PerFrequency::RadPerSecond) || unit_text.contains("rad/s")
+            {
+                "(rad/s)"
+            } else {
+                "Hz"
+            };
+            steps.push(Step {
+                what: format!("{kind} in coherent units"),
+                formula: format!("{unit_text} x {}", noise::number(unit.scale)),
+                value: scaled,
+                unit: match kind {
+                    "density" => format!("{g}/sqrt(Hz)"),
+                    "psd" => format!("{}/{per_text}", noise::squared(&q_text)),
+                    "random_walk" => format!("{g}*sqrt(s)"),
+                    "variance" => noise::squared(&q_text),
+                    _ => q_text.clone(),
+                },
+            });
+        }
         let figure = match kind {
             "density" => NoiseFigure::Density {
                 value: scaled,
@@ -250,7 +273,8 @@ pub fn convert(
                 rate_hz: rate_hz.unwrap_or(step_hz),
             },
         };
-        noise::to_intensity(&figure).map_err(|e| loc.error(value.span(), &vfield, e.to_string()))?
+        noise::to_intensity_in(&figure, &q_text)
+            .map_err(|e| loc.error(value.span(), &vfield, e.to_string()))?
     };
     steps.extend(conv.steps.iter().map(|s| Step {
         what: s.what.clone(),
@@ -316,7 +340,7 @@ pub fn convert(
             ),
         ));
     }
-    let mut given = format!("{kind} = {v} {unit_text}");
+    let mut given = format!("{kind} = {v:?} {unit_text}");
     if let Some(s) = &raw.sided {
         given.push_str(&format!(", {}-sided", s.get_ref()));
     }
@@ -442,8 +466,9 @@ fn term(
         }
         None => None,
     };
-    // The value in the rate's units (coherent SI when no unit is known);
-    // for Q, whether it is the integrated quantity's (the reading is a rate).
+    // The value in the rate's units (coherent base units when no quantity
+    // is known: the rate's unit then follows from the figure's); for Q,
+    // whether it is the integrated quantity's (the reading is a rate).
     let (value, of_integral, in_units, factor) = match &rate {
         Some((b, text)) => {
             let expected = match kind {
@@ -477,23 +502,29 @@ fn term(
                 ));
             }
         }
-        None => (v * unit.scale, false, "SI".to_string(), unit.scale),
+        None => {
+            let q = if kind == "rate_random_walk" {
+                unit.mul(&sqrt_second())
+            } else {
+                unit.clone()
+            };
+            (v * unit.scale, false, q.coherent_text(), unit.scale)
+        }
     };
-    let squared = if in_units == "SI" {
-        "SI^2".to_string()
+    let squared = noise::squared(&in_units);
+    let p = if in_units.chars().all(char::is_alphanumeric) {
+        in_units.clone()
     } else {
-        format!("({in_units})^2")
+        format!("({in_units})")
     };
-    let p = format!("({in_units})");
     let term_unit = match (kind, of_integral) {
-        _ if in_units == "SI" => in_units.clone(),
         ("rate_random_walk", _) => format!("{p}/sqrt(s)"),
         ("quantization", true) => format!("{p}*s"),
         _ => in_units.clone(),
     };
     let mut steps = vec![Step {
         what: format!("{symbol} in the quantity's units"),
-        formula: format!("{v} {unit_text} x {factor:.6e}"),
+        formula: format!("{unit_text} x {}", noise::number(factor)),
         value,
         unit: term_unit,
     }];
@@ -579,9 +610,9 @@ fn term(
                 (
                     gm.qd,
                     format!(
-                        "Qd of a Gauss-Markov bias state per step at {hz} Hz (phi = {:.9}, steady variance {:e})",
-                        gm.phi,
-                        sigma * sigma
+                        "Qd of a Gauss-Markov bias state per step at {hz} Hz (phi = 1 - {}, steady variance {})",
+                        noise::number(1.0 - gm.phi),
+                        noise::number(sigma * sigma)
                     ),
                 )
             } else {
@@ -595,8 +626,8 @@ fn term(
                 (
                     w,
                     format!(
-                        "two-sided intensity W = 2 sigma^2 / tau_c driving a Gauss-Markov bias state (Qc entry; its diagonal of `a` is -1/tau_c = {:e})",
-                        -1.0 / tc
+                        "two-sided intensity W = 2 sigma^2 / tau_c driving a Gauss-Markov bias state (Qc entry; its diagonal of `a` is -1/tau_c = {})",
+                        noise::number(-1.0 / tc)
                     ),
                 )
             }
@@ -657,7 +688,7 @@ fn term(
             ),
         ));
     }
-    let mut given = format!("{kind} = {v} {unit_text}");
+    let mut given = format!("{kind} = {v:?} {unit_text}");
     if let Some(c) = &raw.correlation_s {
         given.push_str(&format!(", correlation {} s", c.get_ref()));
     }
@@ -705,10 +736,53 @@ fn classify(fig: &Unit, q: &Unit, text: &str) -> Option<&'static str> {
     }
 }
 
+/// The noisy quantity's unit a figure's own unit implies for its kind, in
+/// coherent base units ("deg/s/sqrt(Hz)" for a density: "rad/s"), when no
+/// quantity is given; a unit that leaves a half power (a density in "m",
+/// with no per-root-hertz) does not fit the kind and is refused.
+fn implied_quantity(
+    loc: &Locator<'_>,
+    raw: &RawNoise,
+    field: &str,
+    kind: &str,
+    unit: &Unit,
+    unit_text: &str,
+    per: Option<PerFrequency>,
+) -> Result<String, SpecError> {
+    let sqrt_s = sqrt_second();
+    let s = sqrt_s.mul(&sqrt_s);
+    let mut rad_dims = [0; BASE_DIMS];
+    rad_dims[2] = 2;
+    let rad = Unit {
+        scale: 1.0,
+        dims: rad_dims,
+    };
+    let q = match kind {
+        "density" | "random_walk" => Some(unit.div(&sqrt_s)),
+        "psd" if per == Some(PerFrequency::RadPerSecond) || unit_text.contains("rad/s") => {
+            unit.mul(&rad).div(&s).powh(1)
+        }
+        "psd" => unit.div(&s).powh(1),
+        "variance" => unit.powh(1),
+        _ => Some(unit.clone()),
+    };
+    match q {
+        Some(q) if q.is_whole() => Ok(q.coherent_text()),
+        _ => Err(loc.error(
+            raw.unit.span(),
+            &format!("{field}.unit"),
+            format!(
+                "`{unit_text}` does not fit a `{kind}`: {}",
+                expected_form(kind, "quantity")
+            ),
+        )),
+    }
+}
+
 /// What a unit of this kind looks like, for error messages.
 fn expected_form(kind: &str, q: &str) -> String {
     match kind {
-        "density" => format!("a density is in ({q})/sqrt(Hz)"),
+        "density" => format!("a density is in ({q})/sqrt(Hz), e.g. deg/s/sqrt(Hz) for deg/s"),
         "random_walk" => format!("a random walk is in ({q})*sqrt(s), e.g. deg/sqrt(h) for deg/s"),
         "psd" => format!("a PSD is in ({q})^2/Hz or ({q})^2/(rad/s)"),
         "variance" => format!("a variance is in ({q})^2"),

@@ -99,6 +99,8 @@ pub struct RawModel {
     pub profile_csv: Option<Spanned<String>>,
     /// Pose, end-to-end mode: each variant moves its origin to its x, y
     /// whenever |x| or |y| passes this many metres (off by default).
+    pub origin_shift_m: Option<Spanned<f64>>,
+    /// The old name of `origin_shift_m`, accepted for one release.
     pub recentre_m: Option<Spanned<f64>>,
     /// Own models: what the model is, for reports.
     pub description: Option<Spanned<String>>,
@@ -224,8 +226,10 @@ pub struct RawVerdict {
     /// Largest relative distance of the late-run covariance from the steady state.
     pub max_steady_distance: Option<Spanned<f64>>,
     /// Largest state difference from the f64 run, in standard deviations.
+    pub max_state_difference_sd: Option<Spanned<f64>>,
+    /// The old name of `max_state_difference_sd`, accepted for one release.
     pub max_state_difference: Option<Spanned<f64>>,
-    /// Largest accepted relative excess of a constant-gain filter's
+    /// Largest accepted relative excess of a steady-gain filter's
     /// covariance over the optimal one during its transient.
     pub max_transient_excess: Option<Spanned<f64>>,
 }
@@ -235,6 +239,8 @@ pub struct RawVerdict {
 #[serde(deny_unknown_fields)]
 pub struct RawFlash {
     /// "f32" or "f64".
+    pub precision: Option<Spanned<String>>,
+    /// The old name of `precision`, accepted for one release.
     pub scalar: Option<Spanned<String>>,
     /// "joseph" or "conventional".
     pub form: Option<Spanned<String>>,

@@ -304,10 +304,7 @@ pub(super) fn plan(loc: &Locator<'_>, raw: RawSpec, base: Option<&Path>) -> R<Pl
             };
             let profile = profile(loc, model, raw.model.span(), base)?;
             let mode = nonlinear_mode(loc, model)?;
-            recentre_m = match model.recentre_m.as_ref() {
-                Some(d) => Some(recentre(loc, d, "model.recentre_m")?),
-                None => None,
-            };
+            recentre_m = origin_shift(loc, model)?;
             (
                 ModelPlan::Pose {
                     speed_var,
@@ -354,10 +351,7 @@ pub(super) fn plan(loc: &Locator<'_>, raw: RawSpec, base: Option<&Path>) -> R<Pl
             ] {
                 forbid(loc, s, f, kind)?;
             }
-            recentre_m = match model.recentre_m.as_ref() {
-                Some(d) => Some(recentre(loc, d, "model.recentre_m")?),
-                None => None,
-            };
+            recentre_m = origin_shift(loc, model)?;
             (
                 ModelPlan::User {
                     description: model
@@ -430,9 +424,29 @@ pub(super) fn plan(loc: &Locator<'_>, raw: RawSpec, base: Option<&Path>) -> R<Pl
         if let Some(t) = &v.max_gain_error {
             thresholds.max_gain_error = positive(loc, t, "verdict.max_gain_error")?;
         }
-        if let Some(t) = &v.max_state_difference {
-            thresholds.max_state_difference_sigma =
-                positive(loc, t, "verdict.max_state_difference")?;
+        match (&v.max_state_difference_sd, &v.max_state_difference) {
+            (Some(_), Some(old)) => {
+                return Err(loc.error(
+                    old.span(),
+                    "verdict.max_state_difference",
+                    "give `max_state_difference_sd` only (`max_state_difference` is its old name)"
+                        .to_string(),
+                ));
+            }
+            (Some(t), None) => {
+                thresholds.max_state_difference_sigma =
+                    positive(loc, t, "verdict.max_state_difference_sd")?;
+            }
+            (None, Some(old)) => {
+                deprecated(
+                    loc,
+                    "verdict.max_state_difference",
+                    "verdict.max_state_difference_sd",
+                );
+                thresholds.max_state_difference_sigma =
+                    positive(loc, old, "verdict.max_state_difference")?;
+            }
+            (None, None) => {}
         }
         if let Some(t) = &v.max_steady_distance {
             thresholds.max_steady_distance = Some(positive(loc, t, "verdict.max_steady_distance")?);
@@ -453,15 +467,30 @@ pub(super) fn plan(loc: &Locator<'_>, raw: RawSpec, base: Option<&Path>) -> R<Pl
     };
     if let Some(fl) = raw.flash.as_ref() {
         let fl = fl.get_ref();
-        if let Some(s) = &fl.scalar {
+        let given = match (&fl.precision, &fl.scalar) {
+            (Some(_), Some(old)) => {
+                return Err(loc.error(
+                    old.span(),
+                    "flash.scalar",
+                    "give `precision` only (`scalar` is its old name)".to_string(),
+                ));
+            }
+            (Some(p), None) => Some((p, "flash.precision")),
+            (None, Some(old)) => {
+                deprecated(loc, "flash.scalar", "flash.precision");
+                Some((old, "flash.scalar"))
+            }
+            (None, None) => None,
+        };
+        if let Some((s, field)) = given {
             flash.precision = match s.get_ref().as_str() {
                 "f32" => Precision::F32,
                 "f64" => Precision::F64,
                 other => {
                     return Err(loc.error(
                         s.span(),
-                        "flash.scalar",
-                        format!("unknown scalar `{other}`: use \"f32\" or \"f64\""),
+                        field,
+                        format!("unknown precision `{other}`: use \"f32\" or \"f64\""),
                     ));
                 }
             };
@@ -573,7 +602,7 @@ fn horizon(loc: &Locator<'_>, raw: &RawSpec, step_hz: f64) -> R<u64> {
             return Err(loc.error(
                 s.span(),
                 "horizon.steps",
-                format!("{v} steps: use 1 to {MAX_STEPS:e}"),
+                format!("{v} steps: use 1 to {MAX_STEPS}"),
             ));
         }
         v as f64
@@ -588,7 +617,7 @@ fn horizon(loc: &Locator<'_>, raw: &RawSpec, step_hz: f64) -> R<u64> {
         return Err(loc.error(
             raw.horizon.span(),
             "horizon",
-            format!("the horizon is {steps} steps: use 1 to {MAX_STEPS:e}"),
+            format!("the horizon is {steps} steps: use 1 to {MAX_STEPS}"),
         ));
     }
     Ok(steps as u64)
@@ -982,6 +1011,12 @@ fn forbid_pose_fields(loc: &Locator<'_>, model: &RawModel, kind: &str) -> R<()> 
     )?;
     forbid(
         loc,
+        model.origin_shift_m.as_ref().map(Spanned::span),
+        "model.origin_shift_m",
+        kind,
+    )?;
+    forbid(
+        loc,
         model.recentre_m.as_ref().map(Spanned::span),
         "model.recentre_m",
         kind,
@@ -1005,6 +1040,15 @@ fn need<'a, T>(
     v.ok_or_else(|| loc.error(span, field, format!("required by kind = \"{kind}\"")))
 }
 
+/// Notes on standard error that a spec uses a key's old name (accepted for
+/// one release).
+fn deprecated(loc: &Locator<'_>, old: &str, new: &str) {
+    crate::output::note(&format!(
+        "note: {}: `{old}` is deprecated, write `{new}` (the old name is accepted in this release only)",
+        loc.file()
+    ));
+}
+
 fn positive(loc: &Locator<'_>, v: &Spanned<f64>, field: &str) -> R<f64> {
     let x = *v.get_ref();
     if x.is_finite() && x > 0.0 {
@@ -1018,7 +1062,25 @@ fn positive(loc: &Locator<'_>, v: &Spanned<f64>, field: &str) -> R<f64> {
     }
 }
 
-/// A re-centring distance: finite and at least [`super::MIN_RECENTRE_M`]
+/// The origin-shift distance under its name or its old one (`recentre_m`,
+/// with a note); both at once are refused.
+fn origin_shift(loc: &Locator<'_>, model: &RawModel) -> R<Option<f64>> {
+    match (&model.origin_shift_m, &model.recentre_m) {
+        (Some(_), Some(old)) => Err(loc.error(
+            old.span(),
+            "model.recentre_m",
+            "give `origin_shift_m` only (`recentre_m` is its old name)".to_string(),
+        )),
+        (Some(d), None) => Ok(Some(recentre(loc, d, "model.origin_shift_m")?)),
+        (None, Some(old)) => {
+            deprecated(loc, "model.recentre_m", "model.origin_shift_m");
+            Ok(Some(recentre(loc, old, "model.recentre_m")?))
+        }
+        (None, None) => Ok(None),
+    }
+}
+
+/// An origin-shift distance: finite and at least [`super::MIN_RECENTRE_M`]
 /// (the origin moves in whole metres).
 fn recentre(loc: &Locator<'_>, v: &Spanned<f64>, field: &str) -> R<f64> {
     let x = *v.get_ref();

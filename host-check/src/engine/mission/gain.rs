@@ -1,4 +1,4 @@
-//! The constant-gain option: the covariance a fixed-gain filter really has
+//! The steady-gain option: the covariance a fixed-gain filter really has
 //! (it carries none of its own) against the optimal one, and the core's
 //! `SteadyGain` run in f32 and f64 on the spec's schedule.
 
@@ -13,7 +13,7 @@ use crate::numeric::dare;
 /// Largest number of measurement intervals the transient is followed for.
 const MAX_INTERVALS: usize = 200_000;
 
-/// What the constant-gain filter costs in accuracy, and how its core runs
+/// What the steady-gain filter costs in accuracy, and how its core runs
 /// went.
 #[derive(Debug, Clone, Serialize)]
 pub struct ConstantGain {
@@ -42,26 +42,24 @@ pub struct ConstantGain {
     /// The implied posterior covariance at the last interval followed.
     pub final_posterior: Vec<Vec<f64>>,
     /// The core's `SteadyGain` variants (f32 and f64), when its sizes are
-    /// built (JSON key `lanes`, kept for the report's readers).
-    #[serde(rename = "lanes")]
+    /// built.
     pub variants: Vec<GainVariantResult>,
-    /// Why the core's filter was not run, if it was not (JSON key
-    /// `lanes_note`).
-    #[serde(rename = "lanes_note")]
+    /// Why the core's filter was not run, if it was not.
     pub variants_note: Option<String>,
 }
 
 /// One run of the core's `SteadyGain`.
 #[derive(Debug, Clone, Serialize)]
 pub struct GainVariantResult {
-    /// "f32 constant gain" or "f64 constant gain".
+    /// "f32 steady gain" or "f64 steady gain".
     pub name: String,
     /// Steps run.
     pub steps: u64,
     /// The first refused operation, if any.
     pub refused: Option<String>,
-    /// Largest state difference from the f64 constant-gain run, in steady
+    /// Largest state difference from the f64 steady-gain run, in steady
     /// posterior standard deviations (largest over states).
+    #[serde(rename = "max_state_difference_sd")]
     pub max_state_difference_sigma: f64,
     /// The same, largest in each of the run's plot buckets.
     #[serde(skip)]
@@ -193,7 +191,7 @@ pub fn transient(
     })
 }
 
-/// A constant-gain filter of the core behind run-time sizes.
+/// A steady-gain filter of the core behind run-time sizes.
 trait GainVariant {
     fn predict(&mut self) -> Result<(), FilterError>;
     fn update(&mut self, z: &[f64]) -> Result<(), FilterError>;
@@ -269,7 +267,7 @@ fn build_variant<T: Scalar>(n: usize, m: usize, inputs: GainInputs<'_>) -> Built
     }
 }
 
-/// The schedule a constant-gain run needs from the spec.
+/// The schedule a steady-gain run needs from the spec.
 pub struct GainSchedule<'a> {
     /// One-step transition.
     pub f: &'a DMatrix<f64>,
@@ -308,12 +306,12 @@ pub fn run_variants(
     let inputs: GainInputs<'_> = (sched.x0, sched.f, h, gain, &s);
     let mut runs: Vec<(String, Started)> = Vec::new();
     for (name, built) in [
-        ("f32 constant gain", build_variant::<f32>(n, m, inputs)),
-        ("f64 constant gain", build_variant::<f64>(n, m, inputs)),
+        ("f32 steady gain", build_variant::<f32>(n, m, inputs)),
+        ("f64 steady gain", build_variant::<f64>(n, m, inputs)),
     ] {
         let Some(b) = built else {
             return Err(format!(
-                "the core's constant-gain filter is built here for 1 to 9 states and 1 to 4 \
+                "the core's steady-gain filter is built here for 1 to 9 states and 1 to 4 \
                  measurement components (this spec has {n} and {m})"
             ));
         };

@@ -1,7 +1,7 @@
 //! The mission-length verdict: whether each variant's error shows a
 //! significant trend, where it would stand at the end of the mission (or
 //! that the run cannot decide), which case of theory applies, the
-//! constant-gain option's transient loss, and the cheapest form and
+//! steady-gain option's transient loss, and the cheapest form and
 //! precision that passes.
 
 pub mod fit;
@@ -21,7 +21,7 @@ pub const STEADY_TOLERANCE: f64 = 1e-8;
 /// Share of the plot buckets skipped at the start before the trend test
 /// (the start-up transient is not growth).
 pub const SKIP_SHARE: f64 = 0.1;
-/// Largest number of steps the core's constant-gain filter is run for.
+/// Largest number of steps the core's steady-gain filter is run for.
 const MAX_GAIN_STEPS: u64 = 2_000_000;
 /// Points of the geometric grid of horizons searched for the run length
 /// that would decide an undecided projection.
@@ -309,7 +309,7 @@ fn covariance_case(inputs: &MissionInputs<'_>, run: &RunResult) -> (Case, String
                     Case::NotSteady,
                     format!(
                         "not yet steady: the reference is {d:.1e} from the Riccati solution (bound \
-                         {STEADY_TOLERANCE:.0e}) at the end of the horizon; {tail}"
+                         {STEADY_TOLERANCE:.0e}) at the end of the run; {tail}"
                     ),
                 ),
                 None => (
@@ -333,16 +333,39 @@ const STATE_REASON: &str = "the state difference follows the trajectory (f32 res
                             more coarsely as it moves away from zero): no bound from theory; the \
                             trend test decides";
 
-/// "after 3.2 days (1.1 days to never)".
-fn crossing_words(p: &Projection, dt: f64) -> Option<String> {
+/// "after 3.2 days (1.1 days to never)"; a crossing past
+/// [`FAR_MISSIONS`] times the mission is "no crossing in sight (beyond 100 x
+/// the mission)".
+fn crossing_words(p: &Projection, dt: f64, mission_s: f64) -> Option<String> {
     let c = p.crossing?;
+    if c * dt > FAR_MISSIONS * mission_s {
+        return Some(format!(
+            "no crossing in sight (beyond {FAR_MISSIONS:.0} x the mission)"
+        ));
+    }
     Some(format!(
         "after {} ({} to {})",
-        duration_words(c * dt),
-        duration_words(p.crossing_low.unwrap_or(c) * dt),
-        p.crossing_high
-            .map_or_else(|| "never".to_string(), |h| duration_words(h * dt))
+        crossing_time_words(c * dt, mission_s),
+        crossing_time_words(p.crossing_low.unwrap_or(c) * dt, mission_s),
+        p.crossing_high.map_or_else(
+            || "never".to_string(),
+            |h| crossing_time_words(h * dt, mission_s)
+        )
     ))
+}
+
+/// How many missions ahead a projected crossing is still worth a time: a
+/// straight line carried further says nothing a reader can use.
+pub const FAR_MISSIONS: f64 = 100.0;
+
+/// A projected crossing time, s, in words: [`duration_words`] up to
+/// [`FAR_MISSIONS`] times the mission, "beyond 100 x the mission" past it.
+pub fn crossing_time_words(s: f64, mission_s: f64) -> String {
+    if s.is_finite() && s > FAR_MISSIONS * mission_s {
+        format!("beyond {FAR_MISSIONS:.0} x the mission")
+    } else {
+        duration_words(s)
+    }
 }
 
 fn variant_mission(
@@ -425,14 +448,14 @@ fn variant_mission(
             })
             .or(v.figures.failure.as_ref().map(|f| f.time_s))
             .or(Some(0.0));
-        (at, at, at, "fails within the horizon".to_string())
+        (at, at, at, "fails within the run".to_string())
     } else {
         let (c, lo, hi, words) = match first {
             Some((p, what)) => (
                 p.crossing.map(|k| k * dt),
                 p.crossing_low.map(|k| k * dt),
                 p.crossing_high.map(|k| k * dt),
-                crossing_words(p, dt).map(|w| format!("{w}{what}")),
+                crossing_words(p, dt, mission_steps * dt).map(|w| format!("{w}{what}")),
             ),
             None => (None, None, None, None),
         };
@@ -516,13 +539,13 @@ pub fn analyze(inputs: &MissionInputs<'_>, run: &RunResult) -> MissionResult {
         .map(|v| variant_mission(v, run, mission_steps, &plan.thresholds, &case))
         .collect();
 
-    // The constant-gain option.
+    // The steady-gain option.
     let (constant_gain, constant_gain_note) = match (inputs.lifted, &run.steady) {
         (Some(lifted), Some(steady)) => constant_gain(plan, run, lifted, steady),
         (None, _) => (
             None,
             Some(format!(
-                "constant gain not offered: {}",
+                "steady gain not offered: {}",
                 inputs
                     .lifted_note
                     .unwrap_or("the schedule is not time-invariant")
@@ -532,7 +555,7 @@ pub fn analyze(inputs: &MissionInputs<'_>, run: &RunResult) -> MissionResult {
         (Some(_), None) => (
             None,
             Some(format!(
-                "constant gain not offered: {}",
+                "steady gain not offered: {}",
                 run.steady_note
                     .as_deref()
                     .unwrap_or("the Riccati equation has no steady state")
@@ -548,7 +571,7 @@ pub fn analyze(inputs: &MissionInputs<'_>, run: &RunResult) -> MissionResult {
     let mut run_at_least_s: Option<f64> = None;
     let mut choice = None;
     for name in &order {
-        let (passes, why, wait) = if name.ends_with("constant gain") {
+        let (passes, why, wait) = if name.ends_with("steady gain") {
             constant_gain_passes(name, constant_gain.as_ref(), plan, seconds)
         } else {
             match variants.iter().find(|v| &v.name == name) {
@@ -561,7 +584,7 @@ pub fn analyze(inputs: &MissionInputs<'_>, run: &RunResult) -> MissionResult {
                     format!("projected to cross a limit {}", v.crossing),
                     None,
                 ),
-                Some(_) => (false, "fails over the horizon".to_string(), None),
+                Some(_) => (false, "fails over the run".to_string(), None),
                 None => (false, "not run".to_string(), None),
             }
         };
@@ -580,6 +603,8 @@ pub fn analyze(inputs: &MissionInputs<'_>, run: &RunResult) -> MissionResult {
     let cycles_per_step = None;
     let cycles_note = if matches!(plan.model, ModelPlan::User { .. }) {
         "price your own predict and updates on the target with a probe of your crate (README: price it on the target)".to_string()
+    } else if plan.file == crate::engine::plan::DEMO_FILE {
+        "run `cairn cost` (the demo's rates) or `cairn demo --cycles` for cycles".to_string()
     } else {
         format!(
             "run `cairn cost --spec {}` (or `cairn check --cycles`) for cycles",
@@ -741,7 +766,7 @@ fn constant_gain_passes(
         return (
             false,
             format!(
-                "its state differs from the f64 constant-gain run by {:.2} standard deviations > {sigma}",
+                "its state differs from the f64 steady-gain run by {:.2} standard deviations > {sigma}",
                 variant.max_state_difference_sigma
             ),
             None,
@@ -751,7 +776,7 @@ fn constant_gain_passes(
         return (
             false,
             format!(
-                "its state is projected to differ from the f64 constant-gain run by more than \
+                "its state is projected to differ from the f64 steady-gain run by more than \
                  {sigma} standard deviations {}",
                 variant.crossing_s.filter(|t| *t <= mission_s).map_or_else(
                     || "within the mission".to_string(),
@@ -765,9 +790,8 @@ fn constant_gain_passes(
         return (
             false,
             format!(
-                "undecided: run at least {} (its state difference from the f64 constant-gain run)",
-                variant
-                    .run_at_least_s
+                "undecided: run at least {} (its state difference from the f64 steady-gain run)",
+                variant.run_at_least_s
                     .map_or_else(|| "longer".to_string(), duration_words)
             ),
             variant.run_at_least_s,
@@ -785,7 +809,7 @@ fn constant_gain(
     let ModelPlan::Linear { f, q, .. } = &plan.model else {
         return (
             None,
-            Some("constant gain not offered: nonlinear model".into()),
+            Some("steady gain not offered: nonlinear model".into()),
         );
     };
     let m = |rows: &Vec<Vec<f64>>| {
@@ -805,7 +829,7 @@ fn constant_gain(
         plan.thresholds.max_relative_error,
     ) {
         Ok(c) => c,
-        Err(e) => return (None, Some(format!("constant gain not offered: {e}"))),
+        Err(e) => return (None, Some(format!("steady gain not offered: {e}"))),
     };
     let sched = gain::GainSchedule {
         f,
@@ -888,13 +912,13 @@ pub fn duration_words(s: f64) -> String {
     }
 }
 
-/// Cost order of the final verdict: constant gain, conventional, Joseph,
+/// Cost order of the final verdict: steady gain, conventional, Joseph,
 /// U-D, every f32 form before any f64 one (f64 is software arithmetic on a
 /// Cortex-M4F, about 75x the f32 cost: docs/references.md, measured here).
 pub fn cost_order() -> Vec<String> {
     let mut v = Vec::new();
     for p in ["f32", "f64"] {
-        for f in ["constant gain", "conventional", "joseph", "u-d"] {
+        for f in ["steady gain", "conventional", "joseph", "u-d"] {
             v.push(format!("{p} {f}"));
         }
     }
@@ -943,8 +967,21 @@ mod tests {
         assert!((c - 324.0).abs() < 1e-9, "{c}");
         assert_eq!(probe_form("f32 joseph"), Some("joseph"));
         assert_eq!(probe_form("f32 u-d"), Some("u-d"));
-        assert_eq!(probe_form("f32 constant gain"), None);
+        assert_eq!(probe_form("f32 steady gain"), None);
         assert_eq!(probe_form("f64 conventional"), None);
+    }
+
+    #[test]
+    fn crossings_far_past_the_mission_have_no_time() {
+        // Our own wording rule: up to 100 missions a time, past it none
+        // (a day's mission: 100 days is 8.64e6 s).
+        let day = 86_400.0;
+        assert_eq!(crossing_time_words(99.0 * day, day), "99.0 days");
+        assert_eq!(
+            crossing_time_words(1.9e115, day),
+            "beyond 100 x the mission"
+        );
+        assert_eq!(crossing_time_words(f64::INFINITY, day), "never");
     }
 
     #[test]
@@ -1073,9 +1110,9 @@ mod tests {
     #[test]
     fn the_cost_order_puts_every_f32_form_first() {
         let order = cost_order();
-        assert_eq!(order[0], "f32 constant gain");
+        assert_eq!(order[0], "f32 steady gain");
         assert_eq!(order[3], "f32 u-d");
-        assert_eq!(order[4], "f64 constant gain");
+        assert_eq!(order[4], "f64 steady gain");
         assert_eq!(order.len(), 8);
     }
 }

@@ -1,4 +1,4 @@
-//! What the mission stage found, as data: per variant, the constant-gain
+//! What the mission stage found, as data: per variant, the steady-gain
 //! option and the final verdict (the engine's result holds it).
 
 use serde::Serialize;
@@ -83,6 +83,7 @@ pub struct VariantMission {
     /// What the state projection alone says.
     pub outlook_state: Option<Outlook>,
     /// That difference at the end of the mission (as `projected_error`).
+    #[serde(rename = "projected_state_difference_sd")]
     pub projected_state_sigma: Option<f64>,
     /// When its relative error or its state difference would cross its
     /// threshold, s from the start, whichever first (robust line; `None`:
@@ -139,9 +140,11 @@ pub struct MissionResult {
     pub horizon_seconds: f64,
     /// Per variant, in the run's order.
     pub variants: Vec<VariantMission>,
-    /// The constant-gain option, when offered.
+    /// The steady-gain option, when offered.
+    #[serde(rename = "steady_gain")]
     pub constant_gain: Option<ConstantGain>,
-    /// Why the constant-gain option is not offered, or a caveat.
+    /// Why the steady-gain option is not offered, or a caveat.
+    #[serde(rename = "steady_gain_note")]
     pub constant_gain_note: Option<String>,
     /// The final verdict.
     pub verdict: FinalVerdict,
