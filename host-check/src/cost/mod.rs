@@ -1095,16 +1095,24 @@ mod tests {
                 .any(|l| l.text.starts_with("vmul.f32"))
         );
         assert!(predict.render_profile().contains("vmul.f32"));
-        // The unchecked floors do the same arithmetic with no checks and no
-        // transaction: cheaper than the filter, yet above their own bound.
+        // The unchecked floors do the dense arithmetic with no checks and
+        // no transaction, above their own bound; the filter, with the pose
+        // model's structural patterns (pose.rs), skips the products with
+        // F's and H's structural zeros and ones, so it executes fewer
+        // multiplies than the dense floor despite its checks.
         for (floor, filter) in [
             ("pose_predict_unchecked", predict),
             ("pose_position_update_unchecked", position),
         ] {
             let f = report.operation(floor).expect("floor probe");
             assert_eq!(f.calls, 16, "{floor}");
-            assert!(f.m4_cycles < filter.m4_cycles, "{floor}");
             assert!(f.m4_cycles > f.bound, "{floor}");
+            assert!(
+                filter.fp_total.mul < f.fp_total.mul,
+                "{floor}: {} against {}",
+                filter.fp_total.mul,
+                f.fp_total.mul
+            );
         }
 
         // The U-D twins, on the same scenario and the same demo rates.
