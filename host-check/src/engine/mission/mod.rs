@@ -791,7 +791,8 @@ fn constant_gain_passes(
             false,
             format!(
                 "undecided: run at least {} (its state difference from the f64 steady-gain run)",
-                variant.run_at_least_s
+                variant
+                    .run_at_least_s
                     .map_or_else(|| "longer".to_string(), duration_words)
             ),
             variant.run_at_least_s,
