@@ -26,6 +26,37 @@ fn column_of<T: Scalar, const R: usize, const C: usize>(m: &SMatrix<T, R, C>, j:
     &all[start..end]
 }
 
+/// `acc += column * entry` (or `-=` with `SUBTRACT`), entry by entry, with
+/// a structural one's product taken as the column itself; `entry` is read
+/// only when it is free.
+#[inline(always)]
+fn update_column<T: Scalar, const SUBTRACT: bool>(
+    acc: &mut [T],
+    column: &[T],
+    one: bool,
+    entry: impl FnOnce() -> T,
+) {
+    if one {
+        for (a, &v) in acc.iter_mut().zip(column) {
+            if SUBTRACT {
+                *a -= v;
+            } else {
+                *a += v;
+            }
+        }
+    } else {
+        let factor = entry();
+        for (a, &v) in acc.iter_mut().zip(column) {
+            let term = v * factor;
+            if SUBTRACT {
+                *a -= term;
+            } else {
+                *a += term;
+            }
+        }
+    }
+}
+
 /// `factor`'s product with an entry: the entry itself when it is a
 /// structural one, else `factor * entry`.
 #[inline(always)]
@@ -87,16 +118,7 @@ pub(crate) fn propagate<T: Scalar, const N: usize>(
             |k, one| {
                 // P[k,:] is P's column k (P is symmetric).
                 let pk = column_of(p, k);
-                if one {
-                    for (acc, &v) in row.iter_mut().zip(pk) {
-                        *acc += v;
-                    }
-                } else {
-                    let fik = f[(i, k)];
-                    for (acc, &v) in row.iter_mut().zip(pk) {
-                        *acc += v * fik;
-                    }
-                }
+                update_column::<T, false>(&mut row, pk, one, || f[(i, k)]);
             },
         );
         for (e, &v) in row.iter().enumerate() {
@@ -111,16 +133,7 @@ pub(crate) fn propagate<T: Scalar, const N: usize>(
             #[inline(always)]
             |e, one| {
                 let ce = column_of(&c, e);
-                if one {
-                    for (acc, &v) in column.iter_mut().zip(ce) {
-                        *acc += v;
-                    }
-                } else {
-                    let fje = f[(j, e)];
-                    for (acc, &v) in column.iter_mut().zip(ce) {
-                        *acc += v * fje;
-                    }
-                }
+                update_column::<T, false>(&mut column, ce, one, || f[(j, e)]);
             },
         );
         // The whole column was formed (fixed length); the part below the
@@ -197,16 +210,7 @@ pub(crate) fn innovation<T: Scalar, const N: usize, const M: usize>(
             #[inline(always)]
             |e, one| {
                 let pe = column_of(p, e);
-                if one {
-                    for (acc, &v) in column.iter_mut().zip(pe) {
-                        *acc += v;
-                    }
-                } else {
-                    let hce = h[(c, e)];
-                    for (acc, &v) in column.iter_mut().zip(pe) {
-                        *acc += v * hce;
-                    }
-                }
+                update_column::<T, false>(&mut column, pe, one, || h[(c, e)]);
             },
         );
         for (i, &v) in column.iter().enumerate() {
@@ -274,16 +278,7 @@ pub(crate) fn joseph<T: Scalar, const N: usize, const M: usize>(
             #[inline(always)]
             |e, one| {
                 let we = column_of(w, e);
-                if one {
-                    for (acc, &v) in column.iter_mut().zip(we) {
-                        *acc -= v;
-                    }
-                } else {
-                    let hce = h[(c, e)];
-                    for (acc, &v) in column.iter_mut().zip(we) {
-                        *acc -= v * hce;
-                    }
-                }
+                update_column::<T, true>(&mut column, we, one, || h[(c, e)]);
             },
         );
         for (i, &v) in column.iter().enumerate() {
