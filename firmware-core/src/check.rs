@@ -4,13 +4,40 @@
 use nalgebra::{SMatrix, SVector};
 
 use crate::error::{FilterError, Operand, idx};
+use crate::kernel::{finite_sum, neg_zero};
 use crate::ldl::failing_pivot;
 use crate::model::ProcessModel;
 use crate::pattern::Pattern;
-use crate::patterned::free_finite;
+use crate::patterned::free_sum;
 use crate::scalar::Scalar;
 
 pub(crate) use crate::kernel::all_finite;
+
+/// Several operands finite, tested with one comparison: each part is an
+/// operand's finiteness sum ([`finite_sum`], [`free_sum`]) with the operand
+/// it names; the first part whose sum is not zero names the error (looked
+/// at only on the error path, from the sums already in registers).
+#[inline(always)]
+pub(crate) fn finite_all<T: Scalar, const K: usize>(
+    parts: [(T, Operand); K],
+) -> Result<(), FilterError> {
+    let mut total = neg_zero::<T>();
+    for (sum, _) in parts {
+        total += sum;
+    }
+    if total == T::zero() {
+        Ok(())
+    } else {
+        Err(first_non_finite(parts))
+    }
+}
+
+/// The operand of the first part whose sum is not zero.
+#[cold]
+fn first_non_finite<T: Scalar, const K: usize>(parts: [(T, Operand); K]) -> FilterError {
+    let named = parts.iter().find(|(sum, _)| *sum != T::zero());
+    FilterError::NonFinite(named.map_or(Operand::Innovation, |&(_, what)| what))
+}
 
 /// Every entry finite.
 #[inline(always)]
@@ -231,11 +258,14 @@ pub(crate) fn time_step<T: Scalar>(dt: T) -> Result<(), FilterError> {
     }
 }
 
-/// One extended predict's model evaluation, checked: the Jacobian finite,
-/// the propagated state finite, then normalised. Q (or its sources) is left
-/// for the caller to check. Takes the parts of the model's [`crate::model::Linearized`]
-/// rather than the whole: callers take it apart at once, so each part stays
-/// in registers where it fits instead of the whole evaluation being built in
+/// One extended predict's model evaluation, checked in one pass with one
+/// branch: the free entries of the Jacobian (those the kernels read) and
+/// the propagated state finite and, for noise given as sources, the free
+/// entries of G finite and every variance finite and non-negative; then
+/// the state is normalised. Q given whole is left for the caller to check.
+/// Takes the parts of the model's [`crate::model::Linearized`] rather than
+/// the whole: callers take it apart at once, so each part stays in
+/// registers where it fits instead of the whole evaluation being built in
 /// memory.
 #[inline(always)]
 pub(crate) fn linearized<T: Scalar, const N: usize, P: ProcessModel<T, N>>(
@@ -243,14 +273,38 @@ pub(crate) fn linearized<T: Scalar, const N: usize, P: ProcessModel<T, N>>(
     jacobian: &SMatrix<T, N, N>,
     pattern: &Pattern<N, N>,
     next: &mut SVector<T, N>,
+    sources: Option<(&SMatrix<T, N, N>, &Pattern<N, N>, &SVector<T, N>)>,
 ) -> Result<(), FilterError> {
-    // Only the entries the kernels read.
-    if !free_finite(jacobian, pattern) {
-        return Err(FilterError::NonFinite(Operand::Transition));
+    let f = free_sum(jacobian, pattern);
+    let x = finite_sum(next.as_slice());
+    let (g, q) = match sources {
+        Some((g, g_pattern, q)) => (free_sum(g, g_pattern), variance_sum(q)),
+        None => (neg_zero(), neg_zero()),
+    };
+    if f + x + g + q != T::zero() {
+        finite_all([
+            (f, Operand::Transition),
+            (x, Operand::Control),
+            (g, Operand::ProcessNoise),
+        ])?;
+        if let Some((_, _, q)) = sources {
+            return Err(bad_variances(*q));
+        }
     }
-    finite(next, Operand::Control)?;
     model.normalize(next);
     Ok(())
+}
+
+/// Zero exactly when every variance is finite and non-negative: |v| - v is
+/// +0 for a finite v >= 0, positive for a negative v or -inf, NaN for NaN
+/// or +inf, so one sum and one comparison test both conditions.
+#[inline(always)]
+fn variance_sum<T: Scalar, const N: usize>(q: &SVector<T, N>) -> T {
+    let mut acc = neg_zero::<T>();
+    for &v in q.iter() {
+        acc += v.abs() - v;
+    }
+    acc
 }
 
 /// Independent noise sources: the free entries of G (those the kernels
@@ -261,25 +315,18 @@ pub(crate) fn sources<T: Scalar, const N: usize>(
     pattern: &Pattern<N, N>,
     q: &SVector<T, N>,
 ) -> Result<(), FilterError> {
-    if !free_finite(g, pattern) {
-        return Err(FilterError::NonFinite(Operand::ProcessNoise));
-    }
-    // |v| - v is +0 for a finite v >= 0, positive for a negative v or -inf,
-    // NaN for NaN or +inf: one sum and one comparison test both conditions.
-    let mut acc = crate::kernel::neg_zero::<T>();
-    for &v in q.iter() {
-        acc += v.abs() - v;
-    }
-    if acc == T::zero() {
+    finite_all([(free_sum(g, pattern), Operand::ProcessNoise)])?;
+    if variance_sum(q) == T::zero() {
         Ok(())
     } else {
-        Err(bad_variances(q))
+        Err(bad_variances(*q))
     }
 }
 
-/// Which of the variances failed, and how (only on the error path).
+/// Which of the variances failed, and how (only on the error path; by
+/// value, so the variances are written to memory only when this runs).
 #[cold]
-fn bad_variances<T: Scalar, const N: usize>(q: &SVector<T, N>) -> FilterError {
+fn bad_variances<T: Scalar, const N: usize>(q: SVector<T, N>) -> FilterError {
     if !all_finite(q.as_slice()) {
         return FilterError::NonFinite(Operand::ProcessNoise);
     }

@@ -8,7 +8,7 @@ use nalgebra::{SMatrix, SVector};
 use crate::check;
 use crate::error::{FilterError, Operand, Outcome, idx};
 use crate::form::{CovarianceForm, Joseph};
-use crate::kernel::{from_sources, innovation, mirror_upper, propagate};
+use crate::kernel::{finite_sum, from_sources, innovation, mirror_upper, propagate};
 use crate::ldl::Ldl;
 use crate::model::{Linearized, MeasurementModel, ProcessModel};
 use crate::pattern::Pattern;
@@ -209,12 +209,19 @@ impl<T: Scalar, const N: usize, F: CovarianceForm> Kalman<T, N, F> {
         // takes the dense kernels.
         let f_pattern = const { &P::JACOBIAN_PATTERN };
         let g_columns = const { &P::SOURCES_PATTERN.transpose() };
-        check::linearized(model, &jacobian, f_pattern, &mut next)?;
+        check::linearized(
+            model,
+            &jacobian,
+            f_pattern,
+            &mut next,
+            sources
+                .as_ref()
+                .map(|(g, q)| (g, const { &P::SOURCES_PATTERN }, q)),
+        )?;
         // Noise given as independent sources makes its own Q, symmetric and
-        // semidefinite by construction: only the variances need checking.
+        // semidefinite by construction: its variances were checked above.
         let q = match sources {
             Some((g, q)) => {
-                check::sources(&g, const { &P::SOURCES_PATTERN }, &q)?;
                 if g_columns.is_dense() {
                     from_sources(&g, &q)
                 } else {
@@ -259,9 +266,13 @@ impl<T: Scalar, const N: usize, F: CovarianceForm> Kalman<T, N, F> {
         r: &SMatrix<T, M, M>,
         gate: Option<T>,
     ) -> Result<Outcome<T>, FilterError> {
-        check::finite(z, Operand::Measurement)?;
-        check::finite(h, Operand::MeasurementMatrix)?;
         let nu = z - h * self.x;
+        check::finite_all([
+            (finite_sum(z.as_slice()), Operand::Measurement),
+            (finite_sum(h.as_slice()), Operand::MeasurementMatrix),
+            (finite_sum(r.as_slice()), Operand::MeasurementNoise),
+            (finite_sum(nu.as_slice()), Operand::Innovation),
+        ])?;
         let mut post = self.p;
         let weighed = self.weigh(nu, h, const { &Pattern::DENSE }, r, gate, &mut post)?;
         self.finish(weighed, &post, |_| {})
@@ -282,17 +293,25 @@ impl<T: Scalar, const N: usize, F: CovarianceForm> Kalman<T, N, F> {
         z: &SVector<T, M>,
         gate: Option<T>,
     ) -> Result<Outcome<T>, FilterError> {
-        check::finite(z, Operand::Measurement)?;
+        // The model's residual sees only finite arguments.
         let expected = model.expected(&self.x);
-        check::finite(&expected, Operand::Innovation)?;
+        check::finite_all([
+            (finite_sum(z.as_slice()), Operand::Measurement),
+            (finite_sum(expected.as_slice()), Operand::Innovation),
+        ])?;
         let nu = model.residual(z, &expected);
-        check::finite(&nu, Operand::Innovation)?;
         let h = model.jacobian(&self.x);
         let h_pattern = const { &Mm::JACOBIAN_PATTERN };
-        if !patterned::free_finite(&h, h_pattern) {
-            return Err(FilterError::NonFinite(Operand::MeasurementMatrix));
-        }
         let r = model.noise(&self.x);
+        // Only the entries of H the kernels read.
+        check::finite_all([
+            (finite_sum(nu.as_slice()), Operand::Innovation),
+            (
+                patterned::free_sum(&h, h_pattern),
+                Operand::MeasurementMatrix,
+            ),
+            (finite_sum(r.as_slice()), Operand::MeasurementNoise),
+        ])?;
         let mut post = self.p;
         let weighed = self.weigh(nu, &h, h_pattern, &r, gate, &mut post)?;
         self.finish(
@@ -366,7 +385,8 @@ impl<T: Scalar, const N: usize, F: CovarianceForm> Kalman<T, N, F> {
         Ok(Outcome::Applied { nis })
     }
 
-    /// Shared update arithmetic: checks R, factors S, gates, forms the gain
+    /// Shared update arithmetic, for an innovation and an R the caller has
+    /// checked finite: checks R is positive definite, factors S, gates, forms the gain
     /// and the posterior, the latter in `post` (which holds the prior on
     /// entry). Nothing is written to `self`.
     #[inline(always)]
@@ -379,7 +399,6 @@ impl<T: Scalar, const N: usize, F: CovarianceForm> Kalman<T, N, F> {
         gate: Option<T>,
         post: &mut SMatrix<T, N, N>,
     ) -> Result<Weighed<T, N>, FilterError> {
-        check::finite(r, Operand::MeasurementNoise)?;
         check::symmetric(r, Operand::MeasurementNoise)?;
         check::gate(gate)?;
         if let Err(j) = Ldl::factor(r) {
@@ -388,7 +407,6 @@ impl<T: Scalar, const N: usize, F: CovarianceForm> Kalman<T, N, F> {
                 index: idx(j),
             });
         }
-        check::finite(&nu, Operand::Innovation)?;
         // B = P H' (n x m); S = H B + R.
         let (b, s) = if h_pattern.is_dense() {
             innovation(&self.p, h, r)

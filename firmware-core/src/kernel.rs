@@ -43,16 +43,17 @@ pub(crate) fn neg_zero<T: Scalar>() -> T {
 /// the order (finiteness tests).
 const LANES: usize = if VECTOR { 4 } else { 1 };
 
-/// `true` when every value is finite: v - v is +0 for a finite v and NaN
-/// for NaN or infinity, and NaN survives any sum of them, so the test does
-/// not depend on the order of the sum. Pure FP adds with one comparison at
-/// the end, instead of a move, mask and branch per entry (common practice on
-/// FPUs without a cheap classify instruction); on a host, [`LANES`] partial
-/// sums keep the adds from waiting on each other.
+/// The finiteness sum of `values`: v - v is +0 for a finite v and NaN for
+/// NaN or infinity, and NaN survives any sum of them, so the sum is zero
+/// exactly when every value is finite, whatever its order. Pure FP adds with
+/// one comparison at the end, instead of a move, mask and branch per entry
+/// (common practice on FPUs without a cheap classify instruction); sums of
+/// several operands add up to one test. On a host, [`LANES`] partial sums
+/// keep the adds from waiting on each other.
 // `v - v` is the point: it is not zero for NaN or infinity.
 #[allow(clippy::eq_op)]
 #[inline(always)]
-pub(crate) fn all_finite<T: Scalar>(values: &[T]) -> bool {
+pub(crate) fn finite_sum<T: Scalar>(values: &[T]) -> T {
     let mut lanes = [neg_zero::<T>(); LANES];
     let mut chunks = values.chunks_exact(LANES);
     for chunk in &mut chunks {
@@ -67,7 +68,13 @@ pub(crate) fn all_finite<T: Scalar>(values: &[T]) -> bool {
     for lane in lanes {
         acc += lane;
     }
-    acc == T::zero()
+    acc
+}
+
+/// `true` when every value is finite ([`finite_sum`] is zero).
+#[inline(always)]
+pub(crate) fn all_finite<T: Scalar>(values: &[T]) -> bool {
+    finite_sum(values) == T::zero()
 }
 
 /// `true` when every entry on and above the diagonal is finite (the lower

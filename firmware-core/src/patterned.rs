@@ -64,16 +64,16 @@ fn times<T: Scalar>(factor: T, one: bool, entry: T) -> T {
     if one { factor } else { factor * entry }
 }
 
-/// `true` when every free entry is finite (the only entries the kernels
-/// read).
+/// The finiteness sum ([`crate::kernel::finite_sum`]) of the free entries,
+/// the only ones the kernels read: zero exactly when they are all finite.
 #[allow(clippy::eq_op)]
 #[inline(always)]
-pub(crate) fn free_finite<T: Scalar, const R: usize, const C: usize>(
+pub(crate) fn free_sum<T: Scalar, const R: usize, const C: usize>(
     m: &SMatrix<T, R, C>,
     pattern: &Pattern<R, C>,
-) -> bool {
+) -> T {
     if pattern.is_dense() {
-        return crate::kernel::all_finite(m.as_slice());
+        return crate::kernel::finite_sum(m.as_slice());
     }
     let mut acc = neg_zero::<T>();
     for i in 0..R {
@@ -88,7 +88,7 @@ pub(crate) fn free_finite<T: Scalar, const R: usize, const C: usize>(
             },
         );
     }
-    acc == T::zero()
+    acc
 }
 
 /// F P F' + Q for a symmetric P and an F with structure `pattern`: the upper
@@ -412,8 +412,8 @@ mod tests {
     fn only_free_entries_are_tested_for_finiteness() {
         const P: Pattern<2, 2> = Pattern::IDENTITY.free(0, 1);
         let mut m = SMatrix::<f32, 2, 2>::new(f32::NAN, 2.0, f32::INFINITY, 1.0);
-        assert!(free_finite(&m, &P));
+        assert_eq!(free_sum(&m, &P), 0.0);
         m[(0, 1)] = f32::NAN;
-        assert!(!free_finite(&m, &P));
+        assert!(free_sum(&m, &P).is_nan());
     }
 }

@@ -245,12 +245,17 @@ impl<T: Scalar, const N: usize> UdKalman<T, N> {
             noise,
             sources,
         } = model.linearize(&self.x, u, dt);
-        check::linearized(model, &jacobian, const { &Pattern::DENSE }, &mut next)?;
+        check::linearized(
+            model,
+            &jacobian,
+            const { &Pattern::DENSE },
+            &mut next,
+            sources
+                .as_ref()
+                .map(|(g, q)| (g, const { &Pattern::DENSE }, q)),
+        )?;
         let ud = match sources {
-            Some((g, q)) => {
-                check::sources(&g, const { &Pattern::DENSE }, &q)?;
-                self.gram_schmidt(&jacobian, &g, &q)?
-            }
+            Some((g, q)) => self.gram_schmidt(&jacobian, &g, &q)?,
             None => {
                 check::noise(&noise, Operand::ProcessNoise, false)?;
                 self.time_update(&jacobian, &noise)?
