@@ -94,6 +94,11 @@ pub fn wrap_angle<T: Scalar>(angle: T) -> T {
     let pi = T::pi();
     let two_pi = T::two_pi();
     let mut a = angle;
+    // One comparison for the common case (|a| < pi, no change); the
+    // boundary -pi, NaN and infinities take the careful path below.
+    if a.abs() < pi {
+        return a;
+    }
     if a > pi || a <= -pi {
         if a.abs() < T::of(WRAP_DIRECT) {
             let turns = (a / two_pi).round();

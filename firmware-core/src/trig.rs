@@ -23,10 +23,11 @@ const REDUCTION_LIMIT: f32 = 8192.0;
 #[allow(clippy::excessive_precision)]
 #[inline]
 pub fn sin_cos_f32(x: f32) -> (f32, f32) {
-    if x.is_nan() || x.abs() >= REDUCTION_LIMIT {
+    let ax = x.abs();
+    // One comparison: NaN fails it too.
+    if !(ax < REDUCTION_LIMIT) {
         return (libm::sinf(x), libm::cosf(x));
     }
-    let ax = x.abs();
     // Octant: j = floor(|x| 4/pi), rounded up to even.
     let mut j = (ax * FOUR_OVER_PI) as u32;
     if j & 1 == 1 {
