@@ -401,7 +401,7 @@ impl<T: Scalar, const N: usize, F: CovarianceForm> Kalman<T, N, F> {
     ) -> Result<Weighed<T, N>, FilterError> {
         check::symmetric(r, Operand::MeasurementNoise)?;
         check::gate(gate)?;
-        if let Err(j) = Ldl::factor(r) {
+        if let Err(j) = Ldl::definite(r) {
             return Err(FilterError::NotPositiveDefinite {
                 operand: Operand::MeasurementNoise,
                 index: idx(j),

@@ -119,13 +119,15 @@ impl<T: Scalar> PlanarOdometry<T> {
     /// of the input Jacobian G with their variances.
     #[inline(always)]
     fn sources_at(&self, s: T, c: T, u: &Odometry<T>, dt: T) -> (SMatrix<T, 3, 3>, Vector3<T>) {
-        let half = T::of(0.5);
+        // (v dt) dt / 2, shared by both entries (the same products in the
+        // same order as writing each out).
+        let half_step = u.speed * dt * dt * T::of(0.5);
         let g = SMatrix::<T, 3, 3>::new(
             dt * c,
-            -u.speed * dt * dt * half * s,
+            -(half_step * s),
             T::zero(),
             dt * s,
-            u.speed * dt * dt * half * c,
+            half_step * c,
             T::zero(),
             T::zero(),
             dt,

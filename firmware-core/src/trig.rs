@@ -28,19 +28,17 @@ pub fn sin_cos_f32(x: f32) -> (f32, f32) {
     if !(ax < REDUCTION_LIMIT) {
         return (libm::sinf(x), libm::cosf(x));
     }
-    // Octant: j = floor(|x| 4/pi), rounded up to even.
-    let mut j = (ax * FOUR_OVER_PI) as u32;
-    if j & 1 == 1 {
-        j += 1;
-    }
-    let y = j as f32;
-    let j = j & 7;
-    let r = ((ax - y * DP1) - y * DP2) - y * DP3;
+    // Octant j = floor(|x| 4/pi) rounded up to even, as j = 2k with
+    // k = floor(|x| 2/pi + 1/2): one conversion each way and no integer
+    // arithmetic. The halved and doubled constants are exact.
+    let k = (ax * (FOUR_OVER_PI * 0.5) + 0.5) as u32;
+    let y = k as f32;
+    let r = ((ax - y * (DP1 * 2.0)) - y * (DP2 * 2.0)) - y * (DP3 * 2.0);
     let z = r * r;
     let s = ((-1.951_529_6e-4 * z + 8.332_160_9e-3) * z - 1.666_665_5e-1) * z * r + r;
     let c = ((2.443_315_7e-5 * z - 1.388_731_6e-3) * z + 4.166_664_6e-2) * z * z - 0.5 * z + 1.0;
     // Quadrant q = j / 2 of |x|: (sin, cos) = (s, c), (c, -s), (-s, -c), (-c, s).
-    let (sin_abs, cos) = match j >> 1 {
+    let (sin_abs, cos) = match k & 3 {
         0 => (s, c),
         1 => (c, -s),
         2 => (-s, -c),
