@@ -48,7 +48,9 @@ impl<T: Scalar, const M: usize> Ldl<T, M> {
     /// pivot d1 = s11 - s10^2 / s00 exceeds M eps |s11| exactly when the
     /// minor s00 s11 - s10^2 exceeds M eps |s11| s00 (multiplied through by
     /// the positive s00), so the rule is the same up to rounding; a 14-cycle
-    /// divide on a Cortex-M4F is saved. Larger M factor as usual.
+    /// divide on a Cortex-M4F is saved. A refusal by the minor is confirmed
+    /// by the factorisation (the products can underflow or overflow where
+    /// the pivots do not). Larger M factor as usual.
     ///
     /// # Errors
     /// `Err(j)` with the index of the first pivot that is not safely positive.
@@ -69,7 +71,10 @@ impl<T: Scalar, const M: usize> Ldl<T, M> {
             let (s10, s11) = (s[(M - 1, 0)], s[(M - 1, M - 1)]);
             let minor = s00 * s11 - s10 * s10;
             if !pivot_accepted(minor, tol * s11.abs() * s00) {
-                return Err(1);
+                // The products can underflow (variances near 1e-20 in f32)
+                // or overflow where the pivots do not: the factorisation
+                // has the last word on a refusal.
+                return confirm_refusal(s00, s10, s11);
             }
         }
         Ok(())
@@ -230,6 +235,15 @@ pub(crate) fn pivot_accepted<T: Scalar>(d: T, floor: T) -> bool {
     d + (d - d) > floor
 }
 
+/// [`Ldl::definite`]'s refusal of the 2 x 2 matrix [[s00, s10], [s10, s11]],
+/// confirmed by the factorisation (cold, with the entries in registers: out
+/// of the way of the accepting path).
+#[cold]
+#[inline(never)]
+fn confirm_refusal<T: Scalar>(s00: T, s10: T, s11: T) -> Result<(), usize> {
+    Ldl::factor(&SMatrix::<T, 2, 2>::new(s00, s10, s10, s11)).map(|_| ())
+}
+
 /// The first row where an LDL' factorisation of the symmetric matrix `a`
 /// (upper triangle read; the lower one may hold anything) meets a pivot that
 /// is not accepted, or `None` when every pivot is.
@@ -316,5 +330,49 @@ mod tests {
         assert_eq!(Ldl::factor(&singular).err(), Some(1));
         let nan = Matrix3::new(f64::NAN, 0.0, 0.0, 0.0, 1.0, 0.0, 0.0, 0.0, 1.0);
         assert_eq!(Ldl::factor(&nan).err(), Some(0));
+    }
+
+    #[test]
+    fn the_divide_free_test_refuses_what_the_factorisation_refuses() {
+        use nalgebra::{Matrix1, Matrix2};
+        // Sylvester's criterion (a symmetric matrix is positive definite
+        // exactly when its leading principal minors are positive; common
+        // practice) against the factorisation's own pivots, on a grid of
+        // 2 x 2 matrices through definite, semidefinite, indefinite and
+        // non-finite ones. Away from the rounding-level boundary the two
+        // must agree on the verdict and on the failing row.
+        let values = [
+            -2.0_f64, -1.0, -1e-3, 0.0, 1e-300, 1e-3, 0.5, 0.999, 1.0, 1.001, 2.0, 1e30,
+        ];
+        let mut compared = 0;
+        for &a in &values {
+            for &b in &values {
+                for &d in &values {
+                    let s = Matrix2::new(a, b, b, d);
+                    let minor = a * d - b * b;
+                    // Within a few roundings of a zero pivot the two tests
+                    // may round differently.
+                    let boundary = minor.abs() <= 1e-12 * (a * d).abs().max(b * b);
+                    if boundary {
+                        continue;
+                    }
+                    compared += 1;
+                    assert_eq!(Ldl::definite(&s), Ldl::factor(&s).map(|_| ()), "{s}");
+                }
+            }
+        }
+        assert!(compared > 1000, "{compared}");
+        for bad in [f64::NAN, f64::INFINITY, -1.0, 0.0] {
+            assert_eq!(Ldl::definite(&Matrix1::new(bad)), Err(0));
+            assert_eq!(Ldl::definite(&Matrix2::new(1.0, 0.0, 0.0, bad)), Err(1));
+        }
+        assert_eq!(Ldl::definite(&Matrix1::new(1e-30_f32)), Ok(()));
+        // Tiny variances whose product underflows in f32 are still accepted.
+        let tiny = Matrix2::new(1e-20_f32, 0.0, 0.0, 1e-20);
+        assert_eq!(Ldl::definite(&tiny), Ok(()));
+        assert_eq!(Ldl::factor(&tiny).map(|_| ()), Ok(()));
+        // Beyond 2 x 2, the factorisation itself.
+        let indefinite = Matrix3::new(1.0, 2.0, 0.0, 2.0, 1.0, 0.0, 0.0, 0.0, 1.0_f64);
+        assert_eq!(Ldl::definite(&indefinite), Err(1));
     }
 }
