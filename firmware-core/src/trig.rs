@@ -25,6 +25,7 @@ const REDUCTION_LIMIT: f32 = 8192.0;
 pub fn sin_cos_f32(x: f32) -> (f32, f32) {
     let ax = x.abs();
     // One comparison: NaN fails it too.
+    #[allow(clippy::neg_cmp_op_on_partial_ord)]
     if !(ax < REDUCTION_LIMIT) {
         return (libm::sinf(x), libm::cosf(x));
     }
