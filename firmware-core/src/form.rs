@@ -287,7 +287,7 @@ pub(crate) fn joseph<T: Scalar, const N: usize, const M: usize, const COLUMNS: b
     // P+ = W + D K' (upper triangle), in place in W: column j reads only
     // W's column j.
     for j in 0..N {
-        for i in 0..=j {
+        for i in 0..j + 1 {
             let mut v = w[(i, j)];
             for c in 0..M {
                 v += d[(i, c)] * k[(j, c)];
@@ -329,7 +329,7 @@ fn joseph_scalar<T: Scalar, const N: usize, const COLUMNS: bool>(
         }
     } else {
         for j in 0..N {
-            for i in 0..=j {
+            for i in 0..j + 1 {
                 let v = w[(i, j)] + d[i] * k[j];
                 w[(i, j)] = v;
             }
@@ -356,7 +356,7 @@ fn conventional<T: Scalar, const N: usize, const M: usize, const COLUMNS: bool>(
         }
     } else {
         for j in 0..N {
-            for i in 0..=j {
+            for i in 0..j + 1 {
                 let mut v = out[(i, j)];
                 for c in 0..M {
                     v -= k[(i, c)] * b[(j, c)];
@@ -384,7 +384,7 @@ fn conventional_scalar<T: Scalar, const N: usize, const COLUMNS: bool>(
         }
     } else {
         for j in 0..N {
-            for i in 0..=j {
+            for i in 0..j + 1 {
                 let v = out[(i, j)] - k[i] * b[j];
                 out[(i, j)] = v;
             }

@@ -469,7 +469,7 @@ impl<T: Scalar, const N: usize, F: CovarianceForm> Kalman<T, N, F> {
         }
         self.x = *x;
         for j in 0..N {
-            for i in 0..=j {
+            for i in 0..j + 1 {
                 let v = p[(i, j)];
                 self.p[(i, j)] = v;
                 self.p[(j, i)] = v;

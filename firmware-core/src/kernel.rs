@@ -222,7 +222,7 @@ pub fn from_sources<T: Scalar, const N: usize>(
 ) -> SMatrix<T, N, N> {
     let mut out = SMatrix::<T, N, N>::zeros();
     for j in 0..N {
-        for i in 0..=j {
+        for i in 0..j + 1 {
             let mut v = neg_zero::<T>();
             for k in 0..N {
                 v += g[(i, k)] * g[(j, k)] * q[k];

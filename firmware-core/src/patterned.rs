@@ -15,27 +15,32 @@ use crate::kernel::neg_zero;
 use crate::pattern::Pattern;
 use crate::scalar::Scalar;
 
-/// Column `j` of `m` as a slice (contiguous: nalgebra stores columns
-/// whole), so the whole-column updates over it run as plain slice loops
-/// that a host's vector unit takes.
+/// Column `j` of `m` as a fixed-size array (nalgebra stores columns
+/// whole), so the whole-column updates over it have a constant length that
+/// unrolls and, on a host, runs in the vector unit; `None` for a column
+/// beyond the matrix (never: the patterns hold columns below `C`), which
+/// keeps the kernels free of panic paths.
 #[inline(always)]
-fn column_of<T: Scalar, const R: usize, const C: usize>(m: &SMatrix<T, R, C>, j: usize) -> &[T] {
-    let all = m.as_slice();
-    let start = (j * R).min(all.len());
-    let end = (start + R).min(all.len());
-    &all[start..end]
+fn column_of<T: Scalar, const R: usize, const C: usize>(
+    m: &SMatrix<T, R, C>,
+    j: usize,
+) -> Option<&[T; R]> {
+    m.data.0.get(j)
 }
 
 /// `acc += column * entry` (or `-=` with `SUBTRACT`), entry by entry, with
 /// a structural one's product taken as the column itself; `entry` is read
 /// only when it is free.
 #[inline(always)]
-fn update_column<T: Scalar, const SUBTRACT: bool>(
-    acc: &mut [T],
-    column: &[T],
+fn update_column<T: Scalar, const N: usize, const SUBTRACT: bool>(
+    acc: &mut [T; N],
+    column: Option<&[T; N]>,
     one: bool,
     entry: impl FnOnce() -> T,
 ) {
+    let Some(column) = column else {
+        return;
+    };
     if one {
         for (a, &v) in acc.iter_mut().zip(column) {
             if SUBTRACT {
@@ -109,6 +114,7 @@ pub(crate) fn propagate<T: Scalar, const N: usize>(
     p: &SMatrix<T, N, N>,
     q: &SMatrix<T, N, N>,
 ) -> SMatrix<T, N, N> {
+    let mut rows = [[neg_zero::<T>(); N]; N];
     let mut c = SMatrix::<T, N, N>::from_element(neg_zero());
     for i in 0..N {
         let mut row = [neg_zero::<T>(); N];
@@ -118,9 +124,16 @@ pub(crate) fn propagate<T: Scalar, const N: usize>(
             |k, one| {
                 // P[k,:] is P's column k (P is symmetric).
                 let pk = column_of(p, k);
-                update_column::<T, false>(&mut row, pk, one, || f[(i, k)]);
+                update_column::<T, N, false>(&mut row, pk, one, || f[(i, k)]);
             },
         );
+        // Stored whole (contiguous, so a host keeps the row in vector
+        // registers), transposed into C below in one pass.
+        if let Some(slot) = rows.get_mut(i) {
+            *slot = row;
+        }
+    }
+    for (i, row) in rows.iter().enumerate() {
         for (e, &v) in row.iter().enumerate() {
             c[(i, e)] = v;
         }
@@ -133,13 +146,15 @@ pub(crate) fn propagate<T: Scalar, const N: usize>(
             #[inline(always)]
             |e, one| {
                 let ce = column_of(&c, e);
-                update_column::<T, false>(&mut column, ce, one, || f[(j, e)]);
+                update_column::<T, N, false>(&mut column, ce, one, || f[(j, e)]);
             },
         );
-        // The whole column was formed (fixed length); the part below the
-        // diagonal is dropped.
-        for i in 0..=j {
-            out[(i, j)] = column[i] + q[(i, j)];
+        // The whole column was formed (fixed length) and is stored whole:
+        // the part below the diagonal is not read.
+        if let (Some(dst), Some(qj)) = (out.data.0.get_mut(j), q.data.0.get(j)) {
+            for ((d, &c), &qv) in dst.iter_mut().zip(&column).zip(qj) {
+                *d = c + qv;
+            }
         }
     }
     out
@@ -210,7 +225,7 @@ pub(crate) fn innovation<T: Scalar, const N: usize, const M: usize>(
             #[inline(always)]
             |e, one| {
                 let pe = column_of(p, e);
-                update_column::<T, false>(&mut column, pe, one, || h[(c, e)]);
+                update_column::<T, N, false>(&mut column, pe, one, || h[(c, e)]);
             },
         );
         for (i, &v) in column.iter().enumerate() {
@@ -278,7 +293,7 @@ pub(crate) fn joseph<T: Scalar, const N: usize, const M: usize>(
             #[inline(always)]
             |e, one| {
                 let we = column_of(w, e);
-                update_column::<T, true>(&mut column, we, one, || h[(c, e)]);
+                update_column::<T, N, true>(&mut column, we, one, || h[(c, e)]);
             },
         );
         for (i, &v) in column.iter().enumerate() {
@@ -286,7 +301,7 @@ pub(crate) fn joseph<T: Scalar, const N: usize, const M: usize>(
         }
     }
     for j in 0..N {
-        for i in 0..=j {
+        for i in 0..j + 1 {
             let mut v = w[(i, j)];
             for c in 0..M {
                 v += d[(i, c)] * k[(j, c)];

@@ -171,7 +171,7 @@ impl<T: Scalar, const N: usize> UdKalman<T, N> {
     pub fn rebuild_covariance(&self) -> SMatrix<T, N, N> {
         let mut p = SMatrix::<T, N, N>::zeros();
         for j in 0..N {
-            for i in 0..=j {
+            for i in 0..j + 1 {
                 // sum over k >= j of U_ik D_k U_jk, with U_kk = 1.
                 let mut v = T::zero();
                 for k in j..N {
