@@ -70,7 +70,9 @@ impl<T: Scalar, const M: usize> Ldl<T, M> {
         if M == 2 {
             let (s10, s11) = (s[(M - 1, 0)], s[(M - 1, M - 1)]);
             let minor = s00 * s11 - s10 * s10;
-            if !pivot_accepted(minor, tol * s11.abs() * s00) {
+            // A subnormal s00 has no finite reciprocal: the factorisation
+            // refuses it at its own row, and so does this test.
+            if !(pivot_accepted(minor, tol * s11.abs() * s00) && recip_finite(s00)) {
                 // The products can underflow (variances near 1e-20 in f32)
                 // or overflow where the pivots do not: the factorisation
                 // has the last word on a refusal.
