@@ -62,6 +62,9 @@ impl<T: Scalar, const M: usize> Ldl<T, M> {
         if M > 2 {
             return Self::factor(s).map(|_| ());
         }
+        if M == 0 {
+            return Ok(());
+        }
         let tol = T::EPSILON * T::of(M as f64);
         let s00 = s[(0, 0)];
         if !pivot_accepted(s00, tol * s00.abs()) {

@@ -114,7 +114,6 @@ pub(crate) fn propagate<T: Scalar, const N: usize>(
     p: &SMatrix<T, N, N>,
     q: &SMatrix<T, N, N>,
 ) -> SMatrix<T, N, N> {
-    let mut rows = [[neg_zero::<T>(); N]; N];
     let mut c = SMatrix::<T, N, N>::from_element(neg_zero());
     for i in 0..N {
         let mut row = [neg_zero::<T>(); N];
@@ -127,13 +126,6 @@ pub(crate) fn propagate<T: Scalar, const N: usize>(
                 update_column::<T, N, false>(&mut row, pk, one, || f[(i, k)]);
             },
         );
-        // Stored whole (contiguous, so a host keeps the row in vector
-        // registers), transposed into C below in one pass.
-        if let Some(slot) = rows.get_mut(i) {
-            *slot = row;
-        }
-    }
-    for (i, row) in rows.iter().enumerate() {
         for (e, &v) in row.iter().enumerate() {
             c[(i, e)] = v;
         }
