@@ -127,8 +127,11 @@ const WRAP_DIRECT: f64 = 65536.0;
 /// `a` minus the multiple of the scalar's 2 pi that leaves it in
 /// (-2 pi, 2 pi) with the sign of `a`, exactly. Infinity and NaN pass
 /// through.
-#[cold]
-#[inline(never)]
+///
+/// Inlined although rarely taken: a call here makes every caller save the
+/// callee-saved FPU registers on its common path too (a heading fix costs
+/// 239 M4 cycles with the call, 214 without).
+#[inline(always)]
 fn remainder_two_pi<T: Scalar>(a: T) -> T {
     let two_pi = T::two_pi();
     let half = T::of(0.5);
