@@ -150,6 +150,38 @@ fn a_tiny_variance_is_reported_at_its_own_row() {
 }
 
 #[test]
+fn a_declared_diagonal_noise_refuses_what_the_dense_update_refuses() {
+    // The position fix declares R diagonal, so its update tests the two
+    // variances one by one instead of factoring R: every variance it
+    // refuses, at the row it names, must be what the linear update with
+    // the same (diagonal) R refuses, and the filter must stay unchanged.
+    let values = [f32::NAN, f32::INFINITY, -0.01, 0.0, 1e-40, 1e-30, 0.01];
+    let mut refusals = 0;
+    for &a in &values {
+        for &b in &values {
+            let fix = PositionFix {
+                var: Vector2::new(a, b),
+            };
+            let r = Matrix2::from_diagonal(&fix.var);
+            let z = Vector2::new(1.01, 1.98);
+            let dense = filter().update(&z, &h(), &r, None).map(|_| ());
+            let mut kf = filter();
+            let before = snapshot(&kf);
+            let patterned = kf.update_with(&fix, &z, None).map(|_| ());
+            assert_eq!(patterned, dense, "variances {a}, {b}");
+            if patterned.is_err() {
+                refusals += 1;
+                assert_eq!(snapshot(&kf), before, "variances {a}, {b}");
+            }
+        }
+    }
+    // Every pair with one of the first five values is refused but two: a
+    // subnormal last variance, whose reciprocal the factorisation never
+    // needs, after a usable first one.
+    assert_eq!(refusals, 7 * 7 - 2 * 2 - 2);
+}
+
+#[test]
 fn negative_and_indefinite_noise() {
     refused(
         FilterError::NotPositiveDefinite {

@@ -4,7 +4,7 @@
 
 use cairn_core::pose::{HeadingFix, Odometry, PlanarOdometry, PositionFix};
 use cairn_core::{HealthMonitor, Kalman, Outcome};
-use nalgebra::{Matrix2, Matrix3, Vector1, Vector2, Vector3};
+use nalgebra::{Matrix3, Vector1, Vector2, Vector3};
 
 /// A small deterministic Gaussian source (xorshift64* with Box-Muller), so
 /// the demo needs no extra crates and prints the same numbers every run.
@@ -35,7 +35,7 @@ fn main() {
         heading_drift_var: 0.0,
     };
     let beacon = PositionFix {
-        r: Matrix2::from_diagonal_element((sp * sp) as f32),
+        var: Vector2::repeat((sp * sp) as f32),
     };
     let compass = HeadingFix {
         var: (sh * sh) as f32,

@@ -5,7 +5,7 @@ use nalgebra::{SMatrix, SVector};
 
 use crate::error::{FilterError, Operand, idx};
 use crate::kernel::{finite_sum, neg_zero};
-use crate::ldl::failing_pivot;
+use crate::ldl::{Ldl, failing_pivot};
 use crate::model::ProcessModel;
 use crate::pattern::Pattern;
 use crate::patterned::free_sum;
@@ -174,6 +174,28 @@ fn first_indefinite<T: Scalar, const N: usize>(a: SMatrix<T, N, N>, strict: bool
         }
     }
     0
+}
+
+/// A measurement noise covariance R with structure `pattern` (its declared
+/// entries already in place, [`Pattern::apply`]): symmetric to within
+/// rounding and positive definite by [`Ldl::factor`]'s pivot rule. A
+/// diagonal pattern needs no symmetry test, and its variances are the
+/// pivots ([`Ldl::definite_diagonal`]).
+#[inline(always)]
+pub(crate) fn measurement_noise<T: Scalar, const M: usize>(
+    r: &SMatrix<T, M, M>,
+    pattern: &Pattern<M, M>,
+) -> Result<(), FilterError> {
+    let definite = if pattern.is_diagonal() {
+        Ldl::definite_diagonal(r)
+    } else {
+        symmetric(r, Operand::MeasurementNoise)?;
+        Ldl::definite(r)
+    };
+    definite.map_err(|j| FilterError::NotPositiveDefinite {
+        operand: Operand::MeasurementNoise,
+        index: idx(j),
+    })
 }
 
 /// The gate threshold, when given, must be finite and positive.

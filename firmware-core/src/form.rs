@@ -37,21 +37,25 @@ pub trait CovarianceForm {
         s: &SMatrix<T, M, M>,
     );
 
-    /// [`CovarianceForm::posterior`] for an H with the structure `pattern`
-    /// (a model's [`crate::MeasurementModel::JACOBIAN_PATTERN`]): the same
-    /// numbers, the products with H's structural zeros skipped. The default
-    /// ignores the pattern.
+    /// [`CovarianceForm::posterior`] for an H with the structure `h_pattern`
+    /// and an R with the structure `r_pattern` (a model's
+    /// [`crate::MeasurementModel::JACOBIAN_PATTERN`] and
+    /// [`crate::MeasurementModel::NOISE_PATTERN`]; `r` holds R's declared
+    /// entries): the same numbers, the products with structural zeros
+    /// skipped. The default ignores the patterns.
+    #[allow(clippy::too_many_arguments)]
     #[inline(always)]
     fn posterior_patterned<T: Scalar, const N: usize, const M: usize>(
         p: &mut SMatrix<T, N, N>,
         h: &SMatrix<T, M, N>,
-        pattern: &Pattern<M, N>,
+        h_pattern: &Pattern<M, N>,
         b: &SMatrix<T, N, M>,
         k: &SMatrix<T, N, M>,
         r: &SMatrix<T, M, M>,
+        r_pattern: &Pattern<M, M>,
         s: &SMatrix<T, M, M>,
     ) {
-        let _ = pattern;
+        let _ = (h_pattern, r_pattern);
         Self::posterior(p, h, b, k, r, s);
     }
 
@@ -143,13 +147,14 @@ impl<F: CovarianceForm> CovarianceForm for Checked<F> {
     fn posterior_patterned<T: Scalar, const N: usize, const M: usize>(
         p: &mut SMatrix<T, N, N>,
         h: &SMatrix<T, M, N>,
-        pattern: &Pattern<M, N>,
+        h_pattern: &Pattern<M, N>,
         b: &SMatrix<T, N, M>,
         k: &SMatrix<T, N, M>,
         r: &SMatrix<T, M, M>,
+        r_pattern: &Pattern<M, M>,
         s: &SMatrix<T, M, M>,
     ) {
-        F::posterior_patterned(p, h, pattern, b, k, r, s)
+        F::posterior_patterned(p, h, h_pattern, b, k, r, r_pattern, s)
     }
 
     #[inline(always)]
@@ -184,13 +189,14 @@ impl CovarianceForm for Joseph {
     fn posterior_patterned<T: Scalar, const N: usize, const M: usize>(
         p: &mut SMatrix<T, N, N>,
         h: &SMatrix<T, M, N>,
-        pattern: &Pattern<M, N>,
+        h_pattern: &Pattern<M, N>,
         b: &SMatrix<T, N, M>,
         k: &SMatrix<T, N, M>,
         r: &SMatrix<T, M, M>,
+        r_pattern: &Pattern<M, M>,
         _s: &SMatrix<T, M, M>,
     ) {
-        patterned::joseph(p, h, pattern, b, k, r)
+        patterned::joseph(p, h, h_pattern, b, k, r, r_pattern)
     }
 
     #[inline(always)]

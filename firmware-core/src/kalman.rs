@@ -274,7 +274,8 @@ impl<T: Scalar, const N: usize, F: CovarianceForm> Kalman<T, N, F> {
             (finite_sum(nu.as_slice()), Operand::Innovation),
         ])?;
         let mut post = self.p;
-        let weighed = self.weigh(nu, h, const { &Pattern::DENSE }, r, gate, &mut post)?;
+        let (h_dense, r_dense) = (const { &Pattern::DENSE }, const { &Pattern::DENSE });
+        let weighed = self.weigh(nu, h, h_dense, r, r_dense, gate, &mut post)?;
         self.finish(weighed, &post, |_| {})
     }
 
@@ -302,18 +303,23 @@ impl<T: Scalar, const N: usize, F: CovarianceForm> Kalman<T, N, F> {
         let nu = model.residual(z, &expected);
         let h = model.jacobian(&self.x);
         let h_pattern = const { &Mm::JACOBIAN_PATTERN };
+        let r_pattern = const { &Mm::NOISE_PATTERN };
         let r = model.noise(&self.x);
-        // Only the entries of H the kernels read.
+        // Only the entries of H and R the kernels read.
         check::finite_all([
             (finite_sum(nu.as_slice()), Operand::Innovation),
             (
                 patterned::free_sum(&h, h_pattern),
                 Operand::MeasurementMatrix,
             ),
-            (finite_sum(r.as_slice()), Operand::MeasurementNoise),
+            (
+                patterned::free_sum(&r, r_pattern),
+                Operand::MeasurementNoise,
+            ),
         ])?;
+        let r = r_pattern.apply(&r);
         let mut post = self.p;
-        let weighed = self.weigh(nu, &h, h_pattern, &r, gate, &mut post)?;
+        let weighed = self.weigh(nu, &h, h_pattern, &r, r_pattern, gate, &mut post)?;
         self.finish(
             weighed,
             &post,
@@ -386,9 +392,11 @@ impl<T: Scalar, const N: usize, F: CovarianceForm> Kalman<T, N, F> {
     }
 
     /// Shared update arithmetic, for an innovation and an R the caller has
-    /// checked finite: checks R is positive definite, factors S, gates, forms the gain
-    /// and the posterior, the latter in `post` (which holds the prior on
-    /// entry). Nothing is written to `self`.
+    /// checked finite (with `r_pattern`'s declared entries in place): checks
+    /// R is positive definite, factors S, gates, forms the gain and the
+    /// posterior, the latter in `post` (which holds the prior on entry).
+    /// Nothing is written to `self`.
+    #[allow(clippy::too_many_arguments)]
     #[inline(always)]
     fn weigh<const M: usize>(
         &self,
@@ -396,39 +404,39 @@ impl<T: Scalar, const N: usize, F: CovarianceForm> Kalman<T, N, F> {
         h: &SMatrix<T, M, N>,
         h_pattern: &Pattern<M, N>,
         r: &SMatrix<T, M, M>,
+        r_pattern: &Pattern<M, M>,
         gate: Option<T>,
         post: &mut SMatrix<T, N, N>,
     ) -> Result<Weighed<T, N>, FilterError> {
-        check::symmetric(r, Operand::MeasurementNoise)?;
         check::gate(gate)?;
-        if let Err(j) = Ldl::definite(r) {
-            return Err(FilterError::NotPositiveDefinite {
-                operand: Operand::MeasurementNoise,
-                index: idx(j),
-            });
-        }
+        check::measurement_noise(r, r_pattern)?;
+        let dense = h_pattern.is_dense() && r_pattern.is_dense();
         // B = P H' (n x m); S = H B + R.
-        let (b, s) = if h_pattern.is_dense() {
+        let (b, s) = if dense {
             innovation(&self.p, h, r)
         } else {
-            patterned::innovation(&self.p, h, h_pattern, r)
+            patterned::innovation(&self.p, h, h_pattern, r, r_pattern)
         };
         let ldl = Ldl::factor(&s).map_err(|j| FilterError::SingularInnovation { pivot: idx(j) })?;
         let nis = ldl.inverse_quadratic(&nu);
-        if !nis.finite() {
-            return Err(FilterError::NonFinite(Operand::Innovation));
-        }
-        if let Some(g) = gate
-            && nis > g
-        {
+        // The NIS is a sum of non-negative terms: within a (finite) gate it
+        // is finite, so one comparison serves both tests on that path.
+        let within = match gate {
+            Some(g) => nis <= g,
+            None => nis.finite(),
+        };
+        if !within {
+            if !nis.finite() {
+                return Err(FilterError::NonFinite(Operand::Innovation));
+            }
             return Ok(Weighed::Gate { nis });
         }
         let k = ldl.right_divide(&b);
         let x = self.x + k * nu;
-        if h_pattern.is_dense() {
+        if dense {
             F::posterior(post, h, &b, &k, r, &s);
         } else {
-            F::posterior_patterned(post, h, h_pattern, &b, &k, r, &s);
+            F::posterior_patterned(post, h, h_pattern, &b, &k, r, r_pattern, &s);
         }
         Ok(Weighed::Apply { x, nis })
     }

@@ -85,6 +85,34 @@ impl<T: Scalar, const M: usize> Ldl<T, M> {
         Ok(())
     }
 
+    /// [`Ldl::definite`] for a diagonal `s` (its off-diagonal entries are
+    /// not read): each variance is its own pivot, accepted by the
+    /// factorisation's rule (above `M eps` times itself and finite, and,
+    /// but for the last, with a finite reciprocal, without which the
+    /// factorisation fails at that row).
+    ///
+    /// # Errors
+    /// `Err(j)` with the index of the first pivot that is not safely positive.
+    ///
+    /// # Panics
+    /// Never.
+    #[inline(always)]
+    pub fn definite_diagonal(s: &SMatrix<T, M, M>) -> Result<(), usize> {
+        let tol = T::EPSILON * T::of(M as f64);
+        for j in 0..M {
+            let d = s[(j, j)];
+            // A branch per test: on a Cortex-M4F, combining the comparisons
+            // costs flag arithmetic (measured with `cairn cost`).
+            if !pivot_accepted(d, tol * d.abs()) {
+                return Err(j);
+            }
+            if j + 1 < M && !recip_finite(d) {
+                return Err(j);
+            }
+        }
+        Ok(())
+    }
+
     /// The error path of [`Ldl::factor`]: the careful pass's failing row
     /// (by value, so the matrix is written to memory only when this runs).
     #[cold]
@@ -389,5 +417,44 @@ mod tests {
         // Beyond 2 x 2, the factorisation itself.
         let indefinite = Matrix3::new(1.0, 2.0, 0.0, 2.0, 1.0, 0.0, 0.0, 0.0, 1.0_f64);
         assert_eq!(Ldl::definite(&indefinite), Err(1));
+    }
+
+    #[test]
+    fn the_diagonal_test_refuses_what_the_factorisation_refuses() {
+        // Every diagonal f32 3 x 3 matrix over values through negative,
+        // zero, subnormal (1e-40: no finite reciprocal), tiny, ordinary,
+        // huge and non-finite variances: the variance-by-variance test must
+        // give the factorisation's verdict and failing row, exactly (a
+        // diagonal matrix's pivots are its entries, so there is no rounding
+        // boundary). The subnormal case fails at its own row but for the
+        // last, where the factorisation never needs its reciprocal.
+        let values = [
+            f32::NAN,
+            f32::NEG_INFINITY,
+            -1.0,
+            0.0,
+            1e-40,
+            1e-30,
+            0.25,
+            3.0e38,
+            f32::INFINITY,
+        ];
+        let mut refused_subnormal_early = false;
+        for &a in &values {
+            for &b in &values {
+                for &c in &values {
+                    let s = Matrix3::from_diagonal(&nalgebra::Vector3::new(a, b, c));
+                    let factored = Ldl::factor(&s).map(|_| ());
+                    assert_eq!(Ldl::definite_diagonal(&s), factored, "{s}");
+                    refused_subnormal_early |= a == 1e-40 && factored == Err(0);
+                }
+            }
+        }
+        assert!(refused_subnormal_early);
+        // Off-diagonal entries are not read.
+        let mut s = Matrix3::from_diagonal_element(2.0_f32);
+        s[(0, 2)] = f32::NAN;
+        s[(1, 0)] = -5.0;
+        assert_eq!(Ldl::definite_diagonal(&s), Ok(()));
     }
 }

@@ -85,6 +85,14 @@ pub trait MeasurementModel<T: Scalar, const N: usize, const M: usize> {
     /// default, [`Pattern::DENSE`], declares none.
     const JACOBIAN_PATTERN: Pattern<M, N> = Pattern::DENSE;
 
+    /// Which entries of the noise covariance R are structurally zero or one
+    /// (most often [`Pattern::IDENTITY`] with its diagonal freed: sensor axes
+    /// with independent errors). The update never reads a declared entry:
+    /// it takes the declared value, skips the products with a zero, and a
+    /// diagonal R is tested variance by variance instead of factored. The
+    /// default, [`Pattern::DENSE`], declares none.
+    const NOISE_PATTERN: Pattern<M, M> = Pattern::DENSE;
+
     /// The expected measurement h(x) at the state x (not the filter's
     /// predict step).
     fn expected(&self, x: &SVector<T, N>) -> SVector<T, M>;

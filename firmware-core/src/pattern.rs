@@ -246,6 +246,37 @@ impl<const R: usize, const C: usize> Pattern<R, C> {
         self.dense
     }
 
+    /// `true` when every entry off the diagonal is a structural zero: a
+    /// noise covariance of independent components.
+    #[must_use]
+    pub const fn is_diagonal(&self) -> bool {
+        let mut i = 0;
+        while i < R {
+            let mut j = 0;
+            while j < C {
+                if i != j && !matches!(self.cells[i][j], Entry::Zero) {
+                    return false;
+                }
+                j += 1;
+            }
+            i += 1;
+        }
+        true
+    }
+
+    /// `m` with the pattern's structural entries in place: zeros and ones
+    /// where the pattern declares them, `m`'s own entries where it leaves
+    /// them free. The matrix the kernels work with (they never read a
+    /// declared entry of `m`).
+    #[inline(always)]
+    pub(crate) fn apply<T: Scalar>(&self, m: &SMatrix<T, R, C>) -> SMatrix<T, R, C> {
+        SMatrix::<T, R, C>::from_fn(|i, j| match self.cells[i][j] {
+            Entry::Zero => T::zero(),
+            Entry::One => T::one(),
+            Entry::Free => m[(i, j)],
+        })
+    }
+
     /// The transposed pattern.
     #[must_use]
     pub const fn transpose(&self) -> Pattern<C, R> {

@@ -12,7 +12,7 @@
 use nalgebra::{SMatrix, SVector};
 
 use crate::kernel::neg_zero;
-use crate::pattern::Pattern;
+use crate::pattern::{Entry, Pattern};
 use crate::scalar::Scalar;
 
 /// Column `j` of `m` as a fixed-size array (nalgebra stores columns
@@ -198,15 +198,17 @@ pub(crate) fn from_sources<T: Scalar, const N: usize>(
 }
 
 /// B = P H' (n x m) and S = H B + R (m x m, exactly symmetric) for an H with
-/// structure `pattern`: `B[i,c] = sum_e P[e,i] H[c,e]` and
-/// `S[i,j] = sum_e H[i,e] B[e,j] + R[i,j]` (i >= j, mirrored), over the rows'
-/// non-zero e, ascending.
+/// structure `pattern` and an R with structure `r_pattern`:
+/// `B[i,c] = sum_e P[e,i] H[c,e]` and `S[i,j] = sum_e H[i,e] B[e,j] + R[i,j]`
+/// (i >= j, mirrored), over the rows' non-zero e, ascending, the addition of
+/// a structural zero of R skipped.
 #[inline(always)]
 pub(crate) fn innovation<T: Scalar, const N: usize, const M: usize>(
     p: &SMatrix<T, N, N>,
     h: &SMatrix<T, M, N>,
     pattern: &Pattern<M, N>,
     r: &SMatrix<T, M, M>,
+    r_pattern: &Pattern<M, M>,
 ) -> (SMatrix<T, N, M>, SMatrix<T, M, M>) {
     let mut b = SMatrix::<T, N, M>::from_element(neg_zero());
     for c in 0..M {
@@ -233,7 +235,11 @@ pub(crate) fn innovation<T: Scalar, const N: usize, const M: usize>(
                 #[inline(always)]
                 |e, one| v += times(b[(e, j)], one, h[(i, e)]),
             );
-            let v = v + r[(i, j)];
+            let v = match r_pattern.entry(i, j) {
+                Entry::Zero => v,
+                Entry::One => v + T::one(),
+                Entry::Free => v + r[(i, j)],
+            };
             s[(i, j)] = v;
             s[(j, i)] = v;
         }
@@ -244,7 +250,8 @@ pub(crate) fn innovation<T: Scalar, const N: usize, const M: usize>(
 /// Joseph's factored order (see [`crate::Joseph`]) for an H with structure
 /// `pattern`, in place in `p` (upper triangle of the result): W = P - K B',
 /// computed where it is read (the upper triangle and the columns H uses);
-/// D = K R - W H' over H's non-zero entries; P+ = W + D K'.
+/// D = K R - W H' over the non-zero entries of R (`r_pattern`) and H;
+/// P+ = W + D K'.
 #[inline(always)]
 pub(crate) fn joseph<T: Scalar, const N: usize, const M: usize>(
     p: &mut SMatrix<T, N, N>,
@@ -253,6 +260,7 @@ pub(crate) fn joseph<T: Scalar, const N: usize, const M: usize>(
     b: &SMatrix<T, N, M>,
     k: &SMatrix<T, N, M>,
     r: &SMatrix<T, M, M>,
+    r_pattern: &Pattern<M, M>,
 ) {
     let w = p;
     for j in 0..N {
@@ -274,10 +282,12 @@ pub(crate) fn joseph<T: Scalar, const N: usize, const M: usize>(
         // D[:,c] = K R[:,c] - sum_e H[c,e] W[:,e].
         let mut column = [neg_zero::<T>(); N];
         for e in 0..M {
-            let rec = r[(e, c)];
-            for (i, acc) in column.iter_mut().enumerate() {
-                *acc += k[(i, e)] * rec;
-            }
+            let one = match r_pattern.entry(e, c) {
+                Entry::Zero => continue,
+                Entry::One => true,
+                Entry::Free => false,
+            };
+            update_column::<T, N, false>(&mut column, column_of(k, e), one, || r[(e, c)]);
         }
         let w = &*w;
         pattern.each_in_row(
@@ -390,9 +400,16 @@ mod tests {
                 "sources n = {N}"
             );
             let h = obeying::<T, M, N>(&mut g, &hp);
-            let r = g.covariance::<T, M>();
+            // R with a random structure of its own (the kernels need no
+            // definiteness), its declared entries in place.
+            let rp: Pattern<M, M> = if round % 2 == 0 {
+                Pattern::DENSE
+            } else {
+                random_pattern(&mut g)
+            };
+            let r = rp.apply(&g.covariance::<T, M>());
             let (bd, sd) = kernel::innovation_shaped::<T, N, M, false>(&p, &h, &r);
-            let (bp, sp) = innovation(&p, &h, &hp, &r);
+            let (bp, sp) = innovation(&p, &h, &hp, &r, &rp);
             assert!(
                 same_upper(&bp, &bd, false) && same_upper(&sp, &sd, false),
                 "innovation"
@@ -401,7 +418,7 @@ mod tests {
             let mut dense = p;
             crate::form::joseph::<T, N, M, false>(&mut dense, &h, &bd, &k, &r);
             let mut sparse = p;
-            joseph(&mut sparse, &h, &hp, &bd, &k, &r);
+            joseph(&mut sparse, &h, &hp, &bd, &k, &r, &rp);
             assert!(same_upper(&sparse, &dense, true), "joseph n = {N}, m = {M}");
         }
     }

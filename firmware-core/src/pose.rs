@@ -138,11 +138,17 @@ impl<T: Scalar> PlanarOdometry<T> {
     }
 }
 
-/// A position fix (x, y) in metres, with noise covariance `r` (m^2).
+/// A position fix (x, y) in metres with independent x and y errors of
+/// variances `var` (m^2): R = diag(var), declared diagonal
+/// ([`MeasurementModel::NOISE_PATTERN`]), so the update tests the two
+/// variances instead of factoring R and skips its zero products. A fix with
+/// correlated errors (a rotated error ellipse) is a model of its own with a
+/// full R.
 #[derive(Debug, Clone, Copy, PartialEq)]
-pub struct PositionFix<T: Scalar> {
-    /// Noise covariance of the fix, m^2.
-    pub r: Matrix2<T>,
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct PositionFix<T> {
+    /// Noise variances of x and y, m^2.
+    pub var: Vector2<T>,
 }
 
 impl<T: Scalar> PositionFix<T> {
@@ -163,6 +169,8 @@ impl<T: Scalar> PositionFix<T> {
 impl<T: Scalar> MeasurementModel<T, 3, 2> for PositionFix<T> {
     /// H selects x and y.
     const JACOBIAN_PATTERN: Pattern<2, 3> = Pattern::IDENTITY;
+    /// Independent x and y errors.
+    const NOISE_PATTERN: Pattern<2, 2> = Pattern::ZERO.free(0, 0).free(1, 1);
 
     #[inline(always)]
     fn expected(&self, x: &Vector3<T>) -> Vector2<T> {
@@ -174,7 +182,7 @@ impl<T: Scalar> MeasurementModel<T, 3, 2> for PositionFix<T> {
     }
     #[inline(always)]
     fn noise(&self, _x: &Vector3<T>) -> Matrix2<T> {
-        self.r
+        Matrix2::from_diagonal(&self.var)
     }
     #[inline(always)]
     fn normalize(&self, x: &mut Vector3<T>) {
@@ -303,7 +311,7 @@ mod tests {
         // to rounding.
         let x = Vector3::new(0.4, -0.9, 2.0);
         let fix = PositionFix {
-            r: Matrix2::identity() * 0.01,
+            var: Vector2::new(0.01, 0.01),
         };
         let heading = HeadingFix { var: 1e-3 };
         for c in 0..3 {

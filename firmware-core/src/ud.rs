@@ -406,7 +406,8 @@ impl<T: Scalar, const N: usize> UdKalman<T, N> {
         let nu = model.residual(z, &expected);
         let h = model.jacobian(&self.x);
         check::finite(&h, Operand::MeasurementMatrix)?;
-        let r = model.noise(&self.x);
+        // R as the model declares it (see `MeasurementModel::NOISE_PATTERN`).
+        let r = const { &Mm::NOISE_PATTERN }.apply(&model.noise(&self.x));
         self.update_innovation(
             nu,
             &h,

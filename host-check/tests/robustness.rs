@@ -96,6 +96,34 @@ fn a_variance_that_underflows_to_zero_is_bad_input_naming_the_field() {
 }
 
 #[test]
+fn a_correlated_pose_position_fix_is_bad_input_at_its_line() {
+    // The planar pose model's position fix declares independent x and y
+    // errors (a diagonal R the update never reads off the diagonal): a
+    // correlated `r` is refused, not silently dropped.
+    let demo = Path::new(env!("CARGO_MANIFEST_DIR")).join("specs/demo.toml");
+    let text = std::fs::read_to_string(demo).unwrap();
+    let noise = "noise = [\n  { std = 0.08, unit = \"m\" },\n  { std = 0.08, unit = \"m\" },\n]";
+    assert!(text.contains(noise), "the demo's beacon noise moved");
+    let spec = scratch("correlated-fix.toml");
+    std::fs::write(
+        &spec,
+        text.replacen(noise, "r = [[0.0064, 0.003], [0.003, 0.0064]]", 1),
+    )
+    .unwrap();
+    let out = cairn(&["check", spec.to_str().unwrap(), "-q"]);
+    let at = format!("correlated-fix.toml:{}:", line_of(&spec, "r = [[0.0064"));
+    bad_input(&out, &[&at, "`channel[0].r`", "independent x and y errors"]);
+    // The same figures on the diagonal only are accepted.
+    std::fs::write(
+        &spec,
+        text.replacen(noise, "r = [[0.0064, 0.0], [0.0, 0.0064]]", 1),
+    )
+    .unwrap();
+    let out = cairn(&["check", spec.to_str().unwrap(), "-q", "--seconds", "10"]);
+    assert_eq!(out.status.code(), Some(0), "{}", stderr(&out));
+}
+
+#[test]
 fn a_reference_refusal_names_the_file_line_and_channel() {
     // F = 1e100 multiplies P by 1e200 per step: P overflows by the second
     // step and the reference refuses the update (arithmetic).

@@ -8,7 +8,7 @@
 
 use cairn_core::pose::{HeadingFix, Odometry, PlanarOdometry, PositionFix};
 use cairn_core::{Joseph, Kalman, Outcome, Scalar, wrap_angle};
-use nalgebra::{Matrix2, Matrix3, Vector1, Vector2, Vector3};
+use nalgebra::{Matrix3, Vector1, Vector2, Vector3};
 
 /// Steps of the bit-exactness run (20 s of odometry at 200 Hz).
 pub const STEPS: u32 = 4000;
@@ -55,7 +55,7 @@ pub fn models() -> Models {
             heading_drift_var: 1e-8,
         },
         beacon: PositionFix {
-            r: Matrix2::from_diagonal_element(2.5e-3),
+            var: Vector2::repeat(2.5e-3),
         },
         compass: HeadingFix { var: 4e-4 },
     }

@@ -4,7 +4,7 @@
 
 use bramble_tug::{HeadingFix, ImuSample, RadioFix, STATES, TugMotion, WheelSpeed};
 use cairn_core::nalgebra::{SMatrix, SVector};
-use cairn_core::{Pattern, ProcessModel, Scalar};
+use cairn_core::{MeasurementModel, Pattern, ProcessModel, Scalar};
 use cairn_host_check::engine::{Sensor, System};
 use cairn_host_check::scenario::Scenario;
 use cairn_host_check::spec::Mode;
@@ -251,6 +251,57 @@ fn a_pattern_the_jacobian_breaks_fails_the_check_naming_the_entry() {
         .unwrap_or_default();
     assert!(
         why.contains("F entry (") && why.contains("structurally zero"),
+        "{why}"
+    );
+}
+
+/// The tug's radio fix declaring its R structurally the identity: its
+/// variance, 0.01 m^2, breaks the declared one.
+struct MisdeclaredRadioFix<T>(RadioFix<T>);
+
+impl<T: Scalar> MeasurementModel<T, STATES, 2> for MisdeclaredRadioFix<T> {
+    const NOISE_PATTERN: Pattern<2, 2> = Pattern::IDENTITY;
+    fn expected(&self, x: &SVector<T, STATES>) -> SVector<T, 2> {
+        self.0.expected(x)
+    }
+    fn jacobian(&self, x: &SVector<T, STATES>) -> SMatrix<T, 2, STATES> {
+        self.0.jacobian(x)
+    }
+    fn noise(&self, x: &SVector<T, STATES>) -> SMatrix<T, 2, 2> {
+        self.0.noise(x)
+    }
+    fn normalize(&self, x: &mut SVector<T, STATES>) {
+        self.0.normalize(x);
+    }
+}
+
+struct MisdeclaredRadio;
+impl Sensor<STATES, 2> for MisdeclaredRadio {
+    type Model<T: Scalar> = MisdeclaredRadioFix<T>;
+    fn model<T: Scalar>(&self) -> MisdeclaredRadioFix<T> {
+        MisdeclaredRadioFix(Radio.model::<T>())
+    }
+    fn to_frame(&self, z: &mut [f64], origin: &SVector<f64, STATES>) {
+        Radio.to_frame(z, origin);
+    }
+}
+
+#[test]
+fn a_noise_pattern_the_fix_breaks_fails_the_check_naming_the_entry() {
+    let report = scenario(Tug)
+        .channel("misdeclared radio", MisdeclaredRadio, 1.0)
+        .horizon_s(30.0)
+        .check()
+        .expect("runs");
+    assert!(!report.passes());
+    assert_eq!(report.exit_code(), 1);
+    let why = report
+        .variant("f32 joseph")
+        .and_then(|v| v.why.clone())
+        .unwrap_or_default();
+    assert!(
+        why.contains("`misdeclared radio` measurement's R entry (0, 0)")
+            && why.contains("structurally one"),
         "{why}"
     );
 }

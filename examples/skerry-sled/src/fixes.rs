@@ -25,6 +25,9 @@ fn select<T: Scalar>(first: usize) -> SMatrix<T, 3, STATES> {
     h
 }
 
+/// The structure of [`level_noise`]: a diagonal R.
+const INDEPENDENT: Pattern<3, 3> = Pattern::ZERO.free(0, 0).free(1, 1).free(2, 2);
+
 /// R = diag(horizontal^2, horizontal^2, vertical^2).
 #[inline(always)]
 fn level_noise<T: Scalar>(horizontal: T, vertical: T) -> Matrix3<T> {
@@ -57,6 +60,8 @@ impl<T: Scalar> PositionFix<T> {
 
 impl<T: Scalar> MeasurementModel<T, STATES, 3> for PositionFix<T> {
     const JACOBIAN_PATTERN: Pattern<3, STATES> = selection(POSITION);
+    /// Independent north, east and down errors.
+    const NOISE_PATTERN: Pattern<3, 3> = INDEPENDENT;
 
     #[inline(always)]
     fn expected(&self, x: &SVector<T, STATES>) -> SVector<T, 3> {
@@ -101,6 +106,8 @@ impl<T: Scalar> VelocityFix<T> {
 
 impl<T: Scalar> MeasurementModel<T, STATES, 3> for VelocityFix<T> {
     const JACOBIAN_PATTERN: Pattern<3, STATES> = selection(VELOCITY);
+    /// Independent north, east and down errors.
+    const NOISE_PATTERN: Pattern<3, 3> = INDEPENDENT;
 
     #[inline(always)]
     fn expected(&self, x: &SVector<T, STATES>) -> SVector<T, 3> {

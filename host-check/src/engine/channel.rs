@@ -27,10 +27,11 @@ pub trait Channel<const N: usize>: Sync {
     /// h(x), H and R at `x`, in `f64`.
     fn evaluate(&self, x: &SVector<f64, N>) -> Evaluation;
 
-    /// The first entry of `jacobian` (this channel's H, as `evaluate` gave
-    /// it) that breaks the model's declared structural pattern
-    /// (`MeasurementModel::JACOBIAN_PATTERN`), with what the pattern says.
-    fn pattern_break(&self, jacobian: &DMatrix<f64>) -> Option<(usize, usize, Entry)>;
+    /// The first entry of this channel's H, then of its R (as `evaluate`
+    /// gave them), that breaks the model's declared structural pattern
+    /// (`MeasurementModel::JACOBIAN_PATTERN`, `NOISE_PATTERN`): the
+    /// matrix ("H" or "R"), the entry and what the pattern says.
+    fn pattern_break(&self, ev: &Evaluation) -> Option<(&'static str, usize, usize, Entry)>;
 
     /// The innovation z - h(x) by the model's own residual rule, in `f64`.
     fn residual(&self, z: &[f64], predicted: &[f64]) -> Vec<f64>;
@@ -78,12 +79,19 @@ impl<const N: usize, const M: usize, S: Sensor<N, M>> Channel<N> for SensorChann
         }
     }
 
-    fn pattern_break(&self, jacobian: &DMatrix<f64>) -> Option<(usize, usize, Entry)> {
-        let pattern = <S::Model<f64> as MeasurementModel<f64, N, M>>::JACOBIAN_PATTERN;
-        let h = SMatrix::<f64, M, N>::from_fn(|i, j| jacobian[(i, j)]);
-        pattern
+    fn pattern_break(&self, ev: &Evaluation) -> Option<(&'static str, usize, usize, Entry)> {
+        let h_pattern = <S::Model<f64> as MeasurementModel<f64, N, M>>::JACOBIAN_PATTERN;
+        let r_pattern = <S::Model<f64> as MeasurementModel<f64, N, M>>::NOISE_PATTERN;
+        let h = SMatrix::<f64, M, N>::from_fn(|i, j| ev.jacobian[(i, j)]);
+        let r = SMatrix::<f64, M, M>::from_fn(|i, j| ev.noise[(i, j)]);
+        let h_break = h_pattern
             .first_violation(&h)
-            .map(|(i, j)| (i, j, pattern.entry(i, j)))
+            .map(|(i, j)| ("H", i, j, h_pattern.entry(i, j)));
+        h_break.or_else(|| {
+            r_pattern
+                .first_violation(&r)
+                .map(|(i, j)| ("R", i, j, r_pattern.entry(i, j)))
+        })
     }
 
     fn residual(&self, z: &[f64], predicted: &[f64]) -> Vec<f64> {

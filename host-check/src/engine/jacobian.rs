@@ -51,7 +51,8 @@ pub struct ModelJacobian {
 pub struct PatternBreak {
     /// "process" or the channel's name.
     pub model: String,
-    /// "F" (the process Jacobian), "G" (its noise sources) or "H".
+    /// "F" (the process Jacobian), "G" (its noise sources), "H" or "R"
+    /// (a measurement's Jacobian and noise).
     pub matrix: &'static str,
     /// Row of the entry.
     pub row: usize,
@@ -313,15 +314,20 @@ impl JacobianCheck {
         self.channels[c].add(k, &ev.jacobian, &numeric);
         let name = &self.channels[c].name;
         if !self.pattern_breaks.iter().any(|b| &b.model == name)
-            && let Some((row, column, entry)) = channel.pattern_break(&ev.jacobian)
+            && let Some((matrix, row, column, entry)) = channel.pattern_break(&ev)
         {
+            let value = if matrix == "R" {
+                ev.noise[(row, column)]
+            } else {
+                ev.jacobian[(row, column)]
+            };
             self.pattern_breaks.push(PatternBreak {
                 model: name.clone(),
-                matrix: "H",
+                matrix,
                 row,
                 column,
                 declared: declared(entry),
-                value: ev.jacobian[(row, column)],
+                value,
                 step: k,
             });
         }

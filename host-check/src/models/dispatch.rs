@@ -1,7 +1,7 @@
 //! The one place where a spec's model becomes engine models, and where the
 //! run-time size picks one of the compiled sizes.
 
-use nalgebra::{DMatrix, Matrix2};
+use nalgebra::{DMatrix, Vector2};
 
 use super::{HeadingSensor, LinearSensor, LinearSystem, PoseSystem, PositionSensor};
 use crate::engine::check::Steady;
@@ -114,7 +114,7 @@ pub fn with_models<V: Visit>(plan: &Plan, v: V) -> Result<V::Output, ModelError>
                 .map(|c| -> Result<Box<dyn Channel<3>>, ModelError> {
                     Ok(match &c.kind {
                         ChannelKind::Position => Box::new(SensorChannel::<_, 2>(PositionSensor {
-                            r: Matrix2::from_fn(|i, j| c.r[(i, j)]),
+                            var: Vector2::new(c.r[(0, 0)], c.r[(1, 1)]),
                         })),
                         ChannelKind::Heading => {
                             Box::new(SensorChannel::<_, 1>(HeadingSensor { var: c.r[(0, 0)] }))

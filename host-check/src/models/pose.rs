@@ -3,7 +3,7 @@
 
 use cairn_core::Scalar;
 use cairn_core::pose::{HeadingFix, Odometry, PlanarOdometry, PositionFix};
-use nalgebra::{Matrix2, SVector};
+use nalgebra::{SVector, Vector2};
 
 use crate::engine::{Sensor, System};
 
@@ -49,11 +49,11 @@ impl System<3> for PoseSystem {
     }
 }
 
-/// A position fix (x, y) with noise R.
+/// A position fix (x, y) with independent errors.
 #[derive(Debug, Clone, Copy)]
 pub struct PositionSensor {
-    /// Noise covariance, m^2.
-    pub r: Matrix2<f64>,
+    /// Noise variances of x and y, m^2.
+    pub var: Vector2<f64>,
 }
 
 impl Sensor<3, 2> for PositionSensor {
@@ -61,7 +61,7 @@ impl Sensor<3, 2> for PositionSensor {
 
     fn model<T: Scalar>(&self) -> PositionFix<T> {
         PositionFix {
-            r: self.r.map(T::of),
+            var: self.var.map(T::of),
         }
     }
 

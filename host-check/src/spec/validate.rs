@@ -881,6 +881,14 @@ fn channel(
             e
         })?
     };
+    if matches!(kind, ChannelKind::Position) && (r[(0, 1)] != 0.0 || r[(1, 0)] != 0.0) {
+        let span = c.r.as_ref().map_or(ch.span(), Spanned::span);
+        return Err(loc.error(
+            span,
+            &at("r"),
+            "the planar pose model's position fix has independent x and y errors: give `r_diag` or a diagonal `r` (a correlated fix needs a model of its own)",
+        ));
+    }
     Ok(ChannelPlan {
         m,
         kind,

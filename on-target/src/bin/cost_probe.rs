@@ -10,7 +10,7 @@ use cairn_on_target::scenario::{self, Lcg};
 use cairn_on_target::{Line, exit, probe};
 use core::hint::black_box;
 use cortex_m_rt::entry;
-use nalgebra::{SMatrix, Vector1, Vector2};
+use nalgebra::{Matrix2, SMatrix, Vector1, Vector2};
 
 /// Calls per probe; `cairn cost` reads this figure from the output.
 const CALLS: u32 = 16;
@@ -123,7 +123,7 @@ fn main() -> ! {
             x[0] + 0.05 * noise.signed_unit(),
             x[1] + 0.05 * noise.signed_unit(),
         );
-        probe::pose_position_update_unchecked(black_box(&mut x), &mut p, &models.beacon.r, &z);
+        probe::pose_position_update_unchecked(black_box(&mut x), &mut p, &Matrix2::from_diagonal(&models.beacon.var), &z);
     }
     failures += u32::from(!(p.iter().all(|v| v.is_finite()) && p[(0, 0)] > 0.0));
 
