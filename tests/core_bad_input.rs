@@ -433,3 +433,86 @@ fn shifting_the_origin_keeps_f32_positions_resolved() {
     }
     assert_eq!(snapshot(&near), before);
 }
+
+/// A two-state model whose free Jacobian entry F[0,1] and free source
+/// entry G[1,0] are set by the test; the state itself stays finite.
+struct Injected {
+    f01: f32,
+    g10: f32,
+}
+
+impl cairn_core::ProcessModel<f32, 2> for Injected {
+    type Input = ();
+    const JACOBIAN_PATTERN: cairn_core::Pattern<2, 2> = cairn_core::Pattern::IDENTITY.free(0, 1);
+    const SOURCES_PATTERN: cairn_core::Pattern<2, 2> =
+        cairn_core::Pattern::ZERO.one(0, 0).free(1, 0).one(1, 1);
+    fn transition(&self, x: &Vector2<f32>, _u: &(), _dt: f32) -> Vector2<f32> {
+        *x
+    }
+    fn jacobian(&self, _x: &Vector2<f32>, _u: &(), _dt: f32) -> Matrix2<f32> {
+        Matrix2::new(1.0, self.f01, 0.0, 1.0)
+    }
+    fn noise(&self, x: &Vector2<f32>, u: &(), dt: f32) -> Matrix2<f32> {
+        let (g, q) = self.noise_sources(x, u, dt).unwrap_or_default();
+        g * Matrix2::from_diagonal(&q) * g.transpose()
+    }
+    fn noise_sources(
+        &self,
+        _x: &Vector2<f32>,
+        _u: &(),
+        _dt: f32,
+    ) -> Option<(Matrix2<f32>, Vector2<f32>)> {
+        Some((
+            Matrix2::new(1.0, 0.0, self.g10, 1.0),
+            Vector2::new(0.0, 1e-4),
+        ))
+    }
+}
+
+#[test]
+fn a_non_finite_jacobian_or_source_entry_is_named_not_reported_as_a_lost_covariance() {
+    // The extended predict tests F's and G's free entries through the
+    // result (a NaN or infinity there always reaches the diagonal of
+    // F P F' + Q: IEEE 754 infinity times zero is NaN) and names them on
+    // the error path. P is diagonal, so an infinite F[0,1] meets zeros.
+    let start = || {
+        Kalman::<f32, 2>::try_new(
+            Vector2::new(1.0, -2.0),
+            Matrix2::from_diagonal(&Vector2::new(0.5, 0.25)),
+        )
+        .unwrap()
+    };
+    let bits = |kf: &Kalman<f32, 2>| {
+        kf.state()
+            .iter()
+            .chain(kf.covariance().iter())
+            .map(|v| v.to_bits())
+            .collect::<Vec<_>>()
+    };
+    for bad in [f32::NAN, f32::INFINITY, f32::NEG_INFINITY] {
+        for (model, expected) in [
+            (
+                Injected { f01: bad, g10: 0.5 },
+                FilterError::NonFinite(Operand::Transition),
+            ),
+            (
+                Injected { f01: 0.5, g10: bad },
+                FilterError::NonFinite(Operand::ProcessNoise),
+            ),
+            (
+                Injected { f01: bad, g10: bad },
+                FilterError::NonFinite(Operand::Transition),
+            ),
+        ] {
+            let mut kf = start();
+            let before = bits(&kf);
+            assert_eq!(kf.predict_with(&model, &(), 0.01), Err(expected), "{bad}");
+            assert_eq!(bits(&kf), before, "{bad}");
+        }
+    }
+    // The same model with finite entries predicts.
+    let mut kf = start();
+    kf.predict_with(&Injected { f01: 0.5, g10: 0.5 }, &(), 0.01)
+        .unwrap();
+    assert!(kf.covariance()[(0, 0)] > 0.5);
+}

@@ -6,7 +6,7 @@ use nalgebra::{SMatrix, SVector};
 use crate::error::{FilterError, Operand, idx};
 use crate::kernel::{finite_sum, neg_zero};
 use crate::ldl::{Ldl, failing_pivot};
-use crate::model::ProcessModel;
+use crate::model::{Linearized, ProcessModel};
 use crate::pattern::Pattern;
 use crate::patterned::free_sum;
 use crate::scalar::Scalar;
@@ -261,6 +261,77 @@ pub(crate) fn covariance<T: Scalar, const N: usize>(
     Ok(())
 }
 
+/// An extended predict's result, with the model evaluation's own tests
+/// folded in: `pending` is the finiteness sum of the propagated state plus
+/// the [`variance_sum`] of its noise sources (when it has them), and the
+/// predicted covariance's upper triangle must be finite with a positive
+/// diagonal, all tested together after the arithmetic.
+///
+/// The free entries of F and G need no test of their own: a NaN or
+/// infinity in one of them makes a diagonal entry of F P F' + G diag(q) G'
+/// NaN or infinite (every term of P'[i,i] involves row i of F, and of G;
+/// infinity times zero is NaN, and no sum makes NaN or infinity finite
+/// again: IEEE 754-2019, section 7.2). Only on the error path is the model
+/// evaluated again, at the same point, to name what failed in the order
+/// the tests run: F, the state, G, the variances, then the covariance.
+#[inline(always)]
+pub(crate) fn predicted<T: Scalar, const N: usize, P: ProcessModel<T, N>>(
+    model: &P,
+    prior: &SVector<T, N>,
+    u: &P::Input,
+    dt: T,
+    pending: T,
+    p: &SMatrix<T, N, N>,
+) -> Result<(), FilterError> {
+    let mut positive = true;
+    for i in 0..N {
+        positive &= p[(i, i)] > T::zero();
+    }
+    if positive && pending + crate::kernel::upper_finite_sum(p) == T::zero() {
+        Ok(())
+    } else {
+        Err(predict_refusal(model, prior, u, dt, *p))
+    }
+}
+
+/// Why [`predicted`] failed (see there).
+#[cold]
+#[inline(never)]
+fn predict_refusal<T: Scalar, const N: usize, P: ProcessModel<T, N>>(
+    model: &P,
+    prior: &SVector<T, N>,
+    u: &P::Input,
+    dt: T,
+    p: SMatrix<T, N, N>,
+) -> FilterError {
+    let Linearized {
+        next,
+        jacobian,
+        sources,
+        ..
+    } = model.linearize(prior, u, dt);
+    let f = free_sum(&jacobian, &P::JACOBIAN_PATTERN);
+    let x = finite_sum(next.as_slice());
+    let g = sources
+        .as_ref()
+        .map_or(neg_zero(), |(g, _)| free_sum(g, &P::SOURCES_PATTERN));
+    if f + x + g != T::zero() {
+        return first_non_finite([
+            (f, Operand::Transition),
+            (x, Operand::Control),
+            (g, Operand::ProcessNoise),
+        ]);
+    }
+    if let Some((_, q)) = sources
+        && variance_sum(&q) != T::zero()
+    {
+        return bad_variances(q);
+    }
+    FilterError::CovarianceLost {
+        index: idx(first_lost(p)),
+    }
+}
+
 /// The first diagonal entry that is not a positive finite variance, or 0
 /// when the diagonal is sound and the loss is off it.
 #[cold]
@@ -321,7 +392,7 @@ pub(crate) fn linearized<T: Scalar, const N: usize, P: ProcessModel<T, N>>(
 /// +0 for a finite v >= 0, positive for a negative v or -inf, NaN for NaN
 /// or +inf, so one sum and one comparison test both conditions.
 #[inline(always)]
-fn variance_sum<T: Scalar, const N: usize>(q: &SVector<T, N>) -> T {
+pub(crate) fn variance_sum<T: Scalar, const N: usize>(q: &SVector<T, N>) -> T {
     let mut acc = neg_zero::<T>();
     for &v in q.iter() {
         acc += v.abs() - v;

@@ -8,7 +8,7 @@ use nalgebra::{SMatrix, SVector};
 use crate::check;
 use crate::error::{FilterError, Operand, Outcome, idx};
 use crate::form::{CovarianceForm, Joseph};
-use crate::kernel::{finite_sum, from_sources, innovation, mirror_upper, propagate};
+use crate::kernel::{finite_sum, from_sources, innovation, mirror_upper, neg_zero, propagate};
 use crate::ldl::Ldl;
 use crate::model::{Linearized, MeasurementModel, ProcessModel};
 use crate::pattern::Pattern;
@@ -209,28 +209,31 @@ impl<T: Scalar, const N: usize, F: CovarianceForm> Kalman<T, N, F> {
         // takes the dense kernels.
         let f_pattern = const { &P::JACOBIAN_PATTERN };
         let g_columns = const { &P::SOURCES_PATTERN.transpose() };
-        check::linearized(
-            model,
-            &jacobian,
-            f_pattern,
-            &mut next,
-            sources
-                .as_ref()
-                .map(|(g, q)| (g, const { &P::SOURCES_PATTERN }, q)),
-        )?;
+        let x_sum = finite_sum(next.as_slice());
         // Noise given as independent sources makes its own Q, symmetric and
-        // semidefinite by construction: its variances were checked above.
-        let q = match sources {
+        // semidefinite by construction once its variances pass: they are
+        // tested with the result (`check::predicted`). A Q given whole is
+        // tested first, after F and the state it would otherwise be named
+        // after.
+        let (q, pending) = match sources {
             Some((g, q)) => {
+                let pending = x_sum + check::variance_sum(&q);
                 if g_columns.is_dense() {
-                    from_sources(&g, &q)
+                    (from_sources(&g, &q), pending)
                 } else {
-                    patterned::from_sources(&g, g_columns, &q)
+                    (patterned::from_sources(&g, g_columns, &q), pending)
                 }
             }
             None => {
+                check::finite_all([
+                    (
+                        patterned::free_sum(&jacobian, f_pattern),
+                        Operand::Transition,
+                    ),
+                    (x_sum, Operand::Control),
+                ])?;
                 check::noise(&noise, Operand::ProcessNoise, false)?;
-                noise
+                (noise, neg_zero())
             }
         };
         let p = if f_pattern.is_dense() {
@@ -238,8 +241,10 @@ impl<T: Scalar, const N: usize, F: CovarianceForm> Kalman<T, N, F> {
         } else {
             patterned::propagate(&jacobian, f_pattern, &self.p, &q)
         };
-        // `next` was checked finite and normalised (which keeps it finite).
-        self.store(&next, &p)
+        check::predicted(model, &self.x, u, dt, pending, &p)?;
+        // Finite, so its normalisation is too.
+        model.normalize(&mut next);
+        self.store_checked(&next, &p)
     }
 
     /// Linear update with measurement z = H x + v, v ~ N(0, R), solving with
@@ -471,6 +476,17 @@ impl<T: Scalar, const N: usize, F: CovarianceForm> Kalman<T, N, F> {
     #[inline(always)]
     fn store(&mut self, x: &SVector<T, N>, p: &SMatrix<T, N, N>) -> Result<(), FilterError> {
         check::covariance(p)?;
+        self.store_checked(x, p)
+    }
+
+    /// [`Kalman::store`] for a covariance already checked finite with a
+    /// positive diagonal.
+    #[inline(always)]
+    fn store_checked(
+        &mut self,
+        x: &SVector<T, N>,
+        p: &SMatrix<T, N, N>,
+    ) -> Result<(), FilterError> {
         // A compile-time choice: a filter without the check pays nothing.
         if F::CHECKS_DEFINITENESS {
             check::definite(p)?;

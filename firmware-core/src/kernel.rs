@@ -78,11 +78,18 @@ pub(crate) fn all_finite<T: Scalar>(values: &[T]) -> bool {
 }
 
 /// `true` when every entry on and above the diagonal is finite (the lower
-/// triangle of a mirrored matrix holds the same values). On a host, four
-/// partial sums keep the adds from waiting on each other.
-#[allow(clippy::eq_op)]
+/// triangle of a mirrored matrix holds the same values).
 #[inline(always)]
 pub(crate) fn upper_finite<T: Scalar, const N: usize>(m: &SMatrix<T, N, N>) -> bool {
+    upper_finite_sum(m) == T::zero()
+}
+
+/// The finiteness sum ([`finite_sum`]) of the entries on and above the
+/// diagonal. On a host, four partial sums keep the adds from waiting on
+/// each other.
+#[allow(clippy::eq_op)]
+#[inline(always)]
+pub(crate) fn upper_finite_sum<T: Scalar, const N: usize>(m: &SMatrix<T, N, N>) -> T {
     let values = m.as_slice();
     let (mut a0, mut a1, mut a2, mut a3): (T, T, T, T) =
         (neg_zero(), neg_zero(), neg_zero(), neg_zero());
@@ -105,7 +112,7 @@ pub(crate) fn upper_finite<T: Scalar, const N: usize>(m: &SMatrix<T, N, N>) -> b
             }
         }
     }
-    a0 + a1 + a2 + a3 == T::zero()
+    a0 + a1 + a2 + a3
 }
 
 /// Copies the upper triangle onto the lower one.
