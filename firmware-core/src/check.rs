@@ -261,43 +261,36 @@ pub(crate) fn covariance<T: Scalar, const N: usize>(
     Ok(())
 }
 
-/// An extended predict's result, with the model evaluation's own tests
-/// folded in: `pending` is the finiteness sum of the propagated state plus
-/// the [`variance_sum`] of its noise sources (when it has them), and the
-/// predicted covariance's upper triangle must be finite with a positive
-/// diagonal, all tested together after the arithmetic.
+/// Whether an extended predict's result may be committed, with the model
+/// evaluation's own tests folded in: `pending` is the finiteness sum of the
+/// propagated state plus the [`variance_sum`] of its noise sources (when it
+/// has them), and the predicted covariance's upper triangle must be finite
+/// with a positive diagonal, all tested together after the arithmetic.
 ///
 /// The free entries of F and G need no test of their own: a NaN or
 /// infinity in one of them makes a diagonal entry of F P F' + G diag(q) G'
 /// NaN or infinite (every term of P'[i,i] involves row i of F, and of G;
 /// infinity times zero is NaN, and no sum makes NaN or infinity finite
-/// again: IEEE 754-2019, section 7.2). Only on the error path is the model
-/// evaluated again, at the same point, to name what failed in the order
-/// the tests run: F, the state, G, the variances, then the covariance.
+/// again: IEEE 754-2019, section 7.2). When it fails, [`predict_refusal`]
+/// names what failed. The caller returns that error at once (`return
+/// Err(..)`, not `?` on a `Result`): the compiler cannot tell that the
+/// cold call's error is never `Ok`, and with `?` it keeps a path that goes
+/// on after the call, committing the result.
 #[inline(always)]
-pub(crate) fn predicted<T: Scalar, const N: usize, P: ProcessModel<T, N>>(
-    model: &P,
-    prior: &SVector<T, N>,
-    u: &P::Input,
-    dt: T,
-    pending: T,
-    p: &SMatrix<T, N, N>,
-) -> Result<(), FilterError> {
+pub(crate) fn predicted_sound<T: Scalar, const N: usize>(pending: T, p: &SMatrix<T, N, N>) -> bool {
     let mut positive = true;
     for i in 0..N {
         positive &= p[(i, i)] > T::zero();
     }
-    if positive && pending + crate::kernel::upper_finite_sum(p) == T::zero() {
-        Ok(())
-    } else {
-        Err(predict_refusal(model, prior, u, dt, *p))
-    }
+    positive && pending + crate::kernel::upper_finite_sum(p) == T::zero()
 }
 
-/// Why [`predicted`] failed (see there).
+/// Why an extended predict's result failed [`predicted_sound`]: the model
+/// is evaluated again, at the same point, to name what failed in the order
+/// the tests run: F, the state, G, the variances, then the covariance.
 #[cold]
 #[inline(never)]
-fn predict_refusal<T: Scalar, const N: usize, P: ProcessModel<T, N>>(
+pub(crate) fn predict_refusal<T: Scalar, const N: usize, P: ProcessModel<T, N>>(
     model: &P,
     prior: &SVector<T, N>,
     u: &P::Input,

@@ -212,7 +212,7 @@ impl<T: Scalar, const N: usize, F: CovarianceForm> Kalman<T, N, F> {
         let x_sum = finite_sum(next.as_slice());
         // Noise given as independent sources makes its own Q, symmetric and
         // semidefinite by construction once its variances pass: they are
-        // tested with the result (`check::predicted`). A Q given whole is
+        // tested with the result (`check::predicted_sound`). A Q given whole is
         // tested first, after F and the state it would otherwise be named
         // after.
         let (q, pending) = match sources {
@@ -241,7 +241,9 @@ impl<T: Scalar, const N: usize, F: CovarianceForm> Kalman<T, N, F> {
         } else {
             patterned::propagate(&jacobian, f_pattern, &self.p, &q)
         };
-        check::predicted(model, &self.x, u, dt, pending, &p)?;
+        if !check::predicted_sound(pending, &p) {
+            return Err(check::predict_refusal(model, &self.x, u, dt, p));
+        }
         // Finite, so its normalisation is too.
         model.normalize(&mut next);
         self.store_checked(&next, &p)

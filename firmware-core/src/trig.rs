@@ -27,7 +27,7 @@ pub fn sin_cos_f32(x: f32) -> (f32, f32) {
     // One comparison: NaN fails it too.
     #[allow(clippy::neg_cmp_op_on_partial_ord)]
     if !(ax < REDUCTION_LIMIT) {
-        return (libm::sinf(x), libm::cosf(x));
+        return sin_cos_far(x);
     }
     // Octant j = floor(|x| 4/pi) rounded up to even, as j = 2k with
     // k = floor(|x| 2/pi + 1/2): one conversion each way and no integer
@@ -51,6 +51,14 @@ pub fn sin_cos_f32(x: f32) -> (f32, f32) {
         sin_abs
     };
     (sin, cos)
+}
+
+/// Arguments beyond the Cody-Waite range (and NaN, infinities): libm's
+/// Payne-Hanek reduction, out of line and cold.
+#[cold]
+#[inline(never)]
+fn sin_cos_far(x: f32) -> (f32, f32) {
+    (libm::sinf(x), libm::cosf(x))
 }
 
 #[cfg(test)]
