@@ -261,11 +261,10 @@ pub(crate) fn covariance<T: Scalar, const N: usize>(
     Ok(())
 }
 
-/// Whether an extended predict's result may be committed, with the model
-/// evaluation's own tests folded in: `pending` is the finiteness sum of the
-/// propagated state plus the [`variance_sum`] of its noise sources (when it
-/// has them), and the predicted covariance's upper triangle must be finite
-/// with a positive diagonal, all tested together after the arithmetic.
+/// Whether an extended predict's covariance may be committed: its upper
+/// triangle finite with a positive diagonal, tested in one pass after the
+/// arithmetic (the propagated state and the noise variances were tested
+/// before it).
 ///
 /// The free entries of F and G need no test of their own: a NaN or
 /// infinity in one of them makes a diagonal entry of F P F' + G diag(q) G'
@@ -277,17 +276,19 @@ pub(crate) fn covariance<T: Scalar, const N: usize>(
 /// cold call's error is never `Ok`, and with `?` it keeps a path that goes
 /// on after the call, committing the result.
 #[inline(always)]
-pub(crate) fn predicted_sound<T: Scalar, const N: usize>(pending: T, p: &SMatrix<T, N, N>) -> bool {
+pub(crate) fn predicted_sound<T: Scalar, const N: usize>(p: &SMatrix<T, N, N>) -> bool {
     let mut positive = true;
     for i in 0..N {
         positive &= p[(i, i)] > T::zero();
     }
-    positive && pending + crate::kernel::upper_finite_sum(p) == T::zero()
+    positive && crate::kernel::upper_finite(p)
 }
 
-/// Why an extended predict's result failed [`predicted_sound`]: the model
-/// is evaluated again, at the same point, to name what failed in the order
-/// the tests run: F, the state, G, the variances, then the covariance.
+/// Why an extended predict failed its tests (the state and variances before
+/// the products, then [`predicted_sound`]): the model is evaluated again,
+/// at the same point, to name what failed, in a fixed order: F, the state,
+/// G, the variances, then the covariance `p` (the predicted one; a refusal
+/// before the products passes the prior, which is then never named).
 #[cold]
 #[inline(never)]
 pub(crate) fn predict_refusal<T: Scalar, const N: usize, P: ProcessModel<T, N>>(

@@ -246,6 +246,14 @@ impl<const R: usize, const C: usize> Pattern<R, C> {
         self.dense
     }
 
+    /// `true` when the kernels scan this pattern's rows entry by entry (at
+    /// most [`SCAN_LIMIT`] columns: the entries fold into straight-line
+    /// code; see `each_in_row`).
+    #[must_use]
+    pub(crate) const fn is_scanned(&self) -> bool {
+        C <= SCAN_LIMIT
+    }
+
     /// `true` when every entry off the diagonal is a structural zero: a
     /// noise covariance of independent components.
     #[must_use]

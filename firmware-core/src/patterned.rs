@@ -28,6 +28,17 @@ fn column_of<T: Scalar, const R: usize, const C: usize>(
     m.data.0.get(j)
 }
 
+/// Row k of a symmetric P read from its upper triangle only: P[k,e] for
+/// e >= k and P[e,k] (the same value in a mirrored P) before it. A kernel
+/// that reads each pair once holds fewer values at a time: on a
+/// Cortex-M4F the 3-state pose predict then fits the FPU's caller-saved
+/// registers (the lower triangle of the stored P is an exact mirror, see
+/// [`crate::Kalman`]).
+#[inline(always)]
+fn upper_row<T: Scalar, const N: usize>(p: &SMatrix<T, N, N>, k: usize) -> [T; N] {
+    core::array::from_fn(|e| if e >= k { p[(k, e)] } else { p[(e, k)] })
+}
+
 /// `acc += column * entry` (or `-=` with `SUBTRACT`), entry by entry, with
 /// a structural one's product taken as the column itself; `entry` is read
 /// only when it is free.
@@ -121,9 +132,13 @@ pub(crate) fn propagate<T: Scalar, const N: usize>(
             i,
             #[inline(always)]
             |k, one| {
-                // P[k,:] is P's column k (P is symmetric).
-                let pk = column_of(p, k);
-                update_column::<T, N, false>(&mut row, pk, one, || f[(i, k)]);
+                if pattern.is_scanned() {
+                    let pk = upper_row(p, k);
+                    update_column::<T, N, false>(&mut row, Some(&pk), one, || f[(i, k)]);
+                } else {
+                    // P[k,:] is P's column k (P is symmetric).
+                    update_column::<T, N, false>(&mut row, column_of(p, k), one, || f[(i, k)]);
+                }
             },
         );
         for (e, &v) in row.iter().enumerate() {
