@@ -237,18 +237,21 @@ impl System<STATES> for MisdeclaredTug {
     }
 }
 
-#[test]
-fn a_pattern_the_jacobian_breaks_fails_the_check_naming_the_entry() {
-    let report = scenario(MisdeclaredTug)
-        .horizon_s(30.0)
-        .check()
-        .expect("runs");
+/// Checks `scenario` over 30 s, which must fail (exit 1), and returns why
+/// its f32 Joseph variant failed.
+fn failing_f32_joseph<S: System<STATES>>(scenario: Scenario<'static, STATES, S>) -> String {
+    let report = scenario.horizon_s(30.0).check().expect("runs");
     assert!(!report.passes());
     assert_eq!(report.exit_code(), 1);
-    let why = report
+    report
         .variant("f32 joseph")
         .and_then(|v| v.why.clone())
-        .unwrap_or_default();
+        .unwrap_or_default()
+}
+
+#[test]
+fn a_pattern_the_jacobian_breaks_fails_the_check_naming_the_entry() {
+    let why = failing_f32_joseph(scenario(MisdeclaredTug));
     assert!(
         why.contains("F entry (") && why.contains("structurally zero"),
         "{why}"
@@ -288,17 +291,7 @@ impl Sensor<STATES, 2> for MisdeclaredRadio {
 
 #[test]
 fn a_noise_pattern_the_fix_breaks_fails_the_check_naming_the_entry() {
-    let report = scenario(Tug)
-        .channel("misdeclared radio", MisdeclaredRadio, 1.0)
-        .horizon_s(30.0)
-        .check()
-        .expect("runs");
-    assert!(!report.passes());
-    assert_eq!(report.exit_code(), 1);
-    let why = report
-        .variant("f32 joseph")
-        .and_then(|v| v.why.clone())
-        .unwrap_or_default();
+    let why = failing_f32_joseph(scenario(Tug).channel("misdeclared radio", MisdeclaredRadio, 1.0));
     assert!(
         why.contains("`misdeclared radio` measurement's R entry (0, 0)")
             && why.contains("structurally one"),
