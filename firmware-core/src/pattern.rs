@@ -333,7 +333,7 @@ impl<const R: usize, const C: usize> Pattern<R, C> {
     /// kernels free of panic paths.
     #[inline(always)]
     pub(crate) fn each_in_row(&self, row: usize, mut visit: impl FnMut(usize, bool)) {
-        if C <= SCAN_LIMIT {
+        if self.is_scanned() {
             for col in 0..C {
                 match self.cells[row][col] {
                     Entry::Zero => {}

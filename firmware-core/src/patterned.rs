@@ -30,9 +30,10 @@ fn column_of<T: Scalar, const R: usize, const C: usize>(
 
 /// Row k of a symmetric P read from its upper triangle only: P[k,e] for
 /// e >= k and P[e,k] (the same value in a mirrored P) before it. A kernel
-/// that reads each pair once holds fewer values at a time: on a
-/// Cortex-M4F the 3-state pose predict then fits the FPU's caller-saved
-/// registers (the lower triangle of the stored P is an exact mirror, see
+/// that reads each pair once loads and holds fewer values (the 3-state pose
+/// predict loads 6 entries of P instead of 8; on a Cortex-M4F, with the
+/// early state test, it keeps 4 fewer values in callee-saved FPU
+/// registers). The lower triangle of the stored P is an exact mirror (see
 /// [`crate::Kalman`]).
 #[inline(always)]
 fn upper_row<T: Scalar, const N: usize>(p: &SMatrix<T, N, N>, k: usize) -> [T; N] {
