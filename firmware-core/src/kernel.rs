@@ -219,7 +219,8 @@ pub(crate) fn propagate_dots<T: Scalar, const N: usize>(
 }
 
 /// Q = G diag(q) G' from independent noise sources: entry (i, j) is
-/// `sum_k (G[i,k] G[j,k]) q[k]` (k ascending from zero), exactly symmetric,
+/// `sum_k (G[i,k] q[k]) G[j,k]` (k ascending from zero; G[i,k] q[k] is
+/// shared by a row's entries, so a fixed-size build multiplies it once), exactly symmetric,
 /// and positive semidefinite by construction when every `q[k] >= 0`, which
 /// is all a caller has to check.
 #[inline(always)]
@@ -232,7 +233,7 @@ pub fn from_sources<T: Scalar, const N: usize>(
         for i in 0..j + 1 {
             let mut v = neg_zero::<T>();
             for k in 0..N {
-                v += g[(i, k)] * g[(j, k)] * q[k];
+                v += g[(i, k)] * q[k] * g[(j, k)];
             }
             out[(i, j)] = v;
             out[(j, i)] = v;

@@ -170,7 +170,7 @@ pub(crate) fn propagate<T: Scalar, const N: usize>(
 
 /// Q = G diag(q) G' for a G whose transposed structure is `columns` (row k
 /// of `columns` lists the states noise source k drives): entry (i, j) is
-/// `sum_k (G[i,k] G[j,k]) q[k]` over the sources that drive both i and j,
+/// `sum_k (G[i,k] q[k]) G[j,k]` over the sources that drive both i and j,
 /// k ascending, from -0; exactly symmetric.
 #[inline(always)]
 pub(crate) fn from_sources<T: Scalar, const N: usize>(
@@ -191,13 +191,13 @@ pub(crate) fn from_sources<T: Scalar, const N: usize>(
                     #[inline(always)]
                     |i, one_i| {
                         if i <= j {
-                            // (G[i,k] G[j,k]) q[k], with a one's product taken as
+                            // (G[i,k] q[k]) G[j,k], with a one's product taken as
                             // the other factor.
                             out[(i, j)] += match (one_i, one_j) {
                                 (true, true) => qk,
                                 (true, false) => g[(j, k)] * qk,
                                 (false, true) => g[(i, k)] * qk,
-                                (false, false) => g[(i, k)] * g[(j, k)] * qk,
+                                (false, false) => g[(i, k)] * qk * g[(j, k)],
                             };
                         }
                     },
