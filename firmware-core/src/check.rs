@@ -266,11 +266,10 @@ pub(crate) fn covariance<T: Scalar, const N: usize>(
 /// arithmetic (the propagated state and the noise variances were tested
 /// before it).
 ///
-/// Finiteness is tested on the plain sum of the upper triangle (s - s is
-/// zero only for a finite s), one add per entry instead of the two of
-/// `v - v` summed: 8 Cortex-M4F cycles off the pose predict. Its price: a
-/// covariance whose entries are all finite but sum past the largest finite
-/// value is refused as lost, which needs variances within a factor
+/// Finiteness is tested by [`plain_finite_sum`] of the upper triangle (with
+/// the state's: 8 Cortex-M4F cycles off the pose predict). A covariance
+/// whose entries are all finite but sum past the largest finite value is
+/// therefore refused as lost, which needs variances within a factor
 /// N (N + 1) / 2 of overflow (about 6e37 in f32 at N = 3), where a filter
 /// has no arithmetic left anyway.
 ///
@@ -283,6 +282,10 @@ pub(crate) fn covariance<T: Scalar, const N: usize>(
 /// Err(..)`, not `?` on a `Result`): the compiler cannot tell that the
 /// cold call's error is never `Ok`, and with `?` it keeps a path that goes
 /// on after the call, committing the result.
+///
+/// The sum is written out rather than passed to [`plain_finite_sum`] as an
+/// iterator: a flattened iterator kept bounds checks, a panic path the
+/// on-target link proof refuses.
 #[inline(always)]
 #[allow(clippy::eq_op)]
 pub(crate) fn predicted_sound<T: Scalar, const N: usize>(p: &SMatrix<T, N, N>) -> bool {

@@ -8,7 +8,9 @@ use nalgebra::{SMatrix, SVector};
 use crate::check;
 use crate::error::{FilterError, Operand, Outcome, idx};
 use crate::form::{CovarianceForm, Joseph};
-use crate::kernel::{finite_sum, from_sources, innovation, mirror_upper, propagate};
+use crate::kernel::{
+    finite_sum, from_sources, innovation, mirror_upper, plain_finite_sum, propagate,
+};
 use crate::ldl::Ldl;
 use crate::model::{Linearized, MeasurementModel, ProcessModel};
 use crate::pattern::Pattern;
@@ -209,14 +211,7 @@ impl<T: Scalar, const N: usize, F: CovarianceForm> Kalman<T, N, F> {
         // takes the dense kernels.
         let f_pattern = const { &P::JACOBIAN_PATTERN };
         let g_columns = const { &P::SOURCES_PATTERN.transpose() };
-        // The state's plain sum, tested as s - s: one add per state (a
-        // state summing past the largest finite value is refused with it,
-        // as in `check::predicted_sound`).
-        let x_total = next
-            .iter()
-            .fold(crate::kernel::neg_zero::<T>(), |a, &v| a + v);
-        #[allow(clippy::eq_op)]
-        let x_sum = x_total - x_total;
+        let x_sum = plain_finite_sum(next.iter().copied());
         // Noise given as independent sources makes its own Q, symmetric and
         // semidefinite by construction once its variances pass. The
         // propagated state and the variances are tested in one sum before

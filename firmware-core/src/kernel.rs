@@ -43,6 +43,19 @@ pub(crate) fn neg_zero<T: Scalar>() -> T {
 /// the order (finiteness tests).
 const LANES: usize = if VECTOR { 4 } else { 1 };
 
+/// A cheaper finiteness sum of `values`: their plain sum s, returned as
+/// s - s (zero exactly when s is finite), one add per value instead of the
+/// two of [`finite_sum`]. Its price: finite values whose sum passes the
+/// largest finite value give NaN too, so the values it tests must lie far
+/// from overflow (a state, a covariance). The extended predict's tests.
+// `s - s` is the point: it is not zero for NaN or infinity.
+#[allow(clippy::eq_op)]
+#[inline(always)]
+pub(crate) fn plain_finite_sum<T: Scalar>(values: impl Iterator<Item = T>) -> T {
+    let total = values.fold(neg_zero::<T>(), |a, v| a + v);
+    total - total
+}
+
 /// The finiteness sum of `values`: v - v is +0 for a finite v and NaN for
 /// NaN or infinity, and NaN survives any sum of them, so the sum is zero
 /// exactly when every value is finite, whatever its order. Pure FP adds with
@@ -220,8 +233,8 @@ pub(crate) fn propagate_dots<T: Scalar, const N: usize>(
 
 /// Q = G diag(q) G' from independent noise sources: entry (i, j) is
 /// `sum_k (G[i,k] q[k]) G[j,k]` (k ascending from zero; `G[i,k] q[k]` is
-/// shared by a row's entries, so a fixed-size build multiplies it once), exactly symmetric,
-/// and positive semidefinite by construction when every `q[k] >= 0`, which
+/// shared by a row's entries, so a fixed-size build multiplies it once),
+/// exactly symmetric, and positive semidefinite by construction when every `q[k] >= 0`, which
 /// is all a caller has to check.
 #[inline(always)]
 pub fn from_sources<T: Scalar, const N: usize>(
