@@ -516,3 +516,57 @@ fn a_non_finite_jacobian_or_source_entry_is_named_not_reported_as_a_lost_covaria
         .unwrap();
     assert!(kf.covariance()[(0, 0)] > 0.5);
 }
+
+/// An extended predict whose covariance overflows is refused, naming the
+/// first lost variance: the refusal forms the predicted covariance again
+/// from the prior (IEEE 754-2019, section 7.4: an overflowing sum or
+/// product rounds to infinity). Row 1 when y's variance overflows; row 2,
+/// a row of F that carries the heading over unchanged (its positivity
+/// follows from the prior's, its finiteness is still tested), when the
+/// heading's does.
+#[test]
+fn an_overflowing_extended_predict_names_the_lost_variance() {
+    // Heading 0 and no turn: sin 0 = 0, so F = I + d e1 e2' with d = v dt.
+    let p = Matrix3::from_diagonal(&Vector3::new(1.0, 1.0, 1e37_f32));
+    let quiet = PlanarOdometry {
+        speed_var: 0.0,
+        yaw_rate_var: 0.0,
+        heading_drift_var: 0.0,
+    };
+    let cases = [
+        // P'[1,1] = 1 + d (d P[2,2]) = 1e39 with d = 10.
+        (
+            quiet,
+            Odometry {
+                speed: 1000.0,
+                yaw_rate: 0.0,
+            },
+            1,
+        ),
+        // P'[2,2] = P[2,2] + f32::MAX rounds to infinity.
+        (
+            PlanarOdometry {
+                heading_drift_var: f32::MAX,
+                ..quiet
+            },
+            Odometry {
+                speed: 0.0,
+                yaw_rate: 0.0,
+            },
+            2,
+        ),
+    ];
+    for (motion, u, index) in cases {
+        let mut kf = Kalman::<f32, 3>::try_new(Vector3::zeros(), p).unwrap();
+        let before = snapshot(&kf);
+        assert_eq!(
+            kf.predict_with(&motion, &u, 0.01),
+            Err(FilterError::CovarianceLost { index })
+        );
+        assert_eq!(
+            snapshot(&kf),
+            before,
+            "a refused predict changed the filter"
+        );
+    }
+}

@@ -8,7 +8,7 @@ use crate::kernel::{finite_sum, neg_zero};
 use crate::ldl::{Ldl, failing_pivot};
 use crate::model::{Linearized, ProcessModel};
 use crate::pattern::Pattern;
-use crate::patterned::free_sum;
+use crate::patterned::{free_sum, from_sources_as_declared, propagate_as_declared};
 use crate::scalar::Scalar;
 
 pub(crate) use crate::kernel::all_finite;
@@ -288,37 +288,42 @@ pub(crate) fn covariance<T: Scalar, const N: usize>(
 /// on-target link proof refuses.
 #[inline(always)]
 #[allow(clippy::eq_op)]
-pub(crate) fn predicted_sound<T: Scalar, const N: usize>(p: &SMatrix<T, N, N>) -> bool {
+pub(crate) fn predicted_sound<T: Scalar, const N: usize>(
+    p: &SMatrix<T, N, N>,
+    carried: &[bool; N],
+) -> bool {
     let mut positive = true;
     let mut total = neg_zero::<T>();
     for j in 0..N {
-        positive &= p[(j, j)] > T::zero();
+        positive &= carried[j] || p[(j, j)] > T::zero();
         for i in 0..j + 1 {
             total += p[(i, j)];
         }
     }
-    positive && total - total == T::zero()
+    (total - total == T::zero()) & positive
 }
 
 /// Why an extended predict failed its tests (the state and variances before
 /// the products, then [`predicted_sound`]): the model is evaluated again,
 /// at the same point, to name what failed, in a fixed order: F, the state,
-/// G, the variances, then the covariance `p` (the predicted one; a refusal
-/// before the products passes the prior, which is then never named).
+/// G, the variances, then the predicted covariance, formed again from the
+/// prior `p` by the same kernels (the same bits). Recomputing here keeps the
+/// predicted covariance out of memory on the predict's own path: on a
+/// Cortex-M4F the pose predict then needs no stack frame.
 #[cold]
 #[inline(never)]
 pub(crate) fn predict_refusal<T: Scalar, const N: usize, P: ProcessModel<T, N>>(
     model: &P,
     prior: &SVector<T, N>,
+    p: &SMatrix<T, N, N>,
     u: &P::Input,
     dt: T,
-    p: SMatrix<T, N, N>,
 ) -> FilterError {
     let Linearized {
         next,
         jacobian,
+        noise,
         sources,
-        ..
     } = model.linearize(prior, u, dt);
     let f = free_sum(&jacobian, &P::JACOBIAN_PATTERN);
     let x = finite_sum(next.as_slice());
@@ -332,13 +337,18 @@ pub(crate) fn predict_refusal<T: Scalar, const N: usize, P: ProcessModel<T, N>>(
             (g, Operand::ProcessNoise),
         ]);
     }
-    if let Some((_, q)) = sources
-        && variance_sum(&q) != T::zero()
-    {
-        return bad_variances(q);
-    }
+    let q = match sources {
+        Some((g, q)) => {
+            if variance_sum(&q) != T::zero() {
+                return bad_variances(q);
+            }
+            from_sources_as_declared(&g, &P::SOURCES_PATTERN.transpose(), &q)
+        }
+        None => noise,
+    };
+    let predicted = propagate_as_declared(&jacobian, &P::JACOBIAN_PATTERN, p, &q);
     FilterError::CovarianceLost {
-        index: idx(first_lost(p)),
+        index: idx(first_lost(predicted)),
     }
 }
 
@@ -461,17 +471,32 @@ mod tests {
     #[test]
     fn predicted_sound_refuses_any_non_finite_upper_entry() {
         let base = Matrix3::<f32>::new(4.0, 0.5, -0.25, 0.5, 3.0, 0.125, -0.25, 0.125, 2.0);
-        assert!(predicted_sound(&base));
+        assert!(predicted_sound(&base, &[false; 3]));
         for (i, j) in [(0, 0), (0, 1), (0, 2), (1, 1), (1, 2), (2, 2)] {
             for bad in [f32::NAN, f32::INFINITY, f32::NEG_INFINITY] {
                 let mut p = base;
                 p[(i, j)] = bad;
-                assert!(!predicted_sound(&p), "({i}, {j}) = {bad} passed");
+                assert!(
+                    !predicted_sound(&p, &[false; 3]),
+                    "({i}, {j}) = {bad} passed"
+                );
             }
         }
         let mut p = base;
         p[(1, 1)] = 0.0;
-        assert!(!predicted_sound(&p), "a zero variance passed");
+        assert!(!predicted_sound(&p, &[false; 3]), "a zero variance passed");
+    }
+
+    // A carried row (a unit row of F) has its positivity from the prior's
+    // and is not tested; its finiteness still is.
+    #[test]
+    fn predicted_sound_skips_only_the_positivity_of_carried_rows() {
+        let mut p = Matrix3::<f32>::new(4.0, 0.5, -0.25, 0.5, 3.0, 0.125, -0.25, 0.125, 0.0);
+        assert!(!predicted_sound(&p, &[false; 3]));
+        assert!(predicted_sound(&p, &[false, false, true]));
+        assert!(!predicted_sound(&p, &[true, true, false]));
+        p[(2, 2)] = f32::INFINITY;
+        assert!(!predicted_sound(&p, &[true; 3]));
     }
 
     // The documented price of the plain sum: finite entries whose sum
@@ -480,8 +505,14 @@ mod tests {
     fn predicted_sound_refuses_an_overflowing_sum_only() {
         let big = f32::MAX / 4.0;
         let near = Matrix3::<f32>::from_diagonal_element(big);
-        assert!(predicted_sound(&near), "3 x MAX/4 on the diagonal refused");
+        assert!(
+            predicted_sound(&near, &[false; 3]),
+            "3 x MAX/4 on the diagonal refused"
+        );
         let over = Matrix3::<f32>::new(big, big, 0.0, big, big, big, 0.0, big, big);
-        assert!(!predicted_sound(&over), "a sum of 5 x MAX/4 passed");
+        assert!(
+            !predicted_sound(&over, &[false; 3]),
+            "a sum of 5 x MAX/4 passed"
+        );
     }
 }

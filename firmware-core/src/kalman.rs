@@ -8,9 +8,7 @@ use nalgebra::{SMatrix, SVector};
 use crate::check;
 use crate::error::{FilterError, Operand, Outcome, idx};
 use crate::form::{CovarianceForm, Joseph};
-use crate::kernel::{
-    finite_sum, from_sources, innovation, mirror_upper, plain_finite_sum, propagate,
-};
+use crate::kernel::{finite_sum, innovation, mirror_upper, plain_finite_sum, propagate};
 use crate::ldl::Ldl;
 use crate::model::{Linearized, MeasurementModel, ProcessModel};
 use crate::pattern::Pattern;
@@ -223,13 +221,9 @@ impl<T: Scalar, const N: usize, F: CovarianceForm> Kalman<T, N, F> {
         let q = match sources {
             Some((g, q)) => {
                 if x_sum + check::variance_sum(&q) != T::zero() {
-                    return Err(check::predict_refusal(model, &self.x, u, dt, self.p));
+                    return Err(check::predict_refusal(model, &self.x, &self.p, u, dt));
                 }
-                if g_columns.is_dense() {
-                    from_sources(&g, &q)
-                } else {
-                    patterned::from_sources(&g, g_columns, &q)
-                }
+                patterned::from_sources_as_declared(&g, g_columns, &q)
             }
             None => {
                 check::finite_all([
@@ -243,13 +237,9 @@ impl<T: Scalar, const N: usize, F: CovarianceForm> Kalman<T, N, F> {
                 noise
             }
         };
-        let p = if f_pattern.is_dense() {
-            propagate(&jacobian, &self.p, &q)
-        } else {
-            patterned::propagate(&jacobian, f_pattern, &self.p, &q)
-        };
-        if !check::predicted_sound(&p) {
-            return Err(check::predict_refusal(model, &self.x, u, dt, p));
+        let p = patterned::propagate_as_declared(&jacobian, f_pattern, &self.p, &q);
+        if !check::predicted_sound(&p, const { &P::JACOBIAN_PATTERN.unit_rows() }) {
+            return Err(check::predict_refusal(model, &self.x, &self.p, u, dt));
         }
         // Finite, so its normalisation is too.
         model.normalize(&mut next);

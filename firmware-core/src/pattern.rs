@@ -272,6 +272,31 @@ impl<const R: usize, const C: usize> Pattern<R, C> {
         true
     }
 
+    /// For each row, `true` when it is a unit row: a structural one on the
+    /// diagonal and structural zeros elsewhere (a state the transition
+    /// carries over unchanged). Such a row of F makes (F P F')[i,i] P[i,i]
+    /// exactly in the patterned kernels.
+    #[must_use]
+    pub const fn unit_rows(&self) -> [bool; R] {
+        let mut out = [false; R];
+        let mut i = 0;
+        while i < R {
+            let mut unit = i < C;
+            let mut j = 0;
+            while j < C {
+                unit &= match self.cells[i][j] {
+                    Entry::One => i == j,
+                    Entry::Zero => i != j,
+                    Entry::Free => false,
+                };
+                j += 1;
+            }
+            out[i] = unit;
+            i += 1;
+        }
+        out
+    }
+
     /// `m` with the pattern's structural entries in place: zeros and ones
     /// where the pattern declares them, `m`'s own entries where it leaves
     /// them free. The matrix the kernels work with (they never read a
@@ -384,6 +409,20 @@ mod tests {
         assert_eq!(t.row(0), [(0, true)]);
         assert!(P.column_used(3) && !Pattern::<2, 2>::IDENTITY.zero(1, 1).column_used(1));
         assert_eq!(Pattern::<2, 3>::IDENTITY.nonzero(), 2);
+    }
+
+    #[test]
+    fn unit_rows_are_exactly_the_rows_carried_over() {
+        // The pose model's F: the identity plus the heading's effect on x, y.
+        const F: Pattern<3, 3> = Pattern::IDENTITY.free(0, 2).free(1, 2);
+        assert_eq!(F.unit_rows(), [false, false, true]);
+        assert_eq!(Pattern::<3, 3>::IDENTITY.unit_rows(), [true; 3]);
+        assert_eq!(Pattern::<3, 3>::DENSE.unit_rows(), [false; 3]);
+        // A free diagonal, a one off the diagonal, a zero row: not carried.
+        const G: Pattern<3, 3> = Pattern::IDENTITY.free(0, 0).zero(1, 1).one(1, 0).zero(2, 2);
+        assert_eq!(G.unit_rows(), [false; 3]);
+        // A row below the square part has no diagonal entry.
+        assert_eq!(Pattern::<3, 2>::IDENTITY.unit_rows(), [true, true, false]);
     }
 
     #[test]

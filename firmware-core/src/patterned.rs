@@ -11,7 +11,7 @@
 
 use nalgebra::{SMatrix, SVector};
 
-use crate::kernel::neg_zero;
+use crate::kernel::{self, neg_zero};
 use crate::pattern::{Entry, Pattern};
 use crate::scalar::Scalar;
 
@@ -166,6 +166,38 @@ pub(crate) fn propagate<T: Scalar, const N: usize>(
         }
     }
     out
+}
+
+/// P' = F P F' + Q by F's declared structure: the dense kernel
+/// ([`kernel::propagate`]) for a dense pattern, [`propagate`] otherwise. The
+/// one choice the extended predict and its refusal both make.
+#[inline(always)]
+pub(crate) fn propagate_as_declared<T: Scalar, const N: usize>(
+    f: &SMatrix<T, N, N>,
+    pattern: &Pattern<N, N>,
+    p: &SMatrix<T, N, N>,
+    q: &SMatrix<T, N, N>,
+) -> SMatrix<T, N, N> {
+    if pattern.is_dense() {
+        kernel::propagate(f, p, q)
+    } else {
+        propagate(f, pattern, p, q)
+    }
+}
+
+/// Q = G diag(q) G' by G's declared structure (`columns`, transposed):
+/// [`kernel::from_sources`] for a dense pattern, [`from_sources`] otherwise.
+#[inline(always)]
+pub(crate) fn from_sources_as_declared<T: Scalar, const N: usize>(
+    g: &SMatrix<T, N, N>,
+    columns: &Pattern<N, N>,
+    q: &SVector<T, N>,
+) -> SMatrix<T, N, N> {
+    if columns.is_dense() {
+        kernel::from_sources(g, q)
+    } else {
+        from_sources(g, columns, q)
+    }
 }
 
 /// Q = G diag(q) G' for a G whose transposed structure is `columns` (row k
