@@ -103,6 +103,8 @@ pub fn wrap_angle<T: Scalar>(angle: T) -> T {
     if a.abs() < pi {
         return a;
     }
+    // Rare: the common case above then falls through in the caller's code.
+    core::hint::cold_path();
     if a > pi || a <= -pi {
         if a.abs() < T::of(WRAP_DIRECT) {
             let turns = (a / two_pi).round();
