@@ -26,7 +26,7 @@
 //!   the same bits on host and target. Sine and cosine
 //!   ([`Scalar::sin_cos_rad`]) never come from the platform's maths library:
 //!   for `f32` they are the crate's own kernel, all f32 adds and multiplies
-//!   (hardware on a Cortex-M4F; arguments beyond 8192 rad go to libm's
+//!   (hardware on a Cortex-M4F; arguments beyond about 8043 rad go to libm's
 //!   `sinf`/`cosf`), unless a feature below picks another; for `f64` they are
 //!   libm's portable `sin`/`cos`.
 //!

@@ -9,16 +9,16 @@ const FOUR_OVER_PI: f32 = 1.273_239_5;
 const DP1: f32 = 0.785_156_25;
 const DP2: f32 = 2.418_756_5e-4;
 const DP3: f32 = 3.774_895e-8;
-/// Quarter turns the three-part reduction serves: at k = 5120 (|x| about
-/// 8042) and beyond, libm takes over. y DP1 2 stays exact up to k = 2^16
-/// (DP1 2 has 8 significant bits); the limit keeps the measured accuracy
-/// below 8192. An immediate a Thumb-2 compare encodes.
-const REDUCTION_LIMIT: u32 = 5120;
+/// The last quarter turn k the three-part reduction serves (|x| below about
+/// 8043); beyond it libm takes over. The accuracy was measured to 8192 and
+/// y DP1 2 stays exact up to k = 2^16 (DP1 2 has 8 significant bits). 5120
+/// is an immediate a Thumb-2 compare encodes, so the test is one compare.
+const LAST_QUARTER_TURN: u32 = 5120;
 
 /// Sine and cosine of `x` (radians), both from one range reduction, with
 /// minimax polynomials on [-pi/4, pi/4] (coefficients of Cephes `sinf` and
 /// `cosf`, Moshier 1989). Accurate to about 2 ulp near the origin and to
-/// 2^-23 absolute elsewhere for |x| below about 8042 (worst measured 7.7e-8
+/// 2^-23 absolute elsewhere for |x| below about 8043 (worst measured 7.7e-8
 /// against f64 in the tests); larger arguments go to libm (measured 3.0e-8
 /// up to 1e7). Only f32 adds and multiplies are
 /// used, so host and target compute identical bits.
@@ -35,7 +35,7 @@ pub fn sin_cos_f32(x: f32) -> (f32, f32) {
     // constant load, no FP status transfer). The conversion saturates:
     // infinity gives u32::MAX and goes to libm; NaN gives 0 and stays here,
     // where r, and so both results, are NaN.
-    if k >= REDUCTION_LIMIT {
+    if k > LAST_QUARTER_TURN {
         return sin_cos_far(x);
     }
     let y = k as f32;
@@ -94,6 +94,11 @@ mod tests {
         assert_eq!(sin_cos_f32(-0.0).0.to_bits(), (-0.0f32).to_bits());
         assert!(sin_cos_f32(f32::NAN).0.is_nan());
         assert_eq!(sin_cos_f32(1e5).0, libm::sinf(1e5));
+        // The hand-over: 8044 is quarter turn 5121, the first libm serves.
+        assert_eq!(
+            sin_cos_f32(8044.0),
+            (libm::sinf(8044.0), libm::cosf(8044.0))
+        );
     }
 
     /// Largest absolute error of sin and cos over `count` evenly spaced f32
@@ -116,9 +121,10 @@ mod tests {
     fn accurate_over_the_whole_range_it_serves() {
         // Reference: the platform's f64 sin/cos of the exactly widened f32
         // argument (far more accurate than an f32 ulp for these arguments).
-        // Within the Cody-Waite range (|x| < 8192) the worst absolute error
-        // measured here is 7.7e-8 (0.65 x 2^-23) anywhere, the top of the
-        // range included; beyond it libm's `sinf`/`cosf` take over
+        // Within the Cody-Waite range (|x| below about 8043) the worst
+        // absolute error measured here is 7.7e-8 (0.65 x 2^-23) anywhere, the
+        // top of the range included (the reduction was also measured inline
+        // to 8192); beyond it libm's `sinf`/`cosf` take over
         // (Payne-Hanek reduction), measured 2.99e-8, half an ulp near 1
         // (2^-25 = 2.98e-8) plus the reference's own rounding. The bounds
         // below are 2^-23 and 2^-24 (one ulp near 1).
