@@ -283,9 +283,20 @@ pub(crate) fn covariance<T: Scalar, const N: usize>(
 /// cold call's error is never `Ok`, and with `?` it keeps a path that goes
 /// on after the call, committing the result.
 ///
+/// A `carried` row (a unit row of F, [`Pattern::unit_rows`]) is not tested
+/// for positivity: the patterned kernels make its variance P[i,i] + Q[i,i]
+/// exactly, P[i,i] is positive (every stored covariance has a positive
+/// diagonal: tested on every commit, or vouched for through
+/// `Kalman::new_unchecked`), Q[i,i] is not negative once the variances
+/// pass, and a rounded sum is never below its larger addend. Its
+/// finiteness is tested with the rest.
+///
 /// The sum is written out rather than passed to [`plain_finite_sum`] as an
 /// iterator: a flattened iterator kept bounds checks, a panic path the
-/// on-target link proof refuses.
+/// on-target link proof refuses. The two tests are joined by `&`, not `&&`:
+/// with `&&` the compiler split them into branches placed between the
+/// products, which on a Cortex-M4F held two more values in callee-saved
+/// registers (260 against 252 cycles on the pose predict).
 #[inline(always)]
 #[allow(clippy::eq_op)]
 pub(crate) fn predicted_sound<T: Scalar, const N: usize>(

@@ -274,7 +274,7 @@ impl<const R: usize, const C: usize> Pattern<R, C> {
 
     /// For each row, `true` when it is a unit row: a structural one on the
     /// diagonal and structural zeros elsewhere (a state the transition
-    /// carries over unchanged). Such a row of F makes (F P F')[i,i] P[i,i]
+    /// carries over unchanged). Such a row of F makes `(F P F')[i,i]` `P[i,i]`
     /// exactly in the patterned kernels.
     #[must_use]
     pub const fn unit_rows(&self) -> [bool; R] {
