@@ -2,7 +2,7 @@
 //! heading fix from ceiling markers.
 
 use cairn_core::nalgebra::{SMatrix, SVector};
-use cairn_core::{MeasurementModel, Scalar, wrap_angle};
+use cairn_core::{MeasurementModel, Pattern, Scalar, wrap_angle};
 
 use crate::{HEADING, SPEED, STATES, X, Y};
 
@@ -23,6 +23,9 @@ impl<T: Scalar> WheelSpeed<T> {
 }
 
 impl<T: Scalar> MeasurementModel<T, STATES, 1> for WheelSpeed<T> {
+    /// H selects the speed.
+    const JACOBIAN_PATTERN: Pattern<1, STATES> = Pattern::ZERO.one(0, SPEED);
+
     #[inline(always)]
     fn expected(&self, x: &SVector<T, STATES>) -> SVector<T, 1> {
         SVector::<T, 1>::new(x[SPEED])
@@ -61,6 +64,11 @@ impl<T: Scalar> RadioFix<T> {
 }
 
 impl<T: Scalar> MeasurementModel<T, STATES, 2> for RadioFix<T> {
+    /// H selects x and y.
+    const JACOBIAN_PATTERN: Pattern<2, STATES> = Pattern::ZERO.one(0, X).one(1, Y);
+    /// Independent x and y errors.
+    const NOISE_PATTERN: Pattern<2, 2> = Pattern::ZERO.free(0, 0).free(1, 1);
+
     #[inline(always)]
     fn expected(&self, x: &SVector<T, STATES>) -> SVector<T, 2> {
         SVector::<T, 2>::new(x[X], x[Y])
@@ -101,6 +109,9 @@ impl<T: Scalar> HeadingFix<T> {
 }
 
 impl<T: Scalar> MeasurementModel<T, STATES, 1> for HeadingFix<T> {
+    /// H selects the heading.
+    const JACOBIAN_PATTERN: Pattern<1, STATES> = Pattern::ZERO.one(0, HEADING);
+
     #[inline(always)]
     fn expected(&self, x: &SVector<T, STATES>) -> SVector<T, 1> {
         SVector::<T, 1>::new(x[HEADING])

@@ -2,7 +2,7 @@
 //! forward accelerometer, with the gyro bias as a state.
 
 use cairn_core::nalgebra::{SMatrix, SVector};
-use cairn_core::{Linearized, ProcessModel, Scalar, wrap_angle};
+use cairn_core::{Linearized, Pattern, ProcessModel, Scalar, wrap_angle};
 
 use crate::{GYRO_BIAS, HEADING, SPEED, STATES, X, Y};
 
@@ -113,6 +113,22 @@ impl<T: Scalar> TugMotion<T> {
 
 impl<T: Scalar> ProcessModel<T, STATES> for TugMotion<T> {
     type Input = ImuSample<T>;
+
+    /// The identity plus the heading's and the speed's effect on x and y
+    /// and the bias's on the heading ([`TugMotion::jacobian_at`]).
+    const JACOBIAN_PATTERN: Pattern<STATES, STATES> = Pattern::IDENTITY
+        .free(X, HEADING)
+        .free(X, SPEED)
+        .free(Y, HEADING)
+        .free(Y, SPEED)
+        .free(HEADING, GYRO_BIAS);
+    /// The gyro reading drives the heading, the accelerometer reading the
+    /// speed, the bias step the bias with weight one
+    /// ([`TugMotion::sources_at`]).
+    const SOURCES_PATTERN: Pattern<STATES, STATES> = Pattern::ZERO
+        .free(HEADING, 0)
+        .free(SPEED, 1)
+        .one(GYRO_BIAS, 2);
 
     #[inline(always)]
     fn transition(&self, x: &SVector<T, STATES>, u: &ImuSample<T>, dt: T) -> SVector<T, STATES> {
