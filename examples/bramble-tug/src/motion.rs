@@ -115,7 +115,7 @@ impl<T: Scalar> ProcessModel<T, STATES> for TugMotion<T> {
     type Input = ImuSample<T>;
 
     /// The identity plus the heading's and the speed's effect on x and y
-    /// and the bias's on the heading ([`TugMotion::jacobian_at`]).
+    /// and the bias's on the heading (as `jacobian_at` forms it).
     const JACOBIAN_PATTERN: Pattern<STATES, STATES> = Pattern::IDENTITY
         .free(X, HEADING)
         .free(X, SPEED)
@@ -124,7 +124,7 @@ impl<T: Scalar> ProcessModel<T, STATES> for TugMotion<T> {
         .free(HEADING, GYRO_BIAS);
     /// The gyro reading drives the heading, the accelerometer reading the
     /// speed, the bias step the bias with weight one
-    /// ([`TugMotion::sources_at`]).
+    /// (as `sources_at` forms them).
     const SOURCES_PATTERN: Pattern<STATES, STATES> = Pattern::ZERO
         .free(HEADING, 0)
         .free(SPEED, 1)
