@@ -288,8 +288,10 @@ pub(crate) fn covariance<T: Scalar, const N: usize>(
 /// exactly, P[i,i] is positive (every stored covariance has a positive
 /// diagonal: tested on every commit, or vouched for through
 /// `Kalman::new_unchecked`), Q[i,i] is not negative once the variances
-/// pass, and a rounded sum is never below its larger addend. Its
-/// finiteness is tested with the rest.
+/// pass, and a rounded sum of a positive and a non-negative value is never
+/// below the positive one (IEEE 754-2019 section 4.3: every operation is
+/// correctly rounded, so rounding is monotone). Its finiteness is tested
+/// with the rest.
 ///
 /// The sum is written out rather than passed to [`plain_finite_sum`] as an
 /// iterator: a flattened iterator kept bounds checks, a panic path the
@@ -353,11 +355,11 @@ pub(crate) fn predict_refusal<T: Scalar, const N: usize, P: ProcessModel<T, N>>(
             if variance_sum(&q) != T::zero() {
                 return bad_variances(q);
             }
-            from_sources_as_declared(&g, &P::SOURCES_PATTERN.transpose(), &q)
+            from_sources_as_declared(&g, const { &P::SOURCES_PATTERN.transpose() }, &q)
         }
         None => noise,
     };
-    let predicted = propagate_as_declared(&jacobian, &P::JACOBIAN_PATTERN, p, &q);
+    let predicted = propagate_as_declared(&jacobian, const { &P::JACOBIAN_PATTERN }, p, &q);
     FilterError::CovarianceLost {
         index: idx(first_lost(predicted)),
     }

@@ -234,8 +234,8 @@ pub(crate) fn propagate_dots<T: Scalar, const N: usize>(
 /// Q = G diag(q) G' from independent noise sources: entry (i, j) is
 /// `sum_k (G[i,k] q[k]) G[j,k]` (k ascending from zero; `G[i,k] q[k]` is
 /// shared by a row's entries, so a fixed-size build multiplies it once),
-/// exactly symmetric, and positive semidefinite by construction when every `q[k] >= 0`, which
-/// is all a caller has to check.
+/// exactly symmetric, and positive semidefinite by construction when every
+/// `q[k] >= 0`, which is all a caller has to check.
 #[inline(always)]
 pub fn from_sources<T: Scalar, const N: usize>(
     g: &SMatrix<T, N, N>,

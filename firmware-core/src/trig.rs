@@ -94,11 +94,12 @@ mod tests {
         assert_eq!(sin_cos_f32(-0.0).0.to_bits(), (-0.0f32).to_bits());
         assert!(sin_cos_f32(f32::NAN).0.is_nan());
         assert_eq!(sin_cos_f32(1e5).0, libm::sinf(1e5));
-        // The hand-over: 8044 is quarter turn 5121, the first libm serves.
-        assert_eq!(
-            sin_cos_f32(8044.0),
-            (libm::sinf(8044.0), libm::cosf(8044.0))
-        );
+        // The hand-over, pinned from both sides at arguments where the
+        // kernel's last bit and libm's differ (found by a scan): 8043.201 is
+        // quarter turn 5120, still the kernel's; 8043.2627 is 5121, libm's.
+        let (last, first) = (f32::from_bits(0x45fb_599c), f32::from_bits(0x45fb_5a1a));
+        assert_ne!(sin_cos_f32(last), (libm::sinf(last), libm::cosf(last)));
+        assert_eq!(sin_cos_f32(first), (libm::sinf(first), libm::cosf(first)));
     }
 
     /// Largest absolute error of sin and cos over `count` evenly spaced f32
